@@ -1,0 +1,26 @@
+#include "service/core/evidence.h"
+
+#include <algorithm>
+#include <cmath>
+
+namespace riskbound::core {
+
+Certificate MakeCertificate(Family family, double delta, double empirical_risk,
+                            double upper_bound,
+                            std::optional<double> lower_bound) {
+  Certificate c;
+  c.family = family;
+  c.delta = delta;
+  c.empirical_risk = std::clamp(empirical_risk, 0.0, 1.0);
+  double upper = std::isnan(upper_bound) ? 1.0 : std::clamp(upper_bound, 0.0, 1.0);
+  c.upper_bound = std::max(upper, c.empirical_risk);
+  if (lower_bound.has_value()) {
+    double lower = std::isnan(*lower_bound) ? 0.0 : std::clamp(*lower_bound, 0.0, 1.0);
+    c.lower_bound = std::min(lower, c.empirical_risk);
+  }
+  c.penalty = c.upper_bound - c.empirical_risk;
+  c.vacuous = c.upper_bound >= 1.0;
+  return c;
+}
+
+}  // namespace riskbound::core

@@ -1,0 +1,96 @@
+// Numerical building blocks shared by every bound family.
+//
+// Start here when a family needs a binomial tail inversion, a Bernoulli KL
+// inverse or a log binomial coefficient. Everything in this header is a pure
+// function of its arguments: thread-safe, no allocation, no global state.
+#ifndef RISKBOUND_SERVICE_CORE_NUMERIC_H_
+#define RISKBOUND_SERVICE_CORE_NUMERIC_H_
+
+#include <cstdint>
+#include <functional>
+
+#include "absl/status/statusor.h"
+
+namespace riskbound::core {
+
+// Tolerance of every bisection in this header (absolute, on probabilities).
+inline constexpr double kBisectionTolerance = 1e-12;
+
+// BernoulliKl
+// Returns kl(q || p) = q ln(q/p) + (1-q) ln((1-q)/(1-p)) with 0 ln 0 = 0.
+// Returns +infinity where p is 0 or 1 and q differs from it.
+// REQUIRES: q and p in [0, 1].
+double BernoulliKl(double q, double p);
+
+// KlInverseUpper
+// Returns sup { p in [q, 1] : kl(q || p) <= c }, found by bisection to
+// kBisectionTolerance and rounded to the conservative (larger) end.
+// c <= 0 returns q; q = 1 returns 1; q = 0 uses the closed form 1 - exp(-c).
+// REQUIRES: q in [0, 1]; c not NaN.
+double KlInverseUpper(double q, double c);
+
+// KlInverseLower
+// Returns inf { p in [0, q] : kl(q || p) <= c }, rounded to the conservative
+// (smaller) end. c <= 0 returns q; q = 0 returns 0.
+// REQUIRES: q in [0, 1]; c not NaN.
+double KlInverseLower(double q, double c);
+
+// A binomial confidence limit and how it was obtained.
+struct TailLimit {
+  double value = 0.0;
+  // True when the exact Clopper-Pearson inversion was used; false when the
+  // (looser, still valid) kl-Chernoff relaxation had to stand in for it.
+  bool exact = true;
+};
+
+// BinomialUpperLimit
+// One-sided Clopper-Pearson upper limit: the largest p with
+// P(Bin(n, p) <= k) >= delta, i.e. the (1 - delta) quantile of
+// Beta(k + 1, n - k), computed with Boost.Math's complement inverse (never as
+// a quantile at 1 - delta). k = 0 uses the closed form 1 - delta^(1/n); k = n
+// returns 1. Where Boost cannot converge (n beyond about 1e13 with many
+// errors) the kl-Chernoff bound, which is never smaller, is returned with
+// exact = false.
+// REQUIRES: n >= 1, k <= n, 0 < delta < 1.
+TailLimit BinomialUpperLimit(std::uint64_t n, std::uint64_t k, double delta);
+
+// BinomialLowerLimit
+// One-sided Clopper-Pearson lower limit: the smallest p with
+// P(Bin(n, p) >= k) >= delta. k = 0 returns 0. Fallback as above (kl lower
+// inverse, never larger than the exact limit).
+// REQUIRES: n >= 1, k <= n, 0 < delta < 1.
+TailLimit BinomialLowerLimit(std::uint64_t n, std::uint64_t k, double delta);
+
+// BinomialUpperLimitLogDelta
+// As BinomialUpperLimit, but the failure probability is given by its natural
+// logarithm, for the tiny levels of union bounds (delta / C(m, d),
+// delta * 2^-bits) that underflow a double. Uses Boost while exp(log_delta)
+// is a normal double, else bisection on the log binomial CDF (O(k) per step)
+// for k up to 10^7, else the kl-Chernoff relaxation (exact = false).
+// REQUIRES: n >= 1, k <= n, log_delta < 0.
+TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
+                                     double log_delta);
+
+// LogBinomialCdf
+// Returns ln P(Bin(n, p) <= k), summed in log space. O(k).
+// REQUIRES: k <= n, 0 <= p <= 1.
+double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p);
+
+// LogChoose
+// Returns ln C(n, k) from lgamma; never forms C(n, k).
+// REQUIRES: 0 <= k <= n.
+double LogChoose(double n, double k);
+
+// SmallestSatisfying
+// For a monotone predicate (false ... false true ... true) on the integers
+// [lo, hi], returns the smallest x with ok(x) true, by exponential search from
+// lo and then bisection: about 2 log2(x) calls of ok. Returns NOT_FOUND when
+// ok(hi) is false.
+// REQUIRES: lo <= hi.
+absl::StatusOr<std::uint64_t> SmallestSatisfying(
+    std::uint64_t lo, std::uint64_t hi,
+    const std::function<bool(std::uint64_t)>& ok);
+
+}  // namespace riskbound::core
+
+#endif  // RISKBOUND_SERVICE_CORE_NUMERIC_H_

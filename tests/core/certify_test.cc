@@ -1,0 +1,186 @@
+#include "service/core/certify.h"
+
+#include <cmath>
+
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+#include "service/core/families.h"
+#include "service/core/holdout.h"
+#include "tests/testing/status_matchers.h"
+
+namespace riskbound::core {
+namespace {
+
+using ::riskbound::testing::StatusIs;
+using ::testing::AllOf;
+using ::testing::HasSubstr;
+
+Evidence HoldoutOnly(std::uint64_t errors, std::uint64_t samples) {
+  Evidence e;
+  e.holdout = SampleCounts{errors, samples};
+  return e;
+}
+
+Evidence Full() {
+  Evidence e = HoldoutOnly(20, 1000);
+  TrainingEvidence t;
+  t.counts = {500, 10000};
+  t.capacity.vc_dimension = 100;
+  t.capacity.log_hypothesis_count = std::log(1e6);
+  e.training = t;
+  return e;
+}
+
+TEST(CertifyTest, RecommendedHoldoutGetsWholeDelta) {
+  CertifyRequest req;
+  req.evidence = HoldoutOnly(0, 300);
+  req.delta = 0.05;
+  auto got = Certify(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  ASSERT_EQ(got->certificates.size(), 1u);
+  EXPECT_EQ(got->certificates[0].family, Family::kHoldoutExactBinomial);
+  EXPECT_NEAR(got->certificates[0].upper_bound, 0.009936, 5e-7);  // rule of three
+  EXPECT_EQ(got->total_delta, 0.05);
+  EXPECT_THAT(got->delta_rule, HasSubstr("full failure probability"));
+}
+
+TEST(CertifyTest, RecommendedTrainingFamilies) {
+  CertifyRequest req;
+  req.evidence = Full();
+  req.evidence.holdout.reset();
+  EXPECT_EQ(Certify(req)->certificates[0].family, Family::kOccamKl);
+  req.evidence.training->capacity.log_hypothesis_count.reset();
+  EXPECT_EQ(Certify(req)->certificates[0].family, Family::kVcAdditive);
+}
+
+// Union bound (formula sheet 11.3; common practice): with K families each is
+// computed at delta/K and equals a standalone computation at delta/K.
+TEST(CertifyTest, AllApplicableSplitsDelta) {
+  CertifyRequest req;
+  req.evidence = Full();
+  req.delta = 0.06;
+  req.choice = FamilyChoice::kAllApplicable;
+  auto got = Certify(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  ASSERT_EQ(got->certificates.size(), Families().size());
+  for (const Certificate& c : got->certificates) {
+    EXPECT_DOUBLE_EQ(c.delta, 0.06 / 7);
+  }
+  EXPECT_NEAR(got->total_delta, 0.06, 1e-15);
+  const Certificate& tight = got->certificates[got->tightest_index];
+  EXPECT_EQ(tight.family, Family::kHoldoutExactBinomial);
+  EXPECT_DOUBLE_EQ(tight.upper_bound, HoldoutExactBinomial({20, 1000}, 0.06 / 7).upper_bound);
+  for (const Certificate& c : got->certificates) EXPECT_GE(c.upper_bound, tight.upper_bound);
+  EXPECT_THAT(got->delta_rule, HasSubstr("union bound over 7 families"));
+}
+
+TEST(CertifyTest, ListedWithWeights) {
+  CertifyRequest req;
+  req.evidence = HoldoutOnly(20, 1000);
+  req.delta = 0.05;
+  req.choice = FamilyChoice::kListed;
+  req.families = {Family::kHoldoutKlChernoff, Family::kHoldoutExactBinomial};
+  req.delta_weights = {0.2, 0.8};
+  auto got = Certify(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  EXPECT_DOUBLE_EQ(got->certificates[0].delta, 0.01);
+  EXPECT_DOUBLE_EQ(got->certificates[1].delta, 0.04);
+  EXPECT_EQ(got->tightest_index, 1u);
+}
+
+TEST(CertifyTest, BaselineMakesCertificateVacuous) {
+  CertifyRequest req;
+  req.evidence = HoldoutOnly(40, 100);
+  req.evidence.baseline_error_rate = 0.45;
+  auto got = Certify(req);
+  ASSERT_TRUE(got.ok());
+  EXPECT_GT(got->certificates[0].upper_bound, 0.45);
+  EXPECT_TRUE(got->certificates[0].vacuous);
+}
+
+TEST(CertifyTest, InvalidInputNamesEveryField) {
+  CertifyRequest req;
+  req.evidence = HoldoutOnly(5, 3);
+  req.delta = 2.0;
+  auto got = Certify(req);
+  EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument,
+                            AllOf(HasSubstr("failure_probability"),
+                                  HasSubstr("evidence.holdout.error_count"))));
+  const auto violations = FieldViolationsOf(got.status());
+  ASSERT_EQ(violations.size(), 2u);
+  EXPECT_EQ(violations[0].field, "failure_probability");
+  EXPECT_EQ(violations[1].field, "evidence.holdout.error_count");
+
+  req = CertifyRequest{};
+  req.delta = NAN;
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     AllOf(HasSubstr("NaN"), HasSubstr("evidence"))));
+  req = CertifyRequest{};
+  req.evidence = HoldoutOnly(0, 0);
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("evidence.holdout.sample_count")));
+  req.evidence = HoldoutOnly(0, (1ULL << 53) + 1);
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("evidence.holdout.sample_count")));
+}
+
+TEST(CertifyTest, TrainingWithoutCapacityOrBadCapacity) {
+  CertifyRequest req;
+  req.evidence.training = TrainingEvidence{{1, 10}, {}};
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("evidence.training.capacity")));
+  req.evidence.training->capacity.log_hypothesis_count = -1.0;
+  EXPECT_THAT(Certify(req),
+              StatusIs(absl::StatusCode::kInvalidArgument,
+                       HasSubstr("evidence.training.capacity.log_hypothesis_count")));
+  req.evidence.training->capacity.log_hypothesis_count = INFINITY;
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("+Inf")));
+}
+
+TEST(CertifyTest, ListedFamilyProblems) {
+  CertifyRequest req;
+  req.evidence = HoldoutOnly(1, 100);
+  req.choice = FamilyChoice::kListed;
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("listed.families")));
+  req.families = {Family::kHoldoutHoeffding, Family::kHoldoutHoeffding};
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("listed.families[1]: holdout-hoeffding is listed twice")));
+  req.families = {Family::kVcAdditive};
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("listed.families[0]: vc-additive needs")));
+  req.families = {static_cast<Family>(0)};
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("unknown bound family")));
+  req.families = {Family::kHoldoutHoeffding, Family::kHoldoutKlChernoff};
+  req.delta_weights = {0.7, 0.7};
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("sum to at most 1")));
+  req.delta_weights = {0.5};
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("one weight per listed family")));
+  req.delta_weights = {0.5, NAN};
+  EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
+                                     HasSubstr("listed.delta_weights[1]")));
+}
+
+TEST(FamiliesTest, RegistryIsConsistent) {
+  for (const FamilySpec& spec : Families()) {
+    EXPECT_EQ(FindFamily(spec.family), &spec);
+    EXPECT_EQ(FindFamilyBySlug(spec.slug), &spec);
+    EXPECT_FALSE(spec.source.empty());
+    EXPECT_FALSE(spec.assumptions.empty());
+  }
+  EXPECT_EQ(FindFamilyBySlug("no-such-family"), nullptr);
+}
+
+TEST(CautionsTest, MentionIidShiftAndReview) {
+  const auto& c = Cautions();
+  ASSERT_EQ(c.size(), 3u);
+  EXPECT_THAT(c[0], HasSubstr("independent draws"));
+  EXPECT_THAT(c[1], HasSubstr("distribution shift"));
+  EXPECT_THAT(c[2], HasSubstr("model-risk review"));
+}
+
+}  // namespace
+}  // namespace riskbound::core

@@ -1,0 +1,146 @@
+#include "service/core/numeric.h"
+
+#include <cmath>
+#include <cstdint>
+
+#include <boost/math/distributions/binomial.hpp>
+
+#include "gtest/gtest.h"
+#include "tests/testing/fixture.h"
+#include "tests/testing/status_matchers.h"
+
+namespace riskbound::core {
+namespace {
+
+using ::riskbound::testing::Num;
+using ::riskbound::testing::ReadFixture;
+using ::riskbound::testing::StatusIs;
+
+// Source: scipy.stats.beta.isf / beta.ppf (fixture holdout.csv, written by
+// tests/reference/fixtures_holdout.py).
+TEST(BinomialLimitTest, MatchesScipyBetaQuantiles) {
+  const auto rows = ReadFixture("holdout.csv");
+  for (const auto& row : rows) {
+    const auto n = static_cast<std::uint64_t>(Num(row, "samples"));
+    const auto k = static_cast<std::uint64_t>(Num(row, "errors"));
+    const double delta = Num(row, "delta");
+    SCOPED_TRACE(::testing::Message() << "n=" << n << " k=" << k << " delta=" << delta);
+    const TailLimit up = BinomialUpperLimit(n, k, delta);
+    const TailLimit lo = BinomialLowerLimit(n, k, delta);
+    EXPECT_TRUE(up.exact);
+    EXPECT_NEAR(up.value, Num(row, "cp_upper"), 1e-9 * Num(row, "cp_upper") + 1e-15);
+    EXPECT_NEAR(lo.value, Num(row, "cp_lower"), 1e-9 * Num(row, "cp_lower") + 1e-15);
+  }
+}
+
+// Source: scipy.optimize.brentq on kl(q||p) - c (fixture holdout.csv).
+TEST(KlInverseTest, MatchesScipyRootFind) {
+  const auto rows = ReadFixture("holdout.csv");
+  for (const auto& row : rows) {
+    const double n = Num(row, "samples");
+    const double q = Num(row, "errors") / n;
+    const double c = std::log(1.0 / Num(row, "delta")) / n;
+    SCOPED_TRACE(::testing::Message() << "q=" << q << " c=" << c);
+    const double up = KlInverseUpper(q, c);
+    const double lo = KlInverseLower(q, c);
+    EXPECT_NEAR(up, Num(row, "kl_upper"), 2e-12);
+    EXPECT_NEAR(lo, Num(row, "kl_lower"), 2e-12);
+    // Conservative ends of the bisection.
+    EXPECT_GE(up, Num(row, "kl_upper") - 1e-13);
+    EXPECT_LE(lo, Num(row, "kl_lower") + 1e-13);
+  }
+}
+
+// Source: formula sheet row 0.2 (check_formulas.py): q = 0.1, c = 0.05 gives
+// p = 0.2200786011.
+TEST(KlInverseTest, FormulaSheetWorkedValue) {
+  EXPECT_NEAR(KlInverseUpper(0.1, 0.05), 0.2200786011, 1e-10);
+  EXPECT_GE(BernoulliKl(0.1, KlInverseUpper(0.1, 0.05)), 0.05);
+}
+
+// Source: Boost.Math binomial_distribution::find_upper_bound_on_p, which our
+// k = 0 closed form 1 - delta^(1/n) bypasses.
+TEST(BinomialLimitTest, ZeroErrorClosedFormMatchesBoost) {
+  for (std::uint64_t n : {1ULL, 7ULL, 300ULL, 100000ULL, 1000000000ULL}) {
+    for (double delta : {0.5, 0.05, 1e-6, 1e-12}) {
+      const double boost_value =
+          boost::math::binomial_distribution<>::find_upper_bound_on_p(
+              static_cast<double>(n), 0.0, delta);
+      EXPECT_NEAR(BinomialUpperLimit(n, 0, delta).value, boost_value,
+                  1e-12 * boost_value + 1e-300)
+          << "n=" << n << " delta=" << delta;
+    }
+  }
+}
+
+// Source: Hanley & Lippman-Hand (1983), rule of three; exact values from the
+// formula sheet row 4.5 (n = 100: 0.029513; n = 300: 0.009936; n = 1000: 0.002991).
+TEST(BinomialLimitTest, RuleOfThree) {
+  EXPECT_NEAR(BinomialUpperLimit(100, 0, 0.05).value, 0.029513, 5e-7);
+  EXPECT_NEAR(BinomialUpperLimit(300, 0, 0.05).value, 0.009936, 5e-7);
+  EXPECT_NEAR(BinomialUpperLimit(1000, 0, 0.05).value, 0.002991, 5e-7);
+  for (std::uint64_t n : {30ULL, 300ULL, 3000ULL}) {
+    const double exact = BinomialUpperLimit(n, 0, 0.05).value;
+    EXPECT_LE(exact, 3.0 / static_cast<double>(n));               // "about 3/n"
+    EXPECT_LE(exact, -std::log(0.05) / static_cast<double>(n));  // 1 - d^(1/n) <= ln(1/d)/n
+  }
+}
+
+// Where Boost gives up (n = 1e15 with 1e13 errors), the answer is still finite
+// and never below the exact limit: the kl relaxation dominates the binomial
+// tail inversion (Chernoff 1952). Brute force: at the reported p the Chernoff
+// tail exp(-n kl(q||p)) is <= delta.
+TEST(BinomialLimitTest, HugeSampleFallsBackConservatively) {
+  const std::uint64_t n = 1'000'000'000'000'000ULL;
+  const std::uint64_t k = 10'000'000'000'000ULL;
+  const TailLimit up = BinomialUpperLimit(n, k, 0.05);
+  ASSERT_TRUE(std::isfinite(up.value));
+  EXPECT_GT(up.value, 0.01);
+  EXPECT_LT(up.value, 0.0100001);
+  EXPECT_LE(std::exp(-static_cast<double>(n) * BernoulliKl(0.01, up.value)), 0.05 * (1 + 1e-9));
+  const TailLimit lo = BinomialLowerLimit(n, k, 0.05);
+  ASSERT_TRUE(std::isfinite(lo.value));
+  EXPECT_LT(lo.value, 0.01);
+  EXPECT_GT(lo.value, 0.0099999);
+}
+
+// Source: Boost.Math via log-space agreement: for a delta that is a normal
+// double, the log-delta path must equal the plain one; for an underflowing
+// delta it must satisfy its defining equation ln P(Bin(n,p) <= k) = ln delta
+// (checked by the O(k) log-sum-exp, brute force).
+TEST(BinomialLimitTest, LogDeltaPath) {
+  EXPECT_NEAR(BinomialUpperLimitLogDelta(1000, 20, std::log(0.05)).value,
+              BinomialUpperLimit(1000, 20, 0.05).value, 1e-12);
+  const double log_delta = -2000.0;
+  const TailLimit p = BinomialUpperLimitLogDelta(10000, 150, log_delta);
+  EXPECT_TRUE(p.exact);
+  EXPECT_NEAR(LogBinomialCdf(10000, 150, p.value), log_delta, 1e-6 * 2000.0);
+  EXPECT_LE(LogBinomialCdf(10000, 150, p.value), log_delta);
+}
+
+// Brute force: the search returns the first x of a monotone predicate.
+TEST(SmallestSatisfyingTest, FindsThresholdAndReportsUnreachable) {
+  for (std::uint64_t target : {1ULL, 2ULL, 3ULL, 1000ULL, 401379ULL, 1ULL << 50}) {
+    int calls = 0;
+    auto got = SmallestSatisfying(1, 1ULL << 60, [&](std::uint64_t x) {
+      ++calls;
+      return x >= target;
+    });
+    ASSERT_TRUE(got.ok());
+    EXPECT_EQ(*got, target);
+    EXPECT_LE(calls, 2 * 64 + 2);
+  }
+  EXPECT_THAT(SmallestSatisfying(1, 10, [](std::uint64_t) { return false; }),
+              StatusIs(absl::StatusCode::kNotFound));
+}
+
+// Source: lgamma identity, brute force against exact integer binomials.
+TEST(LogChooseTest, MatchesExactSmallBinomials) {
+  EXPECT_NEAR(LogChoose(10, 3), std::log(120.0), 1e-12);
+  EXPECT_NEAR(LogChoose(52, 5), std::log(2598960.0), 1e-11);
+  EXPECT_EQ(LogChoose(7, 0), 0.0);
+  EXPECT_EQ(LogChoose(7, 7), 0.0);
+}
+
+}  // namespace
+}  // namespace riskbound::core
