@@ -1,0 +1,62 @@
+#include "client_cli/commands.h"
+
+#include "absl/strings/str_format.h"
+#include "client_cli/exit_codes.h"
+
+namespace riskbound::cli {
+namespace {
+
+constexpr char kOverview[] =
+    "riskbound: certified upper bounds on a classifier's true error, from a riskbound-server.\n"
+    "\n"
+    "usage: riskbound <command> [options]      riskbound <command> --help\n"
+    "\n"
+    "commands:\n";
+
+constexpr char kExitCodes[] =
+    "\nexit codes:\n"
+    "  0  success\n"
+    "  1  unexpected failure\n"
+    "  2  usage error (unknown command or flag, missing value)\n"
+    "  3  invalid input (refused by the server with the field named, or an unreadable file)\n"
+    "  4  server unreachable (unavailable, or no answer within --timeout)\n"
+    "\n"
+    "Bounds assume i.i.d. samples from the deployment distribution; they say nothing about\n"
+    "distribution shift, fairness or misuse, and never replace model-risk review.\n";
+
+}  // namespace
+
+const std::vector<Command>& Commands() {
+  static const std::vector<Command>* const kCommands = new std::vector<Command>{
+      {"certify", "certificates on one model's true error from its evidence", RunCertify},
+      {"families", "list the bound families, their sources and assumptions", RunFamilies},
+  };
+  return *kCommands;
+}
+
+int RunCli(const std::vector<std::string>& argv, std::ostream& out, std::ostream& err) {
+  auto overview = [&](std::ostream& os) {
+    os << kOverview;
+    for (const Command& c : Commands()) os << absl::StrFormat("  %-10s %s\n", c.name, c.summary);
+    os << kExitCodes;
+  };
+  if (argv.size() < 2) {
+    overview(err);
+    return kExitUsage;
+  }
+  const std::string& name = argv[1];
+  if (name == "--help" || name == "-h" || name == "help") {
+    overview(out);
+    return kExitOk;
+  }
+  for (const Command& c : Commands()) {
+    if (name == c.name) {
+      return c.run(std::vector<std::string>(argv.begin() + 2, argv.end()), out, err);
+    }
+  }
+  err << "riskbound: unknown command '" << name << "'\n\n";
+  overview(err);
+  return kExitUsage;
+}
+
+}  // namespace riskbound::cli

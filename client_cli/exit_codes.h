@@ -1,0 +1,18 @@
+// Exit codes of the riskbound CLI (documented in README and `riskbound --help`).
+#ifndef RISKBOUND_CLIENT_CLI_EXIT_CODES_H_
+#define RISKBOUND_CLIENT_CLI_EXIT_CODES_H_
+
+namespace riskbound::cli {
+
+enum ExitCode : int {
+  kExitOk = 0,              // Success (for `gate`: verdict PROMOTE).
+  kExitInternal = 1,        // Unexpected failure (server INTERNAL, UNKNOWN, ...).
+  kExitUsage = 2,           // Bad command line: unknown command or flag, missing value.
+  kExitInvalidInput = 3,    // The input was refused: INVALID_ARGUMENT (field named) or
+                            // an unreadable or malformed input file.
+  kExitUnreachable = 4,     // The server could not be reached in time.
+};
+
+}  // namespace riskbound::cli
+
+#endif  // RISKBOUND_CLIENT_CLI_EXIT_CODES_H_

@@ -1,0 +1,114 @@
+#include "service/rpc/convert.h"
+
+#include <cmath>
+#include <string>
+#include <vector>
+
+#include "service/core/families.h"
+#include "service/core/field_violation.h"
+
+namespace riskbound::rpc {
+namespace {
+
+using core::FieldViolation;
+
+core::SampleCounts Counts(std::uint64_t errors, std::uint64_t samples) {
+  return core::SampleCounts{errors, samples};
+}
+
+void CapacityFromProto(const v1::Capacity& in, core::ClassCapacity* out,
+                       std::vector<FieldViolation>* violations) {
+  const std::string prefix = "evidence.training.capacity";
+  switch (in.measure_case()) {
+    case v1::Capacity::kVcDimension:
+      out->vc_dimension = in.vc_dimension();
+      break;
+    case v1::Capacity::kHypothesisCount:
+      if (in.hypothesis_count() == 0) {
+        violations->push_back({prefix + ".hypothesis_count", "must be at least 1"});
+      } else {
+        out->log_hypothesis_count = std::log(static_cast<double>(in.hypothesis_count()));
+      }
+      break;
+    case v1::Capacity::kLogHypothesisCount:
+      out->log_hypothesis_count = in.log_hypothesis_count();
+      break;
+    case v1::Capacity::MEASURE_NOT_SET:
+      break;  // core::ValidateEvidence names the missing capacity.
+  }
+}
+
+}  // namespace
+
+absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
+  std::vector<FieldViolation> violations;
+  core::CertifyRequest out;
+  const v1::Evidence& e = in.evidence();
+  if (e.has_holdout()) {
+    out.evidence.holdout = Counts(e.holdout().error_count(), e.holdout().sample_count());
+  }
+  if (e.has_training()) {
+    core::TrainingEvidence t;
+    t.counts = Counts(e.training().error_count(), e.training().sample_count());
+    CapacityFromProto(e.training().capacity(), &t.capacity, &violations);
+    out.evidence.training = t;
+  }
+  if (e.has_baseline_error_rate()) out.evidence.baseline_error_rate = e.baseline_error_rate();
+  out.delta = in.failure_probability();
+  switch (in.family_choice_case()) {
+    case v1::CertifyRequest::kListed:
+      out.choice = core::FamilyChoice::kListed;
+      for (int f : in.listed().families()) out.families.push_back(static_cast<core::Family>(f));
+      out.delta_weights.assign(in.listed().delta_weights().begin(),
+                               in.listed().delta_weights().end());
+      break;
+    case v1::CertifyRequest::kAllApplicable:
+      out.choice = core::FamilyChoice::kAllApplicable;
+      break;
+    case v1::CertifyRequest::FAMILY_CHOICE_NOT_SET:
+      out.choice = core::FamilyChoice::kRecommended;
+      break;
+  }
+  core::CheckProbabilityOpen("failure_probability", out.delta, &violations);
+  core::ValidateEvidence(out.evidence, &violations).IgnoreError();
+  if (!violations.empty()) return core::InvalidFields(violations);
+  return out;
+}
+
+void CertificateToProto(const core::Certificate& in, v1::Certificate* out) {
+  out->set_family(static_cast<v1::BoundFamily>(in.family));
+  if (const core::FamilySpec* spec = core::FindFamily(in.family)) {
+    out->set_family_name(std::string(spec->slug));
+    out->set_source(std::string(spec->source));
+    out->set_assumptions(std::string(spec->assumptions));
+  }
+  out->set_risk_upper_bound(in.upper_bound);
+  if (in.lower_bound.has_value()) out->set_risk_lower_bound(*in.lower_bound);
+  out->set_failure_probability(in.delta);
+  out->set_empirical_risk(in.empirical_risk);
+  out->set_penalty(in.penalty);
+  out->set_vacuous(in.vacuous);
+  out->set_exact(in.exact);
+  for (const std::string& note : in.notes) out->add_notes(note);
+}
+
+v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result,
+                                           double requested_delta) {
+  v1::CertifyResponse out;
+  for (const core::Certificate& c : result.certificates) {
+    CertificateToProto(c, out.add_certificates());
+  }
+  if (!result.certificates.empty()) {
+    CertificateToProto(result.certificates[result.tightest_index], out.mutable_tightest());
+  }
+  v1::DeltaAccounting* ledger = out.mutable_delta_accounting();
+  ledger->set_requested_failure_probability(requested_delta);
+  ledger->set_spent_failure_probability(result.total_delta);
+  ledger->set_family_count(static_cast<std::uint32_t>(result.certificates.size()));
+  ledger->set_rule(result.delta_rule);
+  for (const std::string& caution : core::Cautions()) out.add_cautions(caution);
+  out.set_engine_version(RISKBOUND_ENGINE_VERSION);
+  return out;
+}
+
+}  // namespace riskbound::rpc

@@ -1,0 +1,21 @@
+// The riskbound.v1.RiskBound service: thin handlers that convert, call the
+// core, convert back, and log one line per request at debug level.
+#ifndef RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_
+#define RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_
+
+#include "riskbound/v1/riskbound.grpc.pb.h"
+
+namespace riskbound::rpc {
+
+// RiskBoundService
+// Stateless: every handler is a pure function of its request, so one instance
+// serves any number of concurrent calls. Thread-safe.
+class RiskBoundService final : public v1::RiskBound::Service {
+ public:
+  grpc::Status Certify(grpc::ServerContext* context, const v1::CertifyRequest* request,
+                       v1::CertifyResponse* response) override;
+};
+
+}  // namespace riskbound::rpc
+
+#endif  // RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_

@@ -1,0 +1,119 @@
+#include <memory>
+
+#include "gmock/gmock.h"
+#include "grpcpp/create_channel.h"
+#include "grpcpp/security/credentials.h"
+#include "gtest/gtest.h"
+#include "riskbound/v1/riskbound.grpc.pb.h"
+#include "service/rpc/convert.h"
+#include "service/rpc/server.h"
+#include "service/rpc/status.h"
+#include "tests/testing/status_matchers.h"
+
+namespace riskbound::rpc {
+namespace {
+
+using ::riskbound::testing::StatusIs;
+using ::testing::HasSubstr;
+
+class ServiceTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    ServerConfig config;
+    config.listen_address = "127.0.0.1:0";  // a free port, read back below
+    auto server = StartServer(config);
+    ASSERT_TRUE(server.ok()) << server.status();
+    server_ = std::move(*server);
+    ASSERT_GT(server_->port(), 0);
+    channel_ = grpc::CreateChannel("127.0.0.1:" + std::to_string(server_->port()),
+                                   grpc::InsecureChannelCredentials());
+    stub_ = v1::RiskBound::NewStub(channel_);
+  }
+
+  grpc::Status Call(const v1::CertifyRequest& req, v1::CertifyResponse* resp) {
+    grpc::ClientContext ctx;
+    ctx.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
+    return stub_->Certify(&ctx, req, resp);
+  }
+
+  std::unique_ptr<RunningServer> server_;
+  std::shared_ptr<grpc::Channel> channel_;
+  std::unique_ptr<v1::RiskBound::Stub> stub_;
+};
+
+// Source: Clopper & Pearson (1934) via the rule of three (Hanley &
+// Lippman-Hand 1983): 0 errors in 300 at delta = 0.05 -> 0.009936.
+TEST_F(ServiceTest, CertifyOverLoopback) {
+  v1::CertifyRequest req;
+  req.mutable_evidence()->mutable_holdout()->set_sample_count(300);
+  req.set_failure_probability(0.05);
+  v1::CertifyResponse resp;
+  ASSERT_TRUE(Call(req, &resp).ok());
+  ASSERT_EQ(resp.certificates_size(), 1);
+  EXPECT_NEAR(resp.tightest().risk_upper_bound(), 0.009936, 5e-7);
+  EXPECT_EQ(resp.tightest().family_name(), "holdout-binomial");
+  EXPECT_THAT(resp.tightest().source(), HasSubstr("Clopper & Pearson"));
+  EXPECT_TRUE(resp.tightest().has_risk_lower_bound());
+  EXPECT_EQ(resp.delta_accounting().family_count(), 1u);
+  EXPECT_EQ(resp.cautions_size(), 3);
+  EXPECT_FALSE(resp.engine_version().empty());
+}
+
+TEST_F(ServiceTest, InvalidArgumentCarriesFieldViolations) {
+  v1::CertifyRequest req;
+  req.mutable_evidence()->mutable_training()->set_sample_count(10);
+  req.mutable_evidence()->mutable_training()->set_error_count(1);
+  req.mutable_evidence()->mutable_training()->mutable_capacity()->set_hypothesis_count(0);
+  req.set_failure_probability(0.05);
+  v1::CertifyResponse resp;
+  const grpc::Status status = Call(req, &resp);
+  EXPECT_EQ(status.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
+  EXPECT_THAT(status.error_message(),
+              HasSubstr("evidence.training.capacity.hypothesis_count: must be at least 1"));
+  v1::ErrorStatus detail;
+  ASSERT_TRUE(detail.ParseFromString(status.error_details()));
+  v1::FieldViolations violations;
+  ASSERT_TRUE(detail.details(0).UnpackTo(&violations));
+  ASSERT_GE(violations.field_violations_size(), 1);
+  EXPECT_EQ(violations.field_violations(0).field(), "evidence.training.capacity.hypothesis_count");
+}
+
+TEST_F(ServiceTest, UnknownEnumValueIsNamed) {
+  v1::CertifyRequest req;
+  req.mutable_evidence()->mutable_holdout()->set_sample_count(10);
+  req.set_failure_probability(0.05);
+  req.mutable_listed()->add_families(static_cast<v1::BoundFamily>(999));
+  v1::CertifyResponse resp;
+  const grpc::Status status = Call(req, &resp);
+  EXPECT_EQ(status.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
+  EXPECT_THAT(status.error_message(), HasSubstr("listed.families[0]: unknown bound family"));
+}
+
+TEST(ConvertTest, HypothesisCountBecomesLog) {
+  v1::CertifyRequest req;
+  auto* t = req.mutable_evidence()->mutable_training();
+  t->set_sample_count(100);
+  t->mutable_capacity()->set_hypothesis_count(1000);
+  req.set_failure_probability(0.1);
+  auto got = CertifyRequestFromProto(req);
+  ASSERT_TRUE(got.ok());
+  EXPECT_NEAR(*got->evidence.training->capacity.log_hypothesis_count, std::log(1000.0), 1e-15);
+  EXPECT_EQ(got->choice, core::FamilyChoice::kRecommended);
+}
+
+TEST(StatusTest, CodesAreCopied) {
+  EXPECT_EQ(ToGrpcStatus(absl::UnavailableError("x")).error_code(), grpc::StatusCode::UNAVAILABLE);
+  EXPECT_TRUE(ToGrpcStatus(absl::OkStatus()).ok());
+  EXPECT_TRUE(ToGrpcStatus(absl::InternalError("y")).error_details().empty());
+}
+
+TEST(ServerTest, BadAddressIsUnavailable) {
+  ServerConfig config;
+  config.listen_address = "256.1.1.1:1";
+  EXPECT_THAT(StartServer(config), StatusIs(absl::StatusCode::kUnavailable));
+  config.threads = 0;
+  EXPECT_THAT(StartServer(config), StatusIs(absl::StatusCode::kInvalidArgument));
+}
+
+}  // namespace
+}  // namespace riskbound::rpc
