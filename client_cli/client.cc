@@ -42,16 +42,16 @@ RiskBoundClient::RiskBoundClient(const ClientOptions& options)
       channel_(grpc::CreateChannel(options.server, grpc::InsecureChannelCredentials())),
       stub_(v1::RiskBound::NewStub(channel_)) {}
 
-void RiskBoundClient::Prepare(grpc::ClientContext* context) const {
+std::unique_ptr<grpc::ClientContext> RiskBoundClient::NewContext() const {
+  auto context = std::make_unique<grpc::ClientContext>();
   context->set_deadline(std::chrono::system_clock::now() +
                         absl::ToChronoMilliseconds(options_.timeout));
+  return context;
 }
 
 grpc::Status RiskBoundClient::Certify(const v1::CertifyRequest& request,
                                       v1::CertifyResponse* response) {
-  grpc::ClientContext context;
-  Prepare(&context);
-  return stub_->Certify(&context, request, response);
+  return stub_->Certify(NewContext().get(), request, response);
 }
 
 int ExitCodeFor(const grpc::Status& status) {

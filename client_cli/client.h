@@ -38,12 +38,14 @@ class RiskBoundClient {
   explicit RiskBoundClient(const ClientOptions& options);
   grpc::Status Certify(const v1::CertifyRequest& request, v1::CertifyResponse* response);
 
+  // For every other RPC: a context carrying the deadline, and the stub.
+  // Example: auto ctx = client.NewContext(); client.stub()->Gate(ctx.get(), req, &resp);
+  std::unique_ptr<grpc::ClientContext> NewContext() const;
+  v1::RiskBound::Stub* stub() { return stub_.get(); }
+
   const ClientOptions& options() const { return options_; }
 
  private:
-  // Fills a context with the deadline.
-  void Prepare(grpc::ClientContext* context) const;
-
   // Constant after construction.
   const ClientOptions options_;
   std::shared_ptr<grpc::Channel> channel_;

@@ -1,9 +1,11 @@
 // riskbound certify: certificates on one model's true error.
 #include <cmath>
+#include <map>
 #include <optional>
 #include <string>
 #include <vector>
 
+#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
@@ -24,8 +26,10 @@ constexpr char kUsage[] =
 constexpr char kSummary[] =
     "Asks the server for certificates: upper bounds on the model's true error that hold with\n"
     "probability >= 1 - delta. Give hold-out counts (--errors/--samples), training counts with a\n"
-    "capacity (--train-errors/--train-samples with --vc-dimension, --hypothesis-count or\n"
-    "--log-hypothesis-count), or both; or a whole riskbound.v1.CertifyRequest in the protobuf\n"
+    "capacity (--train-errors/--train-samples with --vc-dimension, --hypothesis-count,\n"
+    "--log-hypothesis-count or --rademacher), a bounded loss (--mean-loss ...), a PAC-Bayes\n"
+    "posterior (--kl-divergence ...), a compression scheme (--compression-size ...), any\n"
+    "combination; or a whole riskbound.v1.CertifyRequest in the protobuf\n"
     "JSON mapping with --input (- for stdin). Without --family, one recommended family gets the\n"
     "whole delta; with several families (or 'all') each gets its share (union bound) and the\n"
     "tightest is reported.";
@@ -40,6 +44,20 @@ std::vector<OptionSpec> Specs() {
       {"hypothesis-count", "N", "capacity: number of hypotheses of a finite class"},
       {"log-hypothesis-count", "X", "capacity: ln of the number of hypotheses"},
       {"baseline-error-rate", "P", "error rate of a trivial classifier; bounds at or above it are vacuous"},
+      {"mean-loss", "X", "bounded loss: mean per-example loss on a hold-out set"},
+      {"loss-variance", "V", "bounded loss: unbiased sample variance of the losses"},
+      {"loss-samples", "N", "bounded loss: hold-out examples"},
+      {"loss-range", "A,B", "bounded loss: range of every per-example loss (default 0,1)"},
+      {"kl-divergence", "KL", "PAC-Bayes: KL(posterior || prior) in nats"},
+      {"gibbs-risk", "R", "PAC-Bayes: empirical Gibbs risk of the posterior"},
+      {"pac-samples", "M", "PAC-Bayes: training examples (not those the prior was fit on)"},
+      {"bound-target", "gibbs|majority-vote", "PAC-Bayes: the classifier bounded (default gibbs)"},
+      {"rademacher", "R", "empirical Rademacher complexity of the class (with --train-errors/--train-samples)"},
+      {"sigma-draws", "N", "Rademacher: sigma draws the estimate averaged (default exact)"},
+      {"compression-size", "D", "sample compression: size of the compression set"},
+      {"compression-samples", "M", "sample compression: training examples"},
+      {"outside-errors", "K", "sample compression: errors outside the compression set"},
+      {"size-fixed", "", "sample compression: the set size was fixed before seeing the data"},
       {"delta", "D", "failure probability in (0,1) (default 0.05: 95% confidence)"},
       {"family", "NAME[,NAME]", "bound families (see `riskbound families`), or 'all'", true},
       {"weights", "W[,W]", "delta weights of the listed families, summing to <= 1"},
@@ -56,62 +74,152 @@ int Usage(std::ostream& err, const std::string& message) {
   return kExitUsage;
 }
 
-// Builds the request from the evidence flags. Returns a usage message on error.
-std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyRequest* req) {
-  auto u64 = [&](const char* name, std::optional<std::uint64_t>* out) -> std::optional<std::string> {
+// The numeric flags of certify, read once. A usage message on error.
+struct Flags {
+  std::map<std::string, std::uint64_t> counts;
+  std::map<std::string, double> reals;
+  bool Has(const std::string& name) const { return counts.count(name) || reals.count(name); }
+};
+
+constexpr const char* kCountFlags[] = {"errors", "samples", "train-errors", "train-samples",
+                                       "vc-dimension", "hypothesis-count", "loss-samples",
+                                       "pac-samples", "sigma-draws", "compression-size",
+                                       "compression-samples", "outside-errors"};
+constexpr const char* kRealFlags[] = {"log-hypothesis-count", "baseline-error-rate", "delta",
+                                      "mean-loss", "loss-variance", "kl-divergence",
+                                      "gibbs-risk", "rademacher"};
+
+std::optional<std::string> ReadFlags(const ParsedArgs& args, Flags* flags) {
+  for (const char* name : kCountFlags) {
     auto v = args.GetUint64(name);
     if (!v.ok()) return std::string(v.status().message());
-    *out = *v;
-    return std::nullopt;
-  };
-  auto dbl = [&](const char* name, std::optional<double>* out) -> std::optional<std::string> {
+    if (v->has_value()) flags->counts[name] = **v;
+  }
+  for (const char* name : kRealFlags) {
     auto v = args.GetDouble(name);
     if (!v.ok()) return std::string(v.status().message());
-    *out = *v;
-    return std::nullopt;
-  };
-  std::optional<std::uint64_t> errors, samples, train_errors, train_samples, vc, hyp;
-  std::optional<double> log_hyp, baseline, delta;
-  for (auto problem : {u64("errors", &errors), u64("samples", &samples),
-                       u64("train-errors", &train_errors), u64("train-samples", &train_samples),
-                       u64("vc-dimension", &vc), u64("hypothesis-count", &hyp),
-                       dbl("log-hypothesis-count", &log_hyp),
-                       dbl("baseline-error-rate", &baseline), dbl("delta", &delta)}) {
+    if (v->has_value()) flags->reals[name] = **v;
+  }
+  return std::nullopt;
+}
+
+// "--a, --b and --c go together (what)" unless all or none of them are given.
+std::optional<std::string> Together(const Flags& f, const ParsedArgs& args,
+                                    std::vector<std::string> names, const std::string& what) {
+  int given = 0;
+  for (const std::string& n : names) given += (f.Has(n) || args.Has(n)) ? 1 : 0;
+  if (given == 0 || given == static_cast<int>(names.size())) return std::nullopt;
+  for (std::string& n : names) n = "--" + n;
+  return absl::StrCat(absl::StrJoin(names, ", "), " go together (", what, ")");
+}
+
+// Builds the request's evidence from the flags. Returns a usage message on error.
+std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyRequest* req) {
+  Flags f;
+  if (auto problem = ReadFlags(args, &f)) return problem;
+  for (auto problem :
+       {Together(f, args, {"errors", "samples"}, "hold-out evidence"),
+        Together(f, args, {"train-errors", "train-samples"}, "training evidence"),
+        Together(f, args, {"mean-loss", "loss-samples"}, "bounded-loss evidence"),
+        Together(f, args, {"kl-divergence", "gibbs-risk", "pac-samples"}, "PAC-Bayes evidence"),
+        Together(f, args, {"compression-size", "compression-samples", "outside-errors"},
+                 "sample-compression evidence")}) {
     if (problem) return problem;
   }
-  if (errors.has_value() != samples.has_value()) {
-    return std::string("--errors and --samples go together (hold-out evidence)");
-  }
-  if (train_errors.has_value() != train_samples.has_value()) {
-    return std::string("--train-errors and --train-samples go together (training evidence)");
-  }
-  const int capacities = vc.has_value() + hyp.has_value() + log_hyp.has_value();
+  const int capacities =
+      f.Has("vc-dimension") + f.Has("hypothesis-count") + f.Has("log-hypothesis-count");
   if (capacities > 1) {
     return std::string(
         "give one capacity: --vc-dimension, --hypothesis-count or --log-hypothesis-count");
   }
-  if (capacities == 1 && !train_errors.has_value()) {
-    return std::string("a capacity needs training evidence (--train-errors/--train-samples)");
+  const bool training = f.Has("train-errors");
+  if ((capacities == 1 || f.Has("rademacher")) && !training) {
+    return std::string("a capacity or --rademacher needs --train-errors/--train-samples");
   }
-  if (!errors.has_value() && !train_errors.has_value()) {
-    return std::string("give evidence: --errors/--samples, or --train-errors/--train-samples "
-                       "with a capacity, or --input FILE");
+  if (training && capacities == 0 && !f.Has("rademacher")) {
+    return std::string("training evidence needs a capacity (--vc-dimension, --hypothesis-count, "
+                       "--log-hypothesis-count) or --rademacher");
   }
+  if ((f.Has("loss-variance") || args.Has("loss-range")) && !f.Has("mean-loss")) {
+    return std::string("--loss-variance and --loss-range need --mean-loss/--loss-samples");
+  }
+  if (f.Has("sigma-draws") && !f.Has("rademacher")) return std::string("--sigma-draws needs --rademacher");
+  if (args.Has("bound-target") && !f.Has("kl-divergence")) {
+    return std::string("--bound-target needs PAC-Bayes evidence (--kl-divergence ...)");
+  }
+  if (args.Has("size-fixed") && !f.Has("compression-size")) {
+    return std::string("--size-fixed needs --compression-size");
+  }
+  if (!f.Has("errors") && !training && !f.Has("mean-loss") && !f.Has("kl-divergence") &&
+      !f.Has("compression-size")) {
+    return std::string("give evidence: --errors/--samples, --train-errors/--train-samples with a "
+                       "capacity or --rademacher, --mean-loss/--loss-samples, --kl-divergence/"
+                       "--gibbs-risk/--pac-samples, --compression-size/--compression-samples/"
+                       "--outside-errors, or --input FILE");
+  }
+
   v1::Evidence* e = req->mutable_evidence();
-  if (errors) {
-    e->mutable_holdout()->set_error_count(*errors);
-    e->mutable_holdout()->set_sample_count(*samples);
+  if (f.Has("errors")) {
+    e->mutable_holdout()->set_error_count(f.counts["errors"]);
+    e->mutable_holdout()->set_sample_count(f.counts["samples"]);
   }
-  if (train_errors) {
+  if (training && capacities == 1) {
     v1::TrainingEvidence* t = e->mutable_training();
-    t->set_error_count(*train_errors);
-    t->set_sample_count(*train_samples);
-    if (vc) t->mutable_capacity()->set_vc_dimension(*vc);
-    if (hyp) t->mutable_capacity()->set_hypothesis_count(*hyp);
-    if (log_hyp) t->mutable_capacity()->set_log_hypothesis_count(*log_hyp);
+    t->set_error_count(f.counts["train-errors"]);
+    t->set_sample_count(f.counts["train-samples"]);
+    if (f.Has("vc-dimension")) t->mutable_capacity()->set_vc_dimension(f.counts["vc-dimension"]);
+    if (f.Has("hypothesis-count")) {
+      t->mutable_capacity()->set_hypothesis_count(f.counts["hypothesis-count"]);
+    }
+    if (f.Has("log-hypothesis-count")) {
+      t->mutable_capacity()->set_log_hypothesis_count(f.reals["log-hypothesis-count"]);
+    }
   }
-  if (baseline) e->set_baseline_error_rate(*baseline);
-  req->set_failure_probability(delta.value_or(0.05));
+  if (f.Has("rademacher")) {
+    v1::RademacherEvidence* r = e->mutable_rademacher();
+    r->set_error_count(f.counts["train-errors"]);
+    r->set_sample_count(f.counts["train-samples"]);
+    r->set_empirical_rademacher(f.reals["rademacher"]);
+    if (f.Has("sigma-draws")) r->set_sigma_draw_count(f.counts["sigma-draws"]);
+  }
+  if (f.Has("mean-loss")) {
+    v1::BoundedLossEvidence* b = e->mutable_bounded_loss();
+    b->set_mean_loss(f.reals["mean-loss"]);
+    b->set_sample_count(f.counts["loss-samples"]);
+    if (f.Has("loss-variance")) b->set_sample_variance(f.reals["loss-variance"]);
+    if (args.Has("loss-range")) {
+      const std::vector<std::string> range = args.GetList("loss-range");
+      double lo = 0, hi = 0;
+      if (range.size() != 2 || !absl::SimpleAtod(range[0], &lo) || !absl::SimpleAtod(range[1], &hi)) {
+        return std::string("--loss-range: expected two numbers A,B");
+      }
+      b->set_loss_min(lo);
+      b->set_loss_max(hi);
+    }
+  }
+  if (f.Has("kl-divergence")) {
+    v1::PacBayesEvidence* p = e->mutable_pac_bayes();
+    p->set_kl_divergence(f.reals["kl-divergence"]);
+    p->set_gibbs_empirical_risk(f.reals["gibbs-risk"]);
+    p->set_sample_count(f.counts["pac-samples"]);
+    const std::string target = args.Get("bound-target").value_or("gibbs");
+    if (target == "gibbs") {
+      p->set_target(v1::PAC_BAYES_TARGET_GIBBS);
+    } else if (target == "majority-vote") {
+      p->set_target(v1::PAC_BAYES_TARGET_MAJORITY_VOTE);
+    } else {
+      return std::string("--bound-target must be gibbs or majority-vote");
+    }
+  }
+  if (f.Has("compression-size")) {
+    v1::CompressionEvidence* k = e->mutable_compression();
+    k->set_compression_size(f.counts["compression-size"]);
+    k->set_sample_count(f.counts["compression-samples"]);
+    k->set_outside_error_count(f.counts["outside-errors"]);
+    k->set_size_fixed_in_advance(args.Has("size-fixed"));
+  }
+  if (f.Has("baseline-error-rate")) e->set_baseline_error_rate(f.reals["baseline-error-rate"]);
+  req->set_failure_probability(f.Has("delta") ? f.reals["delta"] : 0.05);
   return std::nullopt;
 }
 
@@ -189,10 +297,11 @@ int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ost
 
   v1::CertifyRequest request;
   if (auto input = parsed->Get("input")) {
-    for (const char* flag : {"errors", "samples", "train-errors", "train-samples", "vc-dimension",
-                             "hypothesis-count", "log-hypothesis-count", "baseline-error-rate",
-                             "delta", "family", "weights"}) {
-      if (parsed->Has(flag)) return Usage(err, absl::StrCat("--input excludes --", flag));
+    for (const OptionSpec& spec : specs) {
+      if (spec.name != "input" && spec.name != "output" && spec.name != "server" &&
+          spec.name != "timeout" && parsed->Has(spec.name)) {
+        return Usage(err, absl::StrCat("--input excludes --", spec.name));
+      }
     }
     auto text = ReadInput(*input);
     if (!text.ok()) {

@@ -16,9 +16,10 @@ core::SampleCounts Counts(std::uint64_t errors, std::uint64_t samples) {
   return core::SampleCounts{errors, samples};
 }
 
-void CapacityFromProto(const v1::Capacity& in, core::ClassCapacity* out,
-                       std::vector<FieldViolation>* violations) {
-  const std::string prefix = "evidence.training.capacity";
+}  // namespace
+
+void CapacityFromProto(const v1::Capacity& in, const std::string& prefix,
+                       core::ClassCapacity* out, std::vector<FieldViolation>* violations) {
   switch (in.measure_case()) {
     case v1::Capacity::kVcDimension:
       out->vc_dimension = in.vc_dimension();
@@ -38,8 +39,6 @@ void CapacityFromProto(const v1::Capacity& in, core::ClassCapacity* out,
   }
 }
 
-}  // namespace
-
 absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
   std::vector<FieldViolation> violations;
   core::CertifyRequest out;
@@ -50,10 +49,58 @@ absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRe
   if (e.has_training()) {
     core::TrainingEvidence t;
     t.counts = Counts(e.training().error_count(), e.training().sample_count());
-    CapacityFromProto(e.training().capacity(), &t.capacity, &violations);
+    CapacityFromProto(e.training().capacity(), "evidence.training.capacity", &t.capacity,
+                      &violations);
     out.evidence.training = t;
   }
   if (e.has_baseline_error_rate()) out.evidence.baseline_error_rate = e.baseline_error_rate();
+  if (e.has_bounded_loss()) {
+    const v1::BoundedLossEvidence& b = e.bounded_loss();
+    core::BoundedLossEvidence c;
+    c.mean_loss = b.mean_loss();
+    c.sample_variance = b.sample_variance();
+    c.samples = b.sample_count();
+    if (b.has_loss_min()) c.loss_min = b.loss_min();
+    if (b.has_loss_max()) c.loss_max = b.loss_max();
+    out.evidence.bounded_loss = c;
+  }
+  if (e.has_pac_bayes()) {
+    const v1::PacBayesEvidence& p = e.pac_bayes();
+    core::PacBayesEvidence c;
+    c.kl_divergence = p.kl_divergence();
+    c.gibbs_empirical_risk = p.gibbs_empirical_risk();
+    c.samples = p.sample_count();
+    switch (p.target()) {
+      case v1::PAC_BAYES_TARGET_GIBBS:
+        c.target = core::PacBayesTarget::kGibbs;
+        break;
+      case v1::PAC_BAYES_TARGET_MAJORITY_VOTE:
+        c.target = core::PacBayesTarget::kMajorityVote;
+        break;
+      default:
+        violations.push_back({"evidence.pac_bayes.target",
+                              "say which classifier is bounded: PAC_BAYES_TARGET_GIBBS or "
+                              "PAC_BAYES_TARGET_MAJORITY_VOTE"});
+    }
+    out.evidence.pac_bayes = c;
+  }
+  if (e.has_rademacher()) {
+    const v1::RademacherEvidence& r = e.rademacher();
+    core::RademacherEvidence c;
+    c.counts = Counts(r.error_count(), r.sample_count());
+    c.empirical_rademacher = r.empirical_rademacher();
+    c.sigma_draw_count = r.sigma_draw_count();
+    out.evidence.rademacher = c;
+  }
+  if (e.has_compression()) {
+    const v1::CompressionEvidence& k = e.compression();
+    core::CompressionEvidence c;
+    c.samples = k.sample_count();
+    c.compression_size = k.compression_size();
+    c.errors_outside = k.outside_error_count();
+    c.size_fixed_in_advance = k.size_fixed_in_advance();
+    out.evidence.compression = c;
+  }
   out.delta = in.failure_probability();
   switch (in.family_choice_case()) {
     case v1::CertifyRequest::kListed:

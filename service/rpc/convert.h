@@ -6,12 +6,23 @@
 #ifndef RISKBOUND_SERVICE_RPC_CONVERT_H_
 #define RISKBOUND_SERVICE_RPC_CONVERT_H_
 
+#include <string>
+#include <vector>
+
 #include "absl/status/statusor.h"
 #include "riskbound/v1/certify.pb.h"
 #include "riskbound/v1/common.pb.h"
 #include "service/core/certify.h"
+#include "service/core/field_violation.h"
 
 namespace riskbound::rpc {
+
+// CapacityFromProto
+// Fills `out` from the capacity oneof; appends violations named
+// "<prefix>.<field>" (e.g. prefix "evidence.training.capacity"). A missing
+// measure is left for the core's validation to name.
+void CapacityFromProto(const v1::Capacity& in, const std::string& prefix,
+                       core::ClassCapacity* out, std::vector<core::FieldViolation>* violations);
 
 // CertifyRequestFromProto
 // Returns the core request, or INVALID_ARGUMENT listing every bad field by its

@@ -1,5 +1,6 @@
 // The riskbound.v1.RiskBound service: thin handlers that convert, call the
-// core, convert back, and log one line per request at debug level.
+// core, convert back, and log one line per request at debug level (FinishCall).
+// Each handler is defined in its own file, <method>_handler.cc.
 #ifndef RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_
 #define RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_
 
