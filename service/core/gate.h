@@ -1,0 +1,182 @@
+// The promotion gate: PROMOTE, HOLD or REJECT a candidate model from its
+// evidence, a policy fixed in advance, and (optionally) a comparison with the
+// model now in service (the champion).
+//
+// Start here for the gate's decision logic. The comparison statistics live in
+// paired.h, the bounds in holdout.h / vc.h / finite_class.h (via the registry
+// in families.h), the hold-out planning in plan.h.
+//
+// Failure-probability (delta) accounting. Every confidence statement the
+// verdict rests on gets an explicit share of policy.delta, listed in
+// GateDecision::delta_ledger; the shares sum to at most policy.delta, so by
+// the union bound (Bonferroni; bounds.md 11.3) ALL the reported bounds hold
+// together with probability >= 1 - policy.delta. The split depends only on
+// the policy and on which kinds of evidence are present (never on their
+// values), so it is fixed before the data is seen:
+//
+//   without a champion                 with a champion
+//   risk upper bound    delta/2        risk upper bound        delta/4
+//   risk lower bound    delta/2        risk lower bound        delta/4
+//                                      difference upper bound  delta/4
+//                                      difference lower bound  delta/4
+//
+//  * The risk upper bound is the tightest of the K policy families that apply
+//    to the candidate's evidence, each computed at (its share)/K (the minimum
+//    over K bounds needs the union bound, bounds.md 11.3).
+//  * The risk lower bound is the one-sided Clopper-Pearson lower limit on the
+//    hold-out counts. Without hold-out counts there is no lower bound (a
+//    training-set bound cannot show that a model is bad); its share then goes
+//    to the upper bound.
+//  * Each difference bound is a Bonferroni Clopper-Pearson pair (paired.h), so
+//    its share is again halved between the two binomial limits it uses.
+//  * Upper and lower bounds on the same quantity form a two-sided interval:
+//    "for a two-sided interval, spend delta/2 on each side" (bounds.md 0.1).
+//  * The McNemar p-value is reported for information only: no verdict rule
+//    uses it, so it spends no delta.
+//
+// Consequence for errors of the gate: a model whose true error exceeds
+// max_risk is PROMOTED with probability at most the risk-upper share; a model
+// whose true error is at most max_risk is REJECTED on risk with probability
+// at most the risk-lower share; likewise for the champion comparison.
+#ifndef RISKBOUND_SERVICE_CORE_GATE_H_
+#define RISKBOUND_SERVICE_CORE_GATE_H_
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <utility>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "service/core/evidence.h"
+#include "service/core/paired.h"
+
+namespace riskbound::core {
+
+// The rules a candidate must pass, fixed before its evidence is seen.
+// API field paths: policy.max_risk, policy.failure_probability (= delta),
+// policy.allowed_families[i], policy.min_holdout_sample_count,
+// policy.max_regression, policy.plan_pass_probability.
+struct GatePolicy {
+  // epsilon: the highest tolerated true error, in (0, 1).
+  double max_risk = 0.05;
+  // delta: the failure probability of the whole verdict, in (0, 1).
+  double delta = 0.05;
+  // The bound families the risk upper bound may use. Those that apply to the
+  // candidate's evidence are used (union bound over them); at least one must
+  // apply. Empty: the hold-out exact binomial (Clopper-Pearson) only, the
+  // recommended gate bound (bounds.md 12).
+  std::vector<Family> allowed_families;
+  // Fewer hold-out samples than this: HOLD (more data needed), whatever the
+  // bounds say. 0: no minimum.
+  std::uint64_t min_holdout_samples = 0;
+  // Tolerated R(challenger) - R(champion) when a champion is given, in
+  // [-1, 1]: 0 = not worse than the champion; 0.01 = at most one point worse;
+  // negative = better by at least that much. Unset with a champion: 0.
+  std::optional<double> max_regression;
+  // Probability, in (0, 1), with which the planned extra hold-out samples of
+  // a HOLD should settle the verdict (bounds.md 9.6).
+  double plan_pass_probability = 0.8;
+};
+
+// The model asking for promotion. API paths: candidate.id, candidate.evidence.*
+struct GateCandidate {
+  std::string id;
+  Evidence evidence;
+};
+
+// The model in service, and how the two were compared. Exactly one of paired
+// and champion_holdout is set. API paths: champion.champion_id,
+// champion.paired.*, champion.champion_holdout.*
+struct ChampionComparison {
+  std::string champion_id;
+  // Both models scored on the same hold-out set as the candidate's
+  // evidence.holdout (when that is given, the counts must agree with it).
+  std::optional<PairedCounts> paired;
+  // Unpaired: the champion's errors on its own hold-out set; the candidate's
+  // evidence.holdout is then required. Weaker than paired (paired.h).
+  std::optional<SampleCounts> champion_holdout;
+};
+
+enum class Verdict {
+  kPromote = 1,
+  kHold = 2,
+  kReject = 3,
+};
+
+struct GateDecision {
+  Verdict verdict = Verdict::kHold;
+  // Why, in plain words, each naming the numbers it compares. The first
+  // reason states the verdict's deciding rule.
+  std::vector<std::string> reasons;
+  // The tightest risk upper bound (the one the verdict used). Its
+  // lower_bound is cleared: the gate's lower bound is risk_lower_bound.
+  Certificate risk_certificate;
+  // Clopper-Pearson lower limit on the true error (hold-out evidence only).
+  std::optional<double> risk_lower_bound;
+  // Limits on Delta = R(candidate) - R(champion) (champion given).
+  std::optional<double> difference_upper_bound;
+  std::optional<double> difference_lower_bound;
+  // Exact one-sided McNemar p-value (paired champion comparison only);
+  // informational, spends no delta.
+  std::optional<double> mcnemar_p_value;
+  // HOLD only, when a plan exists: how many more labelled hold-out samples
+  // are expected to settle the verdict (see DecideGate).
+  std::optional<std::uint64_t> additional_samples_to_settle;
+  // Every confidence statement the verdict used and the delta it spent, in
+  // the order computed; the deltas sum to at most policy.delta.
+  std::vector<std::pair<std::string, double>> delta_ledger;
+  // The bound families the risk bounds used, for the audit record: those of
+  // the risk upper bound in policy order, then kHoldoutExactBinomial for the
+  // risk lower bound when there are hold-out counts (each at most once).
+  std::vector<Family> families_used;
+};
+
+// VerdictName
+// Returns "PROMOTE", "HOLD" or "REJECT" (for reasons and logs).
+const char* VerdictName(Verdict verdict);
+
+// DecideGate
+// Returns the verdict for `candidate` under `policy`, compared with
+// `champion` when one is given. With U the risk upper bound, L the risk lower
+// bound, epsilon = policy.max_risk, DU / DL the difference limits and
+// t = policy.max_regression (0 if unset):
+//  * REJECT when L > epsilon, or DL > t (worse than the champion beyond the
+//    tolerance, with confidence): more data is not expected to help. REJECT
+//    also wins over PROMOTE when training-set and hold-out bounds contradict
+//    each other (U <= epsilon < L).
+//  * PROMOTE when U <= epsilon and (champion given) DU <= t.
+//  * HOLD otherwise, and whenever the hold-out set has fewer than
+//    policy.min_holdout_samples samples (the policy's "more data needed";
+//    the bounds are still computed and reported). A HOLD carries
+//    additional_samples_to_settle when a plan exists:
+//      - risk unsettled, observed hold-out rate p < epsilon: PlanHoldout
+//        (plan.h) with target epsilon, expected rate p, the delta share of
+//        the exact binomial upper bound, policy.plan_pass_probability and
+//        the samples already held (bounds.md 9.6);
+//      - risk unsettled, p >= epsilon: the mirror-image plan for a REJECT: the
+//        smallest total n at which P(Bin(n, p) >= k_min(n)) reaches the pass
+//        probability, k_min(n) being the fewest errors whose Clopper-Pearson
+//        lower limit exceeds epsilon (found by exponential search and
+//        bisection, so a small n, not always the very smallest);
+//      - champion comparison unsettled (paired only): the smallest total n at
+//        which the difference limits, with the observed disagreement rates
+//        held fixed, settle the comparison (anticipated-rate plan, bounds.md
+//        9.5 style: about even odds, no pass-probability margin);
+//      - below the minimum: at least the samples missing to reach it.
+//    The largest of these is reported.
+// Errors: INVALID_ARGUMENT naming every bad field by its API path
+// (policy.max_risk, policy.failure_probability, policy.allowed_families[i],
+// policy.max_regression, policy.plan_pass_probability, candidate.id,
+// candidate.evidence.*, champion.champion_id, champion.paired.*,
+// champion.champion_holdout.*, champion), including evidence no allowed
+// family can use and paired counts that disagree with the candidate's
+// hold-out counts. Never returns NaN or Inf in a decision.
+// Thread-safe; no shared state.
+absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
+                                        const GateCandidate& candidate,
+                                        const std::optional<ChampionComparison>& champion);
+
+}  // namespace riskbound::core
+
+#endif  // RISKBOUND_SERVICE_CORE_GATE_H_
