@@ -1,0 +1,455 @@
+#include "service/core/plan.h"
+
+#include <algorithm>
+#include <cmath>
+#include <exception>
+#include <functional>
+#include <iterator>
+#include <limits>
+#include <map>
+#include <utility>
+#include <vector>
+
+#include <boost/math/distributions/binomial.hpp>
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
+#include "service/core/families.h"
+#include "service/core/field_violation.h"
+#include "service/core/numeric.h"
+#include "service/core/vc.h"
+
+namespace riskbound::core {
+namespace {
+
+using Predicate = std::function<bool(std::uint64_t)>;
+
+constexpr char kBeyondRange[] =
+    "more than 2^53 (about 9.0e15) samples would be needed: the target is out of reach "
+    "in practice; raise the target risk or lower the capacity";
+
+// k(n) = ceil(rate * n) in double precision, at most n. Non-decreasing in n
+// (IEEE multiplication by a fixed positive rate is monotone).
+std::uint64_t ErrorsAt(double rate, std::uint64_t n) {
+  if (rate <= 0.0) return 0;
+  const double k = std::ceil(rate * static_cast<double>(n));
+  if (k >= static_cast<double>(n)) return n;
+  return static_cast<std::uint64_t>(k);
+}
+
+// Counts evaluations of a bound predicate ok(n, k).
+class CountedBound {
+ public:
+  CountedBound(std::function<bool(std::uint64_t, std::uint64_t)> ok,
+               std::uint64_t* evaluations)
+      : ok_(std::move(ok)), evaluations_(evaluations) {}
+  bool operator()(std::uint64_t n, std::uint64_t k) const {
+    ++*evaluations_;
+    return ok_(n, k);
+  }
+
+ private:
+  std::function<bool(std::uint64_t, std::uint64_t)> ok_;
+  std::uint64_t* evaluations_;
+};
+
+// Smallest n in [lo, kPlanMaxSamples] with ok(n, k(n)) and ok(s, k(s)) for
+// every tooth start s (first n' with k(n') > k(n'-1)) in (n, n + ceil(2/rate)]:
+// the sawtooth-robust answer of the file comment. Within a tooth k is fixed
+// and the bound falls in n, so these points carry the window's maximum.
+// NOT_FOUND when even kPlanMaxSamples fails.
+absl::StatusOr<std::uint64_t> RobustSmallest(double rate, std::uint64_t lo,
+                                             const CountedBound& ok) {
+  std::uint64_t window = 0;
+  if (rate > 0.0) {
+    const double w = std::ceil(2.0 / rate);
+    window = w >= static_cast<double>(kPlanMaxSamples) ? kPlanMaxSamples
+                                                        : static_cast<std::uint64_t>(w);
+  }
+  const Predicate robust = [&](std::uint64_t n) {
+    if (!ok(n, ErrorsAt(rate, n))) return false;
+    const std::uint64_t end = n + std::min(window, kPlanMaxSamples - n);
+    std::uint64_t cur = n;
+    while (cur < end) {
+      const std::uint64_t k = ErrorsAt(rate, cur);
+      const absl::StatusOr<std::uint64_t> next = SmallestSatisfying(
+          cur + 1, end, [&](std::uint64_t s) { return ErrorsAt(rate, s) > k; });
+      if (!next.ok()) break;  // no further tooth inside the window
+      if (!ok(*next, ErrorsAt(rate, *next))) return false;
+      cur = *next;
+    }
+    return true;
+  };
+  return SmallestSatisfying(lo, kPlanMaxSamples, robust);
+}
+
+// Smallest x in [lo, hi] with ok(x), for a monotone ok, searching outward
+// from a guess: exponential steps away from it, then bisection, so the cost
+// is about 2 log2 |answer - guess| calls. NOT_FOUND when ok(hi) is false.
+absl::StatusOr<std::uint64_t> SmallestNear(std::uint64_t guess, std::uint64_t lo,
+                                           std::uint64_t hi, const Predicate& ok) {
+  guess = std::clamp(guess, lo, hi);
+  std::uint64_t step = 1;
+  if (ok(guess)) {
+    std::uint64_t good = guess;
+    while (good > lo) {
+      const std::uint64_t probe = good - lo > step ? good - step : lo;
+      if (!ok(probe)) return SmallestSatisfying(probe + 1, good, ok);
+      good = probe;
+      step *= 2;
+    }
+    return good;
+  }
+  std::uint64_t bad = guess;
+  while (true) {
+    if (bad == hi) return absl::NotFoundError("no value in the search range satisfies the target");
+    const std::uint64_t probe = hi - bad > step ? bad + step : hi;
+    if (ok(probe)) return SmallestSatisfying(bad + 1, probe, ok);
+    bad = probe;
+    step *= 2;
+  }
+}
+
+// The upper bound HoldoutExactBinomial reports: the Clopper-Pearson limit,
+// clipped to [0, 1] and never below k/n (as MakeCertificate does).
+double HoldoutUpper(std::uint64_t n, std::uint64_t k, double delta, bool* exact) {
+  const TailLimit t = BinomialUpperLimit(n, k, delta);
+  if (!t.exact && exact != nullptr) *exact = false;
+  const double v = std::isnan(t.value) ? 1.0 : std::clamp(t.value, 0.0, 1.0);
+  return std::max(v, static_cast<double>(k) / static_cast<double>(n));
+}
+
+// P(Bin(n, p) <= k) from Boost.Math; where Boost cannot converge (n beyond
+// about 1e13) the Chernoff lower bound 1 - exp(-n kl((k+1)/n || p)) stands in,
+// which never overstates the pass probability.
+double PassProbability(std::uint64_t n, std::uint64_t k, double p, bool* exact) {
+  if (k >= n || p <= 0.0) return 1.0;
+  if (p >= 1.0) return 0.0;
+  const double nd = static_cast<double>(n);
+  try {
+    const double v = boost::math::cdf(
+        boost::math::binomial_distribution<>(nd, p), static_cast<double>(k));
+    if (std::isfinite(v) && v >= 0.0 && v <= 1.0) return v;
+  } catch (const std::exception&) {
+    // Fall through to the Chernoff bound.
+  }
+  *exact = false;
+  const double q = (static_cast<double>(k) + 1.0) / nd;
+  if (q <= p) return 0.0;
+  return std::clamp(-std::expm1(-nd * BernoulliKl(q, p)), 0.0, 1.0);
+}
+
+std::string Unreachable(double target, double expected, absl::string_view what) {
+  if (target >= 1.0) {
+    return "a target risk of 1 or more is met by every model and says nothing; no "
+           "bound is planned for it: choose a target below 1";
+  }
+  return absl::StrFormat(
+      "the %s %g is not below the target risk %g: an upper bound on the true error "
+      "never falls below the error rate itself, so no sample size reaches the target",
+      std::string(what), expected, target);
+}
+
+void CheckHeld(std::uint64_t held, std::vector<FieldViolation>* v) {
+  if (held > kPlanMaxSamples) {
+    v->push_back({"samples_held", absl::StrCat("must be at most 2^53 = ", kPlanMaxSamples,
+                                               ", got ", held)});
+  }
+}
+
+void CheckTarget(double target, std::vector<FieldViolation>* v) {
+  if (!std::isfinite(target) || target <= 0.0) {
+    v->push_back({"target_risk", absl::StrCat("must be a finite risk above 0, got ",
+                                              std::isnan(target) ? std::string("NaN")
+                                                                 : absl::StrCat(target))});
+  }
+}
+
+// ceil(ln delta / log1p(-eps)), or nullopt when it exceeds kPlanMaxSamples.
+std::optional<std::uint64_t> ZeroFailureSamples(double eps, double delta) {
+  if (eps >= 1.0) return 1;
+  const double n = std::ceil(std::log(delta) / std::log1p(-eps));
+  if (!(n <= static_cast<double>(kPlanMaxSamples))) return std::nullopt;
+  return std::max<std::uint64_t>(1, static_cast<std::uint64_t>(n));
+}
+
+}  // namespace
+
+absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request) {
+  std::vector<FieldViolation> violations;
+  CheckTarget(request.target_risk, &violations);
+  CheckProbabilityClosed("expected_risk", request.expected_risk, &violations);
+  CheckProbabilityOpen("failure_probability", request.delta, &violations);
+  if (request.pass_probability.has_value()) {
+    CheckProbabilityOpen("pass_probability", *request.pass_probability, &violations);
+  }
+  CheckHeld(request.samples_held, &violations);
+  if (!violations.empty()) return InvalidFields(violations);
+
+  const double eps = request.target_risk;
+  const double p = request.expected_risk;
+  const double delta = request.delta;
+  HoldoutPlan plan;
+  if (eps < 1.0) plan.zero_failure_samples = ZeroFailureSamples(eps, delta).value_or(0);
+  if (eps >= 1.0 || p >= eps) {
+    plan.reason = Unreachable(eps, p, "expected error rate");
+    return plan;
+  }
+  if (plan.zero_failure_samples == 0) {
+    // Even with no errors more than 2^53 samples are needed.
+    plan.reason = kBeyondRange;
+    return plan;
+  }
+
+  const CountedBound ok(
+      [&](std::uint64_t n, std::uint64_t k) {
+        return HoldoutUpper(n, k, delta, nullptr) <= eps;
+      },
+      &plan.bound_evaluations);
+  // No n below the zero-failure size can work: Binbar(n, k) >= Binbar(n, 0).
+  // One below it guards against rounding in the closed form.
+  const absl::StatusOr<std::uint64_t> n95 =
+      RobustSmallest(p, std::max<std::uint64_t>(1, plan.zero_failure_samples - 1), ok);
+  if (!n95.ok()) {
+    plan.reason = kBeyondRange;
+    return plan;
+  }
+  plan.expected_rate_samples = *n95;
+  plan.samples = *n95;
+  plan.rule = absl::StrFormat(
+      "smallest n at which the exact binomial bound at ceil(%g n) errors is <= %g, and "
+      "stays so for the next ceil(2/p) samples (formula sheet 9.5)",
+      p, eps);
+
+  // k_max(n) = max { k : Binbar(n, k) <= eps }, given a count `known` that
+  // certifies eps at n (so k_max >= known); the search runs upward from it.
+  // Binbar(n, n) = 1 > eps bounds it.
+  const auto k_max = [&](std::uint64_t n, std::uint64_t known) {
+    const absl::StatusOr<std::uint64_t> first_bad = SmallestSatisfying(
+        known + 1, n, [&](std::uint64_t k) { return !ok(n, k); });
+    return first_bad.ok() ? *first_bad - 1 : known;
+  };
+  std::uint64_t tolerated = k_max(*n95, ErrorsAt(p, *n95));
+
+  if (request.pass_probability.has_value()) {
+    const double target = *request.pass_probability;
+    // s_K: the smallest n at which K errors still certify eps; it grows with
+    // K. k_max is constant on [s_K, s_{K+1}) and P(pass) falls there, so the
+    // smallest n with P(pass) >= target is s_K for the first K whose
+    // P(pass at s_K) reaches it. Known s values bracket new ones (s_K is
+    // monotone in K), and Binbar(n, K) >= K/n gives s_K >= K/eps.
+    std::map<std::uint64_t, std::uint64_t> s_known;
+    const auto first_feasible = [&](std::uint64_t k) -> absl::StatusOr<std::uint64_t> {
+      if (auto it = s_known.find(k); it != s_known.end()) return it->second;
+      std::uint64_t lo = k + 1;
+      const double by_rate = std::ceil(static_cast<double>(k) / eps);
+      if (by_rate < static_cast<double>(kPlanMaxSamples)) {
+        lo = std::max(lo, static_cast<std::uint64_t>(by_rate));
+      }
+      std::uint64_t hi = kPlanMaxSamples;
+      // Guess s_K by a straight line through the two nearest known points
+      // (interpolation when K lies between them), else start from lo.
+      std::vector<std::pair<double, double>> near;
+      auto above = s_known.upper_bound(k);
+      if (above != s_known.end()) hi = above->second;
+      auto below = above;
+      if (below != s_known.begin()) {
+        --below;
+        lo = std::max(lo, below->second);
+        near.emplace_back(static_cast<double>(below->first),
+                          static_cast<double>(below->second));
+        if (above == s_known.end() && below != s_known.begin()) {
+          const auto second = std::prev(below);
+          near.emplace_back(static_cast<double>(second->first),
+                            static_cast<double>(second->second));
+        }
+      }
+      if (above != s_known.end()) {
+        near.emplace_back(static_cast<double>(above->first),
+                          static_cast<double>(above->second));
+      }
+      lo = std::min(lo, hi);
+      std::uint64_t guess = lo;
+      if (near.size() == 2) {
+        const auto [k1, s1] = near[0];
+        const auto [k2, s2] = near[1];
+        const double g = s1 + (s2 - s1) / (k2 - k1) * (static_cast<double>(k) - k1);
+        if (g > static_cast<double>(lo) && g < static_cast<double>(hi)) {
+          guess = static_cast<std::uint64_t>(g);
+        }
+      }
+      const Predicate feasible = [&](std::uint64_t n) { return ok(n, k); };
+      absl::StatusOr<std::uint64_t> s = SmallestNear(guess, lo, hi, feasible);
+      if (!s.ok() && hi < kPlanMaxSamples) {
+        // Beyond ~1e13 samples Boost's inversion gives way to the (larger)
+        // kl-Chernoff bound for some counts and not others, so the bracket
+        // from a neighbouring count can fail; search the full range then.
+        s = SmallestSatisfying(lo, kPlanMaxSamples, feasible);
+      }
+      if (s.ok()) s_known[k] = *s;
+      return s;
+    };
+    const Predicate passes = [&](std::uint64_t k) {
+      const absl::StatusOr<std::uint64_t> s = first_feasible(k);
+      // A count whose s_K lies beyond the range stops the search upward; the
+      // final check below reports it as unreachable if it is the answer.
+      if (!s.ok()) return true;
+      bool unused = true;
+      return PassProbability(*s, k_max(*s, k), p, &unused) >= target;
+    };
+    // Search K outward from the 9.5 answer's tolerated count: exponential
+    // steps, then bisection. NOTE: beyond ~1e8 samples P(pass at s_K) is not
+    // exactly monotone in K at the finest scale (s_K moves by ~1/eps with
+    // rounding jitter), so the answer is an s_K that reaches the request while
+    // the previous tooth start falls short, possibly not the very first one.
+    const std::uint64_t guess = tolerated;
+    const std::uint64_t k_limit =
+        static_cast<std::uint64_t>(eps * static_cast<double>(kPlanMaxSamples)) + 1;
+    const absl::StatusOr<std::uint64_t> k_star = SmallestNear(guess, 0, k_limit, passes);
+    const absl::StatusOr<std::uint64_t> s_star =
+        k_star.ok() ? first_feasible(*k_star) : k_star;
+    if (!s_star.ok()) {
+      plan.reason = kBeyondRange;
+      plan.samples = 0;
+      return plan;
+    }
+    const std::uint64_t good = *k_star;
+    const std::uint64_t n96 = *s_star;
+    plan.pass_probability_samples = n96;
+    plan.samples = n96;
+    tolerated = k_max(n96, good);
+    plan.rule = absl::StrFormat(
+        "smallest n at which a model with true error rate %g passes (exact binomial "
+        "bound <= %g) with probability >= %g (formula sheet 9.6)",
+        p, eps, target);
+    plan.notes.emplace_back(
+        "the pass probability is a sawtooth in n: a few samples more than planned can "
+        "lower it until the hold-out set tolerates one more error");
+  }
+
+  plan.reachable = true;
+  plan.tolerated_errors = tolerated;
+  bool exact = true;
+  HoldoutUpper(plan.samples, plan.tolerated_errors, delta, &exact);
+  plan.pass_probability_at_plan =
+      PassProbability(plan.samples, plan.tolerated_errors, p, &exact);
+  plan.additional_samples =
+      plan.samples > request.samples_held ? plan.samples - request.samples_held : 0;
+  if (!exact) {
+    plan.notes.emplace_back(
+        "at this size the exact binomial computations did not converge; the "
+        "kl-Chernoff relaxations (conservative) stood in, as they do in certificates");
+  }
+  return plan;
+}
+
+absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request) {
+  std::vector<FieldViolation> violations;
+  const FamilySpec* spec = FindFamily(request.family);
+  bool uses_vc = false;
+  if (spec == nullptr) {
+    violations.push_back({"family", "unknown bound family"});
+  } else {
+    Evidence probe;
+    probe.training = TrainingEvidence{{0, 1}, request.capacity};
+    Evidence vc_probe;
+    vc_probe.training = TrainingEvidence{{0, 1}, {}};
+    vc_probe.training->capacity.vc_dimension = 1;
+    Evidence finite_probe;
+    finite_probe.training = TrainingEvidence{{0, 1}, {}};
+    finite_probe.training->capacity.log_hypothesis_count = 0.0;
+    uses_vc = spec->applies(vc_probe);
+    if (!uses_vc && !spec->applies(finite_probe)) {
+      violations.push_back(
+          {"family", absl::StrCat(spec->slug,
+                                  " is not a training-set family; plan a hold-out set "
+                                  "with the hold-out planner")});
+    } else if (!spec->applies(probe)) {
+      violations.push_back({"capacity", absl::StrCat(spec->slug, " needs ", spec->needs)});
+    } else if (!uses_vc) {
+      CheckNonNegativeFinite("capacity.log_hypothesis_count",
+                             *request.capacity.log_hypothesis_count, &violations);
+    }
+  }
+  CheckProbabilityClosed("expected_empirical_risk", request.expected_empirical_risk,
+                         &violations);
+  CheckTarget(request.target_risk, &violations);
+  CheckProbabilityOpen("failure_probability", request.delta, &violations);
+  CheckHeld(request.samples_held, &violations);
+  if (!violations.empty()) return InvalidFields(violations);
+
+  const double eps = request.target_risk;
+  const double r = request.expected_empirical_risk;
+  const double delta = request.delta;
+  TrainingPlan plan;
+  plan.notes.push_back(absl::StrFormat(
+      "the bound is evaluated at m samples with ceil(%g m) training errors (at least the "
+      "anticipated count), through the %s family as a certificate would be",
+      r, std::string(spec->slug)));
+
+  // Comparisons from the literature (different guarantees; see plan.h).
+  const auto fits = [](double m) -> std::optional<std::uint64_t> {
+    if (!(m <= static_cast<double>(kPlanMaxSamples))) return std::nullopt;
+    return std::max<std::uint64_t>(1, static_cast<std::uint64_t>(std::ceil(m)));
+  };
+  if (eps < 1.0) {
+    if (uses_vc) {
+      const double h = static_cast<double>(*request.capacity.vc_dimension);
+      // Blumer, Ehrenfeucht, Haussler & Warmuth (1989), Thm 2.1(ii)(b).
+      plan.realizable_reference = fits(std::max(4.0 / eps * std::log2(2.0 / delta),
+                                                8.0 * h / eps * std::log2(13.0 / eps)));
+      // Formula sheet 9.2: VC confidence (our conservative form, +1/m) <= eps/2.
+      // Falls in m for m > h/2 and exceeds 1 below, so the predicate is monotone.
+      const absl::StatusOr<std::uint64_t> agn =
+          SmallestSatisfying(1, kPlanMaxSamples, [&](std::uint64_t m) {
+            const double md = static_cast<double>(m);
+            return VcConfidence(h, md, delta) + 1.0 / md <= eps / 2.0;
+          });
+      if (agn.ok()) plan.agnostic_reference = *agn;
+      plan.notes.emplace_back(
+          "realizable_reference: Blumer, Ehrenfeucht, Haussler & Warmuth (1989) sample "
+          "size for a consistent learner to reach error <= target (comparison only)");
+      plan.notes.emplace_back(
+          "agnostic_reference: smallest m with VC confidence (with +1/m) <= target/2, so "
+          "that ERM is within the target of the best in the class (comparison only)");
+      plan.notes.emplace_back(
+          "VC bounds fall with m only once m > h/2; below that they are vacuous");
+    } else {
+      const double log_h = *request.capacity.log_hypothesis_count;
+      // Shalev-Shwartz & Ben-David (2014), Cor. 2.3 and Cor. 4.6.
+      plan.realizable_reference = fits((log_h - std::log(delta)) / eps);
+      plan.agnostic_reference = fits(2.0 * (log_h + std::log(2.0 / delta)) / (eps * eps));
+      plan.notes.emplace_back(
+          "realizable_reference: ceil((ln|H| + ln(1/delta)) / target), a consistent "
+          "hypothesis of a finite class (Blumer et al. 1987) (comparison only)");
+      plan.notes.emplace_back(
+          "agnostic_reference: ceil(2 (ln|H| + ln(2/delta)) / target^2), ERM within the "
+          "target of the best in the class (Shalev-Shwartz & Ben-David 2014, Cor. 4.6) "
+          "(comparison only)");
+    }
+  }
+
+  if (eps >= 1.0 || r >= eps) {
+    plan.reason = Unreachable(eps, r, "expected empirical risk");
+    return plan;
+  }
+  const CountedBound ok(
+      [&](std::uint64_t m, std::uint64_t k) {
+        Evidence e;
+        e.training = TrainingEvidence{{k, m}, request.capacity};
+        return spec->compute(e, delta).upper_bound <= eps;
+      },
+      &plan.bound_evaluations);
+  const absl::StatusOr<std::uint64_t> m = RobustSmallest(r, 1, ok);
+  if (!m.ok()) {
+    plan.reason = kBeyondRange;
+    return plan;
+  }
+  plan.reachable = true;
+  plan.samples = *m;
+  plan.additional_samples =
+      plan.samples > request.samples_held ? plan.samples - request.samples_held : 0;
+  return plan;
+}
+
+}  // namespace riskbound::core

@@ -1,0 +1,159 @@
+// Sample-size planning: how many hold-out or training examples make a bound
+// reach a target risk.
+//
+// Every answer is found by exact integer search over the bound the service
+// itself would report (numeric.h SmallestSatisfying: exponential search, then
+// bisection; logarithmic in the answer), never by an asymptotic formula; the
+// closed-form sample sizes of the literature are given beside it as labelled
+// comparisons. Answers cover sample sizes up to kPlanMaxSamples = 2^53
+// (about 9.0e15); a target that needs more is reported unreachable.
+//
+// Anticipated errors. A plan at an anticipated error rate r evaluates the bound
+// at n samples with k(n) = ceil(r n) errors (r n in double precision): the
+// bound for at least the anticipated count, never rounded down. Because k(n)
+// steps up by one every ~1/r samples, n -> bound(n, k(n)) is a sawtooth: it
+// falls while k stays fixed and jumps up when k grows. A plain "first n with
+// bound <= target" can be followed by failures, so the plans take the smallest
+// n from which the bound stays <= target for a further window of ceil(2/r)
+// samples (formula sheet 9.3, 9.5). Within a tooth the bound falls, so the
+// window is checked at n and at each tooth start (first n' with a larger
+// k(n')) inside it. At the answer n the bound is <= target and at n - 1 it is
+// above it.
+#ifndef RISKBOUND_SERVICE_CORE_PLAN_H_
+#define RISKBOUND_SERVICE_CORE_PLAN_H_
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "service/core/certify.h"
+#include "service/core/evidence.h"
+
+namespace riskbound::core {
+
+// The largest sample size a plan searches: 2^53, where counts are exact
+// doubles (the largest count Certify accepts).
+inline constexpr std::uint64_t kPlanMaxSamples = kMaxSampleCount;
+
+struct HoldoutPlanRequest {
+  // epsilon: the risk the exact binomial (Clopper-Pearson) bound must reach.
+  // In (0, 1); 1 or more is reported unreachable (no bound says anything there).
+  double target_risk = 0.05;
+  // p: the error rate the caller expects the model to show, in [0, 1].
+  // 0 plans for no errors at all.
+  double expected_risk = 0.0;
+  // Failure probability of the bound, in (0, 1).
+  double delta = 0.05;
+  // If set, in (0, 1): plan for this probability that the bound will in fact
+  // reach the target when the true error rate is p (formula sheet 9.6).
+  std::optional<double> pass_probability;
+  // Hold-out examples the caller already has (for additional_samples).
+  std::uint64_t samples_held = 0;
+};
+
+struct HoldoutPlan {
+  // False when no sample size up to kPlanMaxSamples reaches the target;
+  // samples, tolerated_errors and additional_samples are then 0 (the other
+  // fields are filled where they can be computed).
+  bool reachable = false;
+  // Why the target cannot be reached, in plain words (empty when reachable).
+  std::string reason;
+  // The plan: without pass_probability, expected_rate_samples; with it,
+  // pass_probability_samples.
+  std::uint64_t samples = 0;
+  // k_max(samples) = max { k : Binbar(samples, k, delta) <= target }: the most
+  // errors the hold-out set may show and still certify the target.
+  std::uint64_t tolerated_errors = 0;
+  // ceil(ln delta / ln(1 - target)): enough when no error at all is expected
+  // (formula sheet 9.4; Hanley & Lippman-Hand 1983). 0 when beyond 2^53.
+  std::uint64_t zero_failure_samples = 0;
+  // max(0, samples - samples_held).
+  std::uint64_t additional_samples = 0;
+  // P(Bin(samples, p) <= tolerated_errors): the probability that a model with
+  // true error rate p passes at the planned size.
+  double pass_probability_at_plan = 0.0;
+  // Smallest n with Binbar(n, ceil(p n), delta) <= target, robust to the
+  // sawtooth (formula sheet 9.5).
+  std::uint64_t expected_rate_samples = 0;
+  // With pass_probability: smallest n with P(pass at n) >= pass_probability
+  // (formula sheet 9.6); the pass probability is itself a sawtooth in n, so it
+  // can dip below the request again for a few samples after this n.
+  std::optional<std::uint64_t> pass_probability_samples;
+  // Which rule set `samples`, in plain words.
+  std::string rule;
+  // Remarks (relaxations used, sawtooth warnings).
+  std::vector<std::string> notes;
+  // Bound evaluations the searches used (a cost figure; logarithmic in n).
+  std::uint64_t bound_evaluations = 0;
+};
+
+// PlanHoldout
+// Plans the size of a hold-out set for the exact binomial bound
+// (HoldoutExactBinomial; formula sheet 9.4-9.6).
+// Returns OK with reachable = false and a reason when target_risk >= 1,
+// expected_risk >= target_risk, or the answer exceeds kPlanMaxSamples.
+// Errors: INVALID_ARGUMENT naming each bad field: target_risk (NaN, <= 0),
+// expected_risk (NaN, outside [0, 1]), failure_probability (outside (0, 1)),
+// pass_probability (outside (0, 1)), samples_held (> 2^53).
+// Never returns NaN or Inf. Thread-safe; no shared state.
+absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request);
+
+struct TrainingPlanRequest {
+  // kVcAdditive, kVcRelative, kOccamHoeffding or kOccamKl (any registered
+  // family that works on training evidence alone).
+  Family family = Family::kVcAdditive;
+  // The capacity measure the family reads (vc_dimension or
+  // log_hypothesis_count).
+  ClassCapacity capacity;
+  // The training error rate the caller expects, in [0, 1].
+  double expected_empirical_risk = 0.0;
+  // epsilon, in (0, 1); 1 or more is reported unreachable.
+  double target_risk = 0.1;
+  // Failure probability, in (0, 1).
+  double delta = 0.05;
+  std::uint64_t samples_held = 0;
+};
+
+struct TrainingPlan {
+  bool reachable = false;
+  std::string reason;
+  // Smallest m with family bound(m, ceil(r m)) <= target, robust to the
+  // sawtooth (see the file comment), by exact integer search.
+  std::uint64_t samples = 0;
+  std::uint64_t additional_samples = 0;
+  // Comparison only (a different guarantee: a consistent learner reaches
+  // error <= target with probability >= 1 - delta): VC families, Blumer,
+  // Ehrenfeucht, Haussler & Warmuth (1989) Thm 2.1(ii)(b); finite classes,
+  // ceil((ln|H| + ln(1/delta)) / target) (Blumer et al. 1987;
+  // Shalev-Shwartz & Ben-David 2014, Cor. 2.3). Unset beyond 2^53.
+  std::optional<std::uint64_t> realizable_reference;
+  // Comparison only (ERM within target of the best in the class): finite
+  // classes, ceil(2 (ln|H| + ln(2/delta)) / target^2) (Shalev-Shwartz &
+  // Ben-David 2014, Cor. 4.6); VC families, the smallest m with our VC
+  // confidence (with its +1/m) <= target/2 (formula sheet 9.2).
+  std::optional<std::uint64_t> agnostic_reference;
+  // Remarks: the counting convention, regime warnings, what the references mean.
+  std::vector<std::string> notes;
+  std::uint64_t bound_evaluations = 0;
+};
+
+// PlanTraining
+// Plans the training-sample size at which a training-set family's bound at
+// the anticipated empirical risk reaches the target. The bound is the
+// registered family's own computation (families.h), so the answer agrees with
+// a Certify call at (ceil(r m) errors, m samples).
+// Returns OK with reachable = false and a reason when target_risk >= 1,
+// expected_empirical_risk >= target_risk, or the answer exceeds
+// kPlanMaxSamples.
+// Errors: INVALID_ARGUMENT naming each bad field: family (unknown or not a
+// training-set family), capacity (missing the measure the family uses) /
+// capacity.log_hypothesis_count (not finite, < 0), expected_empirical_risk,
+// target_risk, failure_probability, samples_held.
+// Never returns NaN or Inf. Thread-safe; no shared state.
+absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request);
+
+}  // namespace riskbound::core
+
+#endif  // RISKBOUND_SERVICE_CORE_PLAN_H_

@@ -1,0 +1,129 @@
+// Structural risk minimization (SRM): choosing a model along a nested
+// structure of classes by the smallest guaranteed bound.
+//
+// Setting: classes H_1 ⊂ H_2 ⊂ ... of growing capacity, fixed (with their
+// failure-probability weights) before the training sample was seen; in each
+// class a model was fitted on the training sample and its training errors
+// counted. Every candidate's bound is a training-set bound (uniform over its
+// class) computed at its share delta_k = delta * w_k of the failure
+// probability. By the union bound all of them hold together with probability
+// >= 1 - sum_k delta_k >= 1 - delta, so the smallest of them is a valid bound
+// on the chosen model's true error.
+// Source: Vapnik (1995, 1998), the SRM principle (chapter numbers from
+// memory); Shalev-Shwartz & Ben-David (2014) ch. 7 (SRM with weights w_k,
+// Theorem 7.4 from memory); weights
+// 6/(pi^2 k^2) from sum_k 1/k^2 = pi^2/6 (formula sheet 11.3-11.4).
+#ifndef RISKBOUND_SERVICE_CORE_SELECT_H_
+#define RISKBOUND_SERVICE_CORE_SELECT_H_
+
+#include <cstddef>
+#include <string>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "service/core/evidence.h"
+
+namespace riskbound::core {
+
+// One class of the structure and the model fitted in it.
+struct Candidate {
+  // Caller's name for the candidate; non-empty and unique in the request.
+  std::string id;
+  // Errors of the fitted model on the training sample.
+  SampleCounts training;
+  // Capacity of the class: vc_dimension for the VC families,
+  // log_hypothesis_count for the finite-class (Occam) families.
+  ClassCapacity capacity;
+};
+
+// How the failure probability delta is spread over the candidates.
+enum class DeltaSpread {
+  // w_k = 1/K for K candidates.
+  kUniform = 1,
+  // w_k = 6/(pi^2 k^2), k = 1-based position: the weights of a structure that
+  // may keep growing (they sum to 1 over all k, so candidates can be appended
+  // later without changing the earlier weights).
+  kInverseSquare = 2,
+  // SelectRequest::weights, one per candidate.
+  kCallerWeights = 3,
+};
+
+struct SelectRequest {
+  // The structure, ordered by growing (non-decreasing) capacity.
+  std::vector<Candidate> candidates;
+  // A training-set family: kVcAdditive, kVcRelative, kOccamHoeffding, kOccamKl
+  // (any registered family that works on training evidence alone).
+  Family family = Family::kVcAdditive;
+  // Failure probability of the selected bound, in (0, 1).
+  double delta = 0.05;
+  DeltaSpread spread = DeltaSpread::kInverseSquare;
+  // kCallerWeights only: one weight per candidate, each in (0, 1], sum <= 1.
+  std::vector<double> weights;
+  // Absolute distance on the bound within which another candidate counts as
+  // a near tie (the choice is then "fragile"). Finite, >= 0.
+  double fragility_tolerance = 0.01;
+};
+
+struct CandidateResult {
+  std::string id;
+  // The capacity the family used (h, or ln |H|).
+  double capacity = 0.0;
+  double empirical_risk = 0.0;
+  // upper_bound - empirical_risk.
+  double penalty = 0.0;
+  // The candidate's bound at delta (below), clipped to [0, 1].
+  double upper_bound = 1.0;
+  // delta * weight: the failure probability spent on this candidate.
+  double delta = 0.0;
+  // True when the bound says nothing (>= 1).
+  bool vacuous = true;
+  // The weight w_k (delta = request delta * weight).
+  double weight = 0.0;
+  // False when a conservative relaxation stood in for an exact computation.
+  bool exact = true;
+  // The family's remarks on this candidate.
+  std::vector<std::string> notes;
+};
+
+struct SelectResult {
+  // One row per candidate, in request order.
+  std::vector<CandidateResult> candidates;
+  // Index of the smallest bound; ties go to the earlier (smaller-capacity)
+  // candidate.
+  std::size_t chosen_index = 0;
+  // True when some other candidate's bound is within fragility_tolerance of
+  // the chosen one: the data do not clearly separate them.
+  bool fragile = false;
+  // Indices (ascending, chosen excluded) of the candidates whose bound is
+  // within fragility_tolerance of the chosen bound.
+  std::vector<std::size_t> within_tolerance;
+  // How delta was spread, in plain words.
+  std::string delta_rule;
+  // sum_k delta_k: the chosen bound holds with probability >= 1 - total_delta.
+  double total_delta = 0.0;
+  // Plain-words remarks (every bound vacuous, ...).
+  std::vector<std::string> notes;
+};
+
+// SelectStructure
+// Computes every candidate's bound with the registered family (so a
+// candidate's bound equals a Certify call with that family at delta_k) and
+// selects the smallest.
+// Errors: INVALID_ARGUMENT naming every bad field by path: candidates (empty),
+// candidates[i].id (empty or duplicated), candidates[i].training.sample_count
+// (0 or > 2^53), candidates[i].training.error_count (> sample_count),
+// candidates[i].capacity (missing the measure the family uses, or not finite
+// and >= 0), candidates[i].capacity.vc_dimension /
+// .log_hypothesis_count (smaller than the previous candidate's: a structure
+// must be nested), family (unknown, or not a training-set family), weights /
+// weights[i] (wrong size, outside (0, 1], sum above 1, or given without
+// kCallerWeights), failure_probability (outside (0, 1)), fragility_tolerance.
+// Never returns NaN or Inf.
+// REQUIRES: the candidates, their order, the family and the weights were
+// fixed before the training sample was seen.
+// Thread-safe; no shared state.
+absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request);
+
+}  // namespace riskbound::core
+
+#endif  // RISKBOUND_SERVICE_CORE_SELECT_H_

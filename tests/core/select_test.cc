@@ -1,0 +1,297 @@
+// Structural risk minimization (service/core/select.h): the choice on
+// structures whose right answer is worked out by hand, the failure-probability
+// weights, agreement with Certify, ties, the fragility flag, bad input.
+#include "service/core/select.h"
+
+#include <cmath>
+#include <numbers>
+
+#include "absl/strings/str_cat.h"
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+#include "service/core/certify.h"
+#include "service/core/field_violation.h"
+#include "tests/testing/status_matchers.h"
+
+namespace riskbound::core {
+namespace {
+
+using ::riskbound::testing::StatusIs;
+using ::testing::ElementsAre;
+using ::testing::HasSubstr;
+using ::testing::IsEmpty;
+
+Candidate Vc(const std::string& id, std::uint64_t errors, std::uint64_t samples,
+             std::uint64_t h) {
+  Candidate c;
+  c.id = id;
+  c.training = {errors, samples};
+  c.capacity.vc_dimension = h;
+  return c;
+}
+
+Candidate Finite(const std::string& id, std::uint64_t errors, std::uint64_t samples,
+                 double log_h) {
+  Candidate c;
+  c.id = id;
+  c.training = {errors, samples};
+  c.capacity.log_hypothesis_count = log_h;
+  return c;
+}
+
+// Hand computation (formula sheet 3.1, Occam-Hoeffding; union bound 11.3):
+// m = 1000, delta = 0.06 over 3 candidates -> delta_k = 0.02, ln(1/0.02) = 3.912.
+//   A: ln|H| = 10,  300 errors: 0.30 + sqrt((10  + 3.912)/2000) = 0.383403
+//   B: ln|H| = 50,  100 errors: 0.10 + sqrt((50  + 3.912)/2000) = 0.264183
+//   C: ln|H| = 200,  90 errors: 0.09 + sqrt((200 + 3.912)/2000) = 0.409306
+// ERM (smallest training error) would take C; SRM takes B.
+TEST(SelectTest, OccamStructureHandWorked) {
+  SelectRequest req;
+  req.family = Family::kOccamHoeffding;
+  req.delta = 0.06;
+  req.spread = DeltaSpread::kUniform;
+  req.candidates = {Finite("A", 300, 1000, 10), Finite("B", 100, 1000, 50),
+                    Finite("C", 90, 1000, 200)};
+  auto got = SelectStructure(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  ASSERT_EQ(got->candidates.size(), 3u);
+  EXPECT_NEAR(got->candidates[0].upper_bound, 0.383403, 1e-6);
+  EXPECT_NEAR(got->candidates[1].upper_bound, 0.264183, 1e-6);
+  EXPECT_NEAR(got->candidates[2].upper_bound, 0.409306, 1e-6);
+  EXPECT_EQ(got->chosen_index, 1u);
+  EXPECT_EQ(got->candidates[1].id, "B");
+  EXPECT_DOUBLE_EQ(got->candidates[1].capacity, 50.0);
+  EXPECT_DOUBLE_EQ(got->candidates[1].empirical_risk, 0.1);
+  EXPECT_NEAR(got->candidates[1].penalty, 0.164183, 1e-6);
+  for (const CandidateResult& c : got->candidates) EXPECT_DOUBLE_EQ(c.delta, 0.02);
+  EXPECT_NEAR(got->total_delta, 0.06, 1e-15);
+  EXPECT_FALSE(got->fragile);
+  EXPECT_THAT(got->within_tolerance, IsEmpty());
+  EXPECT_THAT(got->delta_rule, HasSubstr("delta/3"));
+}
+
+// Hand computation (formula sheet 1 with the +1/m we implement, weights 11.4):
+// m = 10000, delta = 0.05, w_k = 6/(pi^2 k^2):
+//   k=1: h=10,   2500 errors, delta_1 = 0.030396: 0.25 + 0.095336 + 0.0001 = 0.345436
+//   k=2: h=100,   500 errors, delta_2 = 0.007599: 0.05 + 0.252210 + 0.0001 = 0.302310
+//   k=3: h=1000,  100 errors, delta_3 = 0.003377: 0.01 + 0.632678 + 0.0001 = 0.642778
+// with conf_k = sqrt((h (ln(2m/h) + 1) + ln(4/delta_k)) / m). The middle class wins.
+TEST(SelectTest, VcStructureInverseSquareHandWorked) {
+  SelectRequest req;
+  req.family = Family::kVcAdditive;
+  req.delta = 0.05;
+  req.spread = DeltaSpread::kInverseSquare;
+  req.candidates = {Vc("h10", 2500, 10000, 10), Vc("h100", 500, 10000, 100),
+                    Vc("h1000", 100, 10000, 1000)};
+  auto got = SelectStructure(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  EXPECT_NEAR(got->candidates[0].upper_bound, 0.345436, 1e-6);
+  EXPECT_NEAR(got->candidates[1].upper_bound, 0.302310, 1e-6);
+  EXPECT_NEAR(got->candidates[2].upper_bound, 0.642778, 1e-6);
+  EXPECT_NEAR(got->candidates[0].delta, 0.030396, 1e-6);
+  EXPECT_NEAR(got->candidates[1].delta, 0.007599, 1e-6);
+  EXPECT_NEAR(got->candidates[2].delta, 0.003377, 1e-6);
+  EXPECT_EQ(got->chosen_index, 1u);
+  EXPECT_FALSE(got->fragile);
+  EXPECT_LT(got->total_delta, 0.05);
+}
+
+// Source: formula sheet row 11.4: w_k = 6/(pi^2 k^2) for k = 1..5 are
+// 0.6079, 0.1520, 0.0675, 0.0380, 0.0243 (first five sum to 0.8898).
+TEST(SelectTest, InverseSquareWeightsMatchFormulaSheet) {
+  SelectRequest req;
+  req.family = Family::kOccamKl;
+  req.delta = 0.1;
+  req.spread = DeltaSpread::kInverseSquare;
+  for (int i = 0; i < 5; ++i) {
+    req.candidates.push_back(Finite(absl::StrCat("c", i), 10, 500, 2.0 * (i + 1)));
+  }
+  auto got = SelectStructure(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  const double sheet[] = {0.6079, 0.1520, 0.0675, 0.0380, 0.0243};
+  for (int i = 0; i < 5; ++i) {
+    EXPECT_NEAR(got->candidates[i].weight, sheet[i], 5e-5) << i;
+    EXPECT_NEAR(got->candidates[i].delta, 0.1 * sheet[i], 5e-6) << i;
+  }
+  EXPECT_NEAR(got->candidates[0].weight, 6.0 / (std::numbers::pi * std::numbers::pi), 1e-15);
+  EXPECT_NEAR(got->total_delta, 0.1 * 0.8898, 5e-6);
+  EXPECT_THAT(got->delta_rule, HasSubstr("6/(pi^2 k^2)"));
+}
+
+// Every candidate's bound is the registered family's bound at delta_k: the
+// same number a Certify call gives with that family listed and weight w_k
+// (Certify computes it at delta * w_k). Checked for the four training-set
+// families, every candidate and every spread.
+TEST(SelectTest, EveryBoundEqualsCertifyAtItsShare) {
+  const Family families[] = {Family::kVcAdditive, Family::kVcRelative,
+                             Family::kOccamHoeffding, Family::kOccamKl};
+  const DeltaSpread spreads[] = {DeltaSpread::kUniform, DeltaSpread::kInverseSquare,
+                                 DeltaSpread::kCallerWeights};
+  for (Family family : families) {
+    for (DeltaSpread spread : spreads) {
+      SelectRequest req;
+      req.family = family;
+      req.delta = 0.05;
+      req.spread = spread;
+      if (spread == DeltaSpread::kCallerWeights) req.weights = {0.5, 0.25, 0.125, 0.125};
+      for (int i = 0; i < 4; ++i) {
+        Candidate c = Vc(absl::StrCat("k", i), 400 - 80 * i, 5000, 5 * (i + 1) * (i + 1));
+        c.capacity.log_hypothesis_count = 3.0 * (i + 1) * (i + 1);
+        req.candidates.push_back(c);
+      }
+      auto got = SelectStructure(req);
+      ASSERT_TRUE(got.ok()) << got.status();
+      for (std::size_t i = 0; i < req.candidates.size(); ++i) {
+        CertifyRequest cert;
+        cert.evidence.training =
+            TrainingEvidence{req.candidates[i].training, req.candidates[i].capacity};
+        cert.delta = req.delta;
+        cert.choice = FamilyChoice::kListed;
+        cert.families = {family};
+        cert.delta_weights = {got->candidates[i].weight};
+        auto c = Certify(cert);
+        ASSERT_TRUE(c.ok()) << c.status();
+        EXPECT_EQ(got->candidates[i].upper_bound, c->certificates[0].upper_bound)
+            << static_cast<int>(family) << " candidate " << i;
+        EXPECT_EQ(got->candidates[i].delta, c->certificates[0].delta);
+        EXPECT_EQ(got->candidates[i].penalty, c->certificates[0].penalty);
+        // The chosen bound is the smallest.
+        EXPECT_LE(got->candidates[got->chosen_index].upper_bound,
+                  got->candidates[i].upper_bound);
+      }
+      if (spread == DeltaSpread::kCallerWeights) {
+        EXPECT_DOUBLE_EQ(got->candidates[1].delta, 0.05 * 0.25);
+        EXPECT_DOUBLE_EQ(got->total_delta, 0.05);
+      }
+    }
+  }
+}
+
+// Equal bounds (the same class listed twice at equal weights) go to the
+// earlier, smaller-capacity candidate, and the choice is flagged fragile.
+TEST(SelectTest, TiesGoToSmallerCapacity) {
+  SelectRequest req;
+  req.family = Family::kVcRelative;
+  req.spread = DeltaSpread::kUniform;
+  req.candidates = {Vc("a", 50, 20000, 20), Vc("b", 50, 20000, 20), Vc("c", 50, 20000, 40)};
+  auto got = SelectStructure(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  EXPECT_EQ(got->candidates[0].upper_bound, got->candidates[1].upper_bound);
+  EXPECT_EQ(got->chosen_index, 0u);
+  EXPECT_TRUE(got->fragile);
+  EXPECT_THAT(got->within_tolerance, ::testing::Contains(1u));
+}
+
+// Fragility: the flag follows the absolute tolerance on the bound. From the
+// hand-worked Occam structure above the runner-up (A, 0.383403) is 0.119220
+// above the chosen B (0.264183).
+TEST(SelectTest, FragileFlagFollowsTolerance) {
+  SelectRequest req;
+  req.family = Family::kOccamHoeffding;
+  req.delta = 0.06;
+  req.spread = DeltaSpread::kUniform;
+  req.candidates = {Finite("A", 300, 1000, 10), Finite("B", 100, 1000, 50),
+                    Finite("C", 90, 1000, 200)};
+  req.fragility_tolerance = 0.119;
+  auto got = SelectStructure(req);
+  ASSERT_TRUE(got.ok());
+  EXPECT_FALSE(got->fragile);
+  req.fragility_tolerance = 0.1193;
+  got = SelectStructure(req);
+  ASSERT_TRUE(got.ok());
+  EXPECT_TRUE(got->fragile);
+  EXPECT_THAT(got->within_tolerance, ElementsAre(0u));
+  req.fragility_tolerance = 0.2;  // C is 0.145123 above B
+  got = SelectStructure(req);
+  EXPECT_THAT(got->within_tolerance, ElementsAre(0u, 2u));
+  EXPECT_EQ(got->chosen_index, 1u);
+}
+
+TEST(SelectTest, AllVacuousSaysSo) {
+  SelectRequest req;
+  req.family = Family::kVcAdditive;
+  req.candidates = {Vc("a", 10, 100, 500), Vc("b", 0, 100, 1000)};
+  auto got = SelectStructure(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  EXPECT_TRUE(got->candidates[0].vacuous);
+  EXPECT_TRUE(got->candidates[1].vacuous);
+  EXPECT_EQ(got->chosen_index, 0u);
+  ASSERT_FALSE(got->notes.empty());
+  EXPECT_THAT(got->notes[0], HasSubstr("vacuous"));
+  for (const CandidateResult& c : got->candidates) {
+    EXPECT_TRUE(std::isfinite(c.upper_bound));
+    EXPECT_TRUE(std::isfinite(c.penalty));
+  }
+}
+
+std::vector<std::string> Fields(const absl::Status& status) {
+  std::vector<std::string> out;
+  for (const FieldViolation& v : FieldViolationsOf(status)) out.push_back(v.field);
+  return out;
+}
+
+TEST(SelectTest, InvalidInputNamesTheField) {
+  SelectRequest req;
+  req.family = Family::kVcAdditive;
+  EXPECT_THAT(SelectStructure(req),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("candidates")));
+
+  // Empty and duplicate ids, bad counts, a missing capacity.
+  req.candidates = {Vc("", 1, 10, 1), Vc("x", 11, 10, 2), Vc("x", 0, 0, 3),
+                    Finite("y", 0, 10, 1.0)};
+  auto got = SelectStructure(req);
+  EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument));
+  EXPECT_THAT(Fields(got.status()),
+              ElementsAre("candidates[0].id", "candidates[1].training.error_count",
+                          "candidates[2].id", "candidates[2].training.sample_count",
+                          "candidates[3].capacity"));
+
+  // Not nested.
+  req.candidates = {Vc("a", 1, 100, 10), Vc("b", 1, 100, 5)};
+  got = SelectStructure(req);
+  EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("nested")));
+  EXPECT_THAT(Fields(got.status()), ElementsAre("candidates[1].capacity.vc_dimension"));
+
+  // A bad ln|H| for a finite-class family.
+  req.family = Family::kOccamKl;
+  req.candidates = {Finite("a", 1, 100, -1.0), Finite("b", 1, 100, NAN)};
+  EXPECT_THAT(Fields(SelectStructure(req).status()),
+              ElementsAre("candidates[0].capacity.log_hypothesis_count",
+                          "candidates[1].capacity.log_hypothesis_count"));
+
+  // Hold-out family, delta, tolerance.
+  req = SelectRequest{};
+  req.candidates = {Vc("a", 1, 100, 10)};
+  req.family = Family::kHoldoutExactBinomial;
+  req.delta = 1.0;
+  req.fragility_tolerance = -0.1;
+  got = SelectStructure(req);
+  EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument,
+                            HasSubstr("not a training-set family")));
+  EXPECT_THAT(Fields(got.status()),
+              ElementsAre("failure_probability", "fragility_tolerance", "family"));
+  req.family = static_cast<Family>(999);
+  req.delta = 0.05;
+  req.fragility_tolerance = 0.0;
+  EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("family"));
+
+  // Weights.
+  req = SelectRequest{};
+  req.candidates = {Vc("a", 1, 100, 10), Vc("b", 1, 100, 20)};
+  req.spread = DeltaSpread::kCallerWeights;
+  req.weights = {0.5};
+  EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("weights"));
+  req.weights = {0.0, 1.5};
+  EXPECT_THAT(Fields(SelectStructure(req).status()),
+              ElementsAre("weights[0]", "weights[1]", "weights"));
+  req.weights = {0.7, 0.4};
+  EXPECT_THAT(SelectStructure(req),
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("sum to at most 1")));
+  req.weights = {0.6, 0.4};
+  EXPECT_TRUE(SelectStructure(req).ok());
+  req.spread = DeltaSpread::kUniform;
+  EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("weights"));
+}
+
+}  // namespace
+}  // namespace riskbound::core
