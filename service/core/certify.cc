@@ -14,6 +14,13 @@ namespace {
 // Relative slack allowed on a weight sum that should be <= 1 (rounding).
 constexpr double kWeightSumSlack = 1e-12;
 
+// The families that read evidence.training.capacity: their certificates carry
+// the capacity's provenance notes (ClassCapacity::notes).
+bool UsesTrainingCapacity(Family f) {
+  return f == Family::kVcAdditive || f == Family::kVcRelative ||
+         f == Family::kOccamHoeffding || f == Family::kOccamKl;
+}
+
 void CheckCounts(const std::string& prefix, const SampleCounts& counts,
                  std::vector<FieldViolation>* out) {
   if (counts.samples == 0) {
@@ -30,14 +37,120 @@ void CheckCounts(const std::string& prefix, const SampleCounts& counts,
   }
 }
 
+// The fixed rule documented at FamilyChoice::kRecommended (certify.h).
 std::vector<const FamilySpec*> RecommendedFamily(const Evidence& e) {
   Family f = Family::kVcAdditive;
   if (e.holdout.has_value()) {
     f = Family::kHoldoutExactBinomial;
+  } else if (e.bounded_loss.has_value()) {
+    f = Family::kBoundedKl;
+  } else if (e.compression.has_value()) {
+    f = Family::kSampleCompression;
+  } else if (e.pac_bayes.has_value()) {
+    f = Family::kPacBayesKl;
   } else if (e.training.has_value() && e.training->capacity.log_hypothesis_count) {
     f = Family::kOccamKl;
+  } else if (e.rademacher.has_value()) {
+    f = Family::kRademacher;
   }
   return {FindFamily(f)};
+}
+
+// A sample count: at least 1 and at most 2^53.
+void CheckSampleCount(const std::string& field, std::uint64_t samples,
+                      std::vector<FieldViolation>* out) {
+  if (samples == 0) {
+    out->push_back({field, "must be at least 1"});
+  } else if (samples > kMaxSampleCount) {
+    out->push_back({field, absl::StrCat("must be at most 2^53 = ", kMaxSampleCount,
+                                        ", got ", samples)});
+  }
+}
+
+// Relative slack on the largest possible sample variance (rounding in the
+// caller's variance computation).
+constexpr double kVarianceSlack = 1e-9;
+
+void CheckBoundedLoss(const BoundedLossEvidence& b, std::vector<FieldViolation>* out) {
+  const std::string p = "evidence.bounded_loss";
+  CheckSampleCount(p + ".sample_count", b.samples, out);
+  const bool min_ok = std::isfinite(b.loss_min);
+  const bool max_ok = std::isfinite(b.loss_max);
+  if (!min_ok) out->push_back({p + ".loss_min", "must be a finite number"});
+  if (!max_ok) out->push_back({p + ".loss_max", "must be a finite number"});
+  bool range_ok = min_ok && max_ok;
+  if (range_ok && !(b.loss_min < b.loss_max)) {
+    out->push_back({p + ".loss_max",
+                    absl::StrFormat("must be larger than loss_min (got loss_min = %g, "
+                                    "loss_max = %g)", b.loss_min, b.loss_max)});
+    range_ok = false;
+  } else if (range_ok && !std::isfinite(b.loss_max - b.loss_min)) {
+    out->push_back({p + ".loss_max", "loss_max - loss_min overflows a double"});
+    range_ok = false;
+  }
+  if (!std::isfinite(b.mean_loss)) {
+    out->push_back({p + ".mean_loss", "must be a finite number"});
+  } else if (range_ok && (b.mean_loss < b.loss_min || b.mean_loss > b.loss_max)) {
+    out->push_back({p + ".mean_loss",
+                    absl::StrFormat("%g lies outside [loss_min, loss_max] = [%g, %g]",
+                                    b.mean_loss, b.loss_min, b.loss_max)});
+  }
+  if (!std::isfinite(b.sample_variance) || b.sample_variance < 0.0) {
+    out->push_back({p + ".sample_variance", "must be a finite number >= 0"});
+  } else if (range_ok && b.samples >= 2) {
+    // In units of (b - a)^2: at most 1/4 * n/(n-1) for values in [a, b].
+    const double width = b.loss_max - b.loss_min;
+    const double n = static_cast<double>(b.samples);
+    const double limit = 0.25 * n / (n - 1.0);
+    if (b.sample_variance / width / width > limit * (1.0 + kVarianceSlack)) {
+      out->push_back(
+          {p + ".sample_variance",
+           absl::StrFormat("%g exceeds (loss_max - loss_min)^2 / 4 * n / (n - 1) = %g, the "
+                           "largest unbiased variance of values in [loss_min, loss_max]",
+                           b.sample_variance, limit * width * width)});
+    }
+  }
+}
+
+void CheckPacBayes(const PacBayesEvidence& pb, std::vector<FieldViolation>* out) {
+  const std::string p = "evidence.pac_bayes";
+  CheckNonNegativeFinite(p + ".kl_divergence", pb.kl_divergence, out);
+  CheckProbabilityClosed(p + ".gibbs_empirical_risk", pb.gibbs_empirical_risk, out);
+  CheckSampleCount(p + ".sample_count", pb.samples, out);
+  if (pb.target != PacBayesTarget::kGibbs && pb.target != PacBayesTarget::kMajorityVote) {
+    out->push_back({p + ".target", "must be the Gibbs classifier or the majority vote"});
+  }
+}
+
+void CheckRademacher(const RademacherEvidence& r, std::vector<FieldViolation>* out) {
+  const std::string p = "evidence.rademacher";
+  CheckCounts(p, r.counts, out);
+  const double v = r.empirical_rademacher;
+  if (r.sigma_draw_count == 0) {
+    if (!std::isfinite(v) || v < 0.0 || v > 1.0) {
+      out->push_back({p + ".empirical_rademacher",
+                      "must be in [0, 1]: the exact expectation over sigma of a {-1,+1} "
+                      "class is never negative nor above 1"});
+    }
+  } else if (!std::isfinite(v) || v < -1.0 || v > 1.0) {
+    out->push_back({p + ".empirical_rademacher",
+                    "must be in [-1, 1] (a Monte-Carlo average over sigma draws)"});
+  }
+}
+
+void CheckCompression(const CompressionEvidence& c, std::vector<FieldViolation>* out) {
+  const std::string p = "evidence.compression";
+  CheckSampleCount(p + ".sample_count", c.samples, out);
+  if (c.compression_size > c.samples) {
+    out->push_back({p + ".compression_size",
+                    absl::StrCat("a compression set of ", c.compression_size,
+                                 " examples exceeds the ", c.samples, " training examples")});
+  } else if (c.errors_outside > c.samples - c.compression_size) {
+    out->push_back({p + ".outside_error_count",
+                    absl::StrCat(c.errors_outside, " errors exceed the ",
+                                 c.samples - c.compression_size,
+                                 " examples outside the compression set")});
+  }
 }
 
 }  // namespace
@@ -46,10 +159,15 @@ absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolati
   std::vector<FieldViolation> local;
   std::vector<FieldViolation>* v = out != nullptr ? out : &local;
   const std::size_t before = v->size();
-  if (!evidence.holdout.has_value() && !evidence.training.has_value()) {
+  if (!evidence.holdout.has_value() && !evidence.training.has_value() &&
+      !evidence.bounded_loss.has_value() && !evidence.pac_bayes.has_value() &&
+      !evidence.rademacher.has_value() && !evidence.compression.has_value()) {
     v->push_back({"evidence",
-                  "no evidence: give hold-out counts (evidence.holdout) or training "
-                  "counts with a capacity (evidence.training)"});
+                  "no evidence: give hold-out counts (evidence.holdout), training "
+                  "counts with a capacity (evidence.training), a bounded loss "
+                  "(evidence.bounded_loss), a PAC-Bayes posterior (evidence.pac_bayes), "
+                  "a Rademacher complexity (evidence.rademacher) or a compression "
+                  "scheme (evidence.compression)"});
   }
   if (evidence.holdout.has_value()) CheckCounts("evidence.holdout", *evidence.holdout, v);
   if (evidence.training.has_value()) {
@@ -69,6 +187,10 @@ absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolati
   if (evidence.baseline_error_rate.has_value()) {
     CheckProbabilityOpen("evidence.baseline_error_rate", *evidence.baseline_error_rate, v);
   }
+  if (evidence.bounded_loss.has_value()) CheckBoundedLoss(*evidence.bounded_loss, v);
+  if (evidence.pac_bayes.has_value()) CheckPacBayes(*evidence.pac_bayes, v);
+  if (evidence.rademacher.has_value()) CheckRademacher(*evidence.rademacher, v);
+  if (evidence.compression.has_value()) CheckCompression(*evidence.compression, v);
   if (out != nullptr) return v->size() == before ? absl::OkStatus() : InvalidFields(*v);
   return InvalidFields(local);
 }
@@ -151,17 +273,30 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request) {
   for (std::size_t i = 0; i < k; ++i) {
     const double delta_i = request.delta * weights[i];
     Certificate c = chosen[i]->compute(request.evidence, delta_i);
-    if (request.evidence.baseline_error_rate.has_value() &&
+    if (UsesTrainingCapacity(c.family) && request.evidence.training.has_value()) {
+      const std::vector<std::string>& n = request.evidence.training->capacity.notes;
+      c.notes.insert(c.notes.end(), n.begin(), n.end());
+    }
+    // The baseline is an error rate: it says nothing about a loss in other units.
+    if (request.evidence.baseline_error_rate.has_value() && !c.bounded_loss_units &&
         c.upper_bound >= *request.evidence.baseline_error_rate) {
       c.vacuous = true;
     }
     result.total_delta += delta_i;
     result.certificates.push_back(std::move(c));
   }
-  for (std::size_t i = 1; i < k; ++i) {
-    if (result.certificates[i].upper_bound <
-        result.certificates[result.tightest_index].upper_bound) {
+  // Error-rate certificates and bounded-loss certificates (other units) are
+  // never compared: the tightest is taken among the error-rate ones when
+  // there are any, else among the bounded-loss ones (all on the same loss).
+  bool any_error_rate = false;
+  for (const Certificate& c : result.certificates) any_error_rate |= !c.bounded_loss_units;
+  bool found = false;
+  for (std::size_t i = 0; i < k; ++i) {
+    const Certificate& c = result.certificates[i];
+    if (any_error_rate && c.bounded_loss_units) continue;
+    if (!found || c.upper_bound < result.certificates[result.tightest_index].upper_bound) {
       result.tightest_index = i;
+      found = true;
     }
   }
   if (k == 1) {

@@ -21,8 +21,11 @@ inline constexpr std::uint64_t kMaxSampleCount = 1ULL << 53;
 // How the families to compute are chosen.
 enum class FamilyChoice {
   // One family picked from the kinds of evidence present (never from their
-  // values): hold-out -> exact binomial; else finite class -> Occam kl; else
-  // VC dimension -> VC additive. It gets the whole delta.
+  // values), first match wins: hold-out -> exact binomial; else bounded loss
+  // -> bounded kl; else compression scheme -> sample compression; else
+  // PAC-Bayes -> PAC-Bayes-kl; else finite class -> Occam kl; else
+  // Rademacher -> Rademacher; else VC dimension -> VC additive. It gets the
+  // whole delta.
   kRecommended,
   // Exactly the families listed by the caller.
   kListed,
@@ -48,6 +51,9 @@ struct CertifyResult {
   // and kAllApplicable, in the caller's order for kListed.
   std::vector<Certificate> certificates;
   // Index into certificates of the smallest upper bound (first on ties).
+  // Bounded-loss certificates (Certificate::bounded_loss_units, in the loss's
+  // own units) are only candidates when no error-rate certificate was
+  // computed: the two kinds bound different quantities.
   std::size_t tightest_index = 0;
   // The failure probability of the tightest certificate: the sum of the
   // deltas spent (<= the requested delta).

@@ -23,4 +23,28 @@ Certificate MakeCertificate(Family family, double delta, double empirical_risk,
   return c;
 }
 
+Certificate MakeCertificateInRange(Family family, double delta, double empirical,
+                                   double upper_bound,
+                                   std::optional<double> lower_bound,
+                                   double range_min, double range_max) {
+  Certificate c;
+  c.family = family;
+  c.delta = delta;
+  c.bounded_loss_units = true;
+  c.range_min = range_min;
+  c.range_max = range_max;
+  c.empirical_risk = std::isnan(empirical) ? range_max : std::clamp(empirical, range_min, range_max);
+  const double upper =
+      std::isnan(upper_bound) ? range_max : std::clamp(upper_bound, range_min, range_max);
+  c.upper_bound = std::max(upper, c.empirical_risk);
+  if (lower_bound.has_value()) {
+    const double lower =
+        std::isnan(*lower_bound) ? range_min : std::clamp(*lower_bound, range_min, range_max);
+    c.lower_bound = std::min(lower, c.empirical_risk);
+  }
+  c.penalty = c.upper_bound - c.empirical_risk;
+  c.vacuous = c.upper_bound >= range_max;
+  return c;
+}
+
 }  // namespace riskbound::core

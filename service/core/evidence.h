@@ -28,6 +28,11 @@ struct ClassCapacity {
   // Natural logarithm of the number of hypotheses, ln |H|, of a finite class
   // fixed before the training sample was seen.
   std::optional<double> log_hypothesis_count;
+  // Where the capacity came from, in plain words (e.g. "VC dimension <= 41
+  // (upper bound) from the capacity catalogue: ..."). Certify appends these
+  // to the notes of every certificate that uses this capacity (the VC and
+  // Occam families). Empty for a capacity the caller gave as a number.
+  std::vector<std::string> notes;
 };
 
 // Errors on the training sample plus the capacity of the class the model was
@@ -35,6 +40,73 @@ struct ClassCapacity {
 struct TrainingEvidence {
   SampleCounts counts;
   ClassCapacity capacity;
+};
+
+// Per-example losses of one fixed model on a hold-out set, for a loss bounded
+// in [loss_min, loss_max] (not 0-1): clipped losses, Brier score, per-example
+// costs. API paths: evidence.bounded_loss.{mean_loss, sample_variance,
+// sample_count, loss_min, loss_max}.
+struct BoundedLossEvidence {
+  // Mean of the per-example losses, in the loss's own units.
+  double mean_loss = 0.0;
+  // Unbiased (ddof = 1) sample variance of the per-example losses, in the
+  // loss's units squared. Ignored when samples = 1.
+  double sample_variance = 0.0;
+  // Number of hold-out examples n.
+  std::uint64_t samples = 0;
+  // The range every per-example loss lies in, fixed before the data were seen.
+  double loss_min = 0.0;
+  double loss_max = 1.0;
+};
+
+// Which classifier a PAC-Bayes certificate is about.
+enum class PacBayesTarget {
+  // The Gibbs (randomized) classifier: a fresh h ~ Q for every prediction.
+  kGibbs = 0,
+  // The Q-weighted majority vote, R(MV_Q) <= 2 R(Q).
+  kMajorityVote = 1,
+};
+
+// A PAC-Bayes posterior Q against a prior P fixed before the sample was seen.
+// API paths: evidence.pac_bayes.{kl_divergence, gibbs_empirical_risk,
+// sample_count, target}.
+struct PacBayesEvidence {
+  // KL(Q || P) in nats.
+  double kl_divergence = 0.0;
+  // E_{h~Q} R_emp(h) on the m training examples, in [0, 1].
+  double gibbs_empirical_risk = 0.0;
+  // Number of training examples m (not counting data the prior was fit on).
+  std::uint64_t samples = 0;
+  PacBayesTarget target = PacBayesTarget::kGibbs;
+};
+
+// Training errors plus the empirical Rademacher complexity of the hypothesis
+// class on the same sample. API paths: evidence.rademacher.{error_count,
+// sample_count, empirical_rademacher, sigma_draw_count}.
+struct RademacherEvidence {
+  SampleCounts counts;
+  // Rhat_S(H) = E_sigma sup_h (1/m) sum_i sigma_i h(x_i) for the {-1, +1}
+  // valued hypothesis class (Mohri et al. convention: no absolute value, no
+  // factor 2), with the supremum computed exactly.
+  double empirical_rademacher = 0.0;
+  // 0: empirical_rademacher is the exact expectation over sigma. N > 0: it is
+  // the average over N independent sigma draws (McDiarmid slack added).
+  std::uint64_t sigma_draw_count = 0;
+};
+
+// A sample-compression scheme: the model is rebuilt from compression_size of
+// the training examples by a reconstruction fixed before the data were seen.
+// API paths: evidence.compression.{sample_count, compression_size,
+// outside_error_count, size_fixed_in_advance}.
+struct CompressionEvidence {
+  // Number of training examples m.
+  std::uint64_t samples = 0;
+  // Size d of the compression set (e.g. the number of support vectors).
+  std::uint64_t compression_size = 0;
+  // Errors k of the reconstructed model on the m - d examples outside it.
+  std::uint64_t errors_outside = 0;
+  // True when d was chosen before the sample was seen (saves a factor m).
+  bool size_fixed_in_advance = false;
 };
 
 // Everything a caller knows about one trained classifier.
@@ -46,6 +118,14 @@ struct Evidence {
   // Error rate of a trivial classifier on the same task (e.g. always
   // predicting the majority class). A certificate at or above it is vacuous.
   std::optional<double> baseline_error_rate;
+  // Mean of a bounded (non 0-1) loss on a hold-out set.
+  std::optional<BoundedLossEvidence> bounded_loss;
+  // A PAC-Bayes posterior and its Gibbs empirical risk.
+  std::optional<PacBayesEvidence> pac_bayes;
+  // Training errors and the empirical Rademacher complexity.
+  std::optional<RademacherEvidence> rademacher;
+  // A sample-compression scheme.
+  std::optional<CompressionEvidence> compression;
 };
 
 // The bound families. Values are stable: they are stored in audit records.
@@ -57,13 +137,22 @@ enum class Family {
   kVcRelative = 5,
   kOccamHoeffding = 6,
   kOccamKl = 7,
+  kBoundedHoeffding = 8,
+  kBoundedKl = 9,
+  kBoundedEmpiricalBernstein = 10,
+  kPacBayesMcAllester = 11,
+  kPacBayesKl = 12,
+  kPacBayesCatoni = 13,
+  kRademacher = 14,
+  kSampleCompression = 15,
 };
 
 // A certificate: an upper bound on a model's true error that holds with
 // probability at least 1 - delta over the draw of the sample.
 struct Certificate {
   Family family = Family::kHoldoutExactBinomial;
-  // Upper bound on the true error, clipped to [0, 1].
+  // Upper bound on the true error, clipped to [0, 1]; for bounded-loss
+  // families, on the expected loss, clipped to [range_min, range_max].
   double upper_bound = 1.0;
   // One-sided lower bound at the same delta, for families that have one.
   // Upper and lower together hold with probability >= 1 - 2 delta.
@@ -81,6 +170,14 @@ struct Certificate {
   bool exact = true;
   // Plain-words remarks (relaxations used, regime warnings).
   std::vector<std::string> notes;
+  // True when the certificate bounds the expected value of a bounded loss in
+  // its own units (families kBounded*), not a 0-1 error rate; such bounds are
+  // never compared with error-rate bounds or with baseline_error_rate.
+  bool bounded_loss_units = false;
+  // The range the bounded quantity lives in: [0, 1] for error rates,
+  // [loss_min, loss_max] for bounded-loss families.
+  double range_min = 0.0;
+  double range_max = 1.0;
 };
 
 // EmpiricalRate
@@ -96,6 +193,18 @@ inline double EmpiricalRate(const SampleCounts& counts) {
 Certificate MakeCertificate(Family family, double delta, double empirical_risk,
                             double upper_bound,
                             std::optional<double> lower_bound);
+
+// MakeCertificateInRange
+// As MakeCertificate for a quantity in [range_min, range_max] (a bounded
+// loss in its own units): clips the limits and the empirical value to the
+// range (a NaN upper limit becomes range_max, a NaN lower limit range_min),
+// keeps lower <= empirical <= upper, sets vacuous iff upper >= range_max, and
+// records the range with bounded_loss_units = true.
+// REQUIRES: range_min < range_max, both finite.
+Certificate MakeCertificateInRange(Family family, double delta, double empirical,
+                                   double upper_bound,
+                                   std::optional<double> lower_bound,
+                                   double range_min, double range_max);
 
 }  // namespace riskbound::core
 

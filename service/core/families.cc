@@ -2,8 +2,12 @@
 
 #include <array>
 
+#include "service/core/bounded_loss.h"
+#include "service/core/compression.h"
 #include "service/core/finite_class.h"
 #include "service/core/holdout.h"
+#include "service/core/pac_bayes.h"
+#include "service/core/rademacher.h"
 #include "service/core/vc.h"
 
 namespace riskbound::core {
@@ -16,6 +20,14 @@ bool HasVc(const Evidence& e) {
 bool HasFiniteClass(const Evidence& e) {
   return e.training.has_value() && e.training->capacity.log_hypothesis_count.has_value();
 }
+bool HasBoundedLoss(const Evidence& e) { return e.bounded_loss.has_value(); }
+// The empirical Bernstein bound divides by n - 1: it needs two samples.
+bool HasBoundedLossTwoSamples(const Evidence& e) {
+  return e.bounded_loss.has_value() && e.bounded_loss->samples >= 2;
+}
+bool HasPacBayes(const Evidence& e) { return e.pac_bayes.has_value(); }
+bool HasRademacher(const Evidence& e) { return e.rademacher.has_value(); }
+bool HasCompression(const Evidence& e) { return e.compression.has_value(); }
 
 constexpr char kHoldoutAssumptions[] =
     "hold-out examples drawn i.i.d. from the deployment distribution after the "
@@ -24,8 +36,24 @@ constexpr char kTrainingAssumptions[] =
     "training examples drawn i.i.d. from the deployment distribution; the class "
     "(and its capacity) fixed before the sample was seen; 0-1 loss; uniform over "
     "the class, so valid for a model chosen on the same data";
+constexpr char kBoundedLossAssumptions[] =
+    "hold-out examples drawn i.i.d. from the deployment distribution after the "
+    "model was fixed; every per-example loss inside [loss_min, loss_max], a range "
+    "fixed in advance; bounds the expected loss in its own units";
+constexpr char kPacBayesAssumptions[] =
+    "training examples drawn i.i.d.; the prior fixed before the sample was seen "
+    "(fit only on other data); loss in [0, 1]; uniform over posteriors; bounds the "
+    "Gibbs classifier, or the majority vote at twice the Gibbs bound";
+constexpr char kRademacherAssumptions[] =
+    "training examples drawn i.i.d.; the class fixed before the sample was seen; "
+    "0-1 loss; the empirical Rademacher complexity of the {-1,+1} hypothesis class "
+    "in the Mohri et al. convention with an exact supremum; uniform over the class";
+constexpr char kCompressionAssumptions[] =
+    "training examples drawn i.i.d.; the reconstruction function fixed before the "
+    "sample was seen and the model rebuilt from the compression set alone; 0-1 "
+    "loss; errors counted only outside the compression set";
 
-const std::array<FamilySpec, 7> kFamilies = {{
+const std::array<FamilySpec, 15> kFamilies = {{
     {Family::kHoldoutExactBinomial, "holdout-binomial",
      "Exact binomial tail inversion (one-sided Clopper-Pearson) on a hold-out set",
      "Clopper & Pearson (1934); Langford (2005), test-set bound", kHoldoutAssumptions,
@@ -70,6 +98,46 @@ const std::array<FamilySpec, 7> kFamilies = {{
      [](const Evidence& e, double d) {
        return OccamKl(e.training->counts, *e.training->capacity.log_hypothesis_count, d);
      }},
+    {Family::kBoundedHoeffding, "bounded-hoeffding",
+     "Hoeffding bound on the mean of a bounded loss on a hold-out set",
+     "Hoeffding (1963), Theorem 2", kBoundedLossAssumptions, "evidence.bounded_loss",
+     HasBoundedLoss,
+     [](const Evidence& e, double d) { return BoundedHoeffding(*e.bounded_loss, d); }},
+    {Family::kBoundedKl, "bounded-kl",
+     "kl-Chernoff bound on the mean of a bounded loss (rescaled to [0, 1]) on a hold-out set",
+     "Hoeffding (1963), Theorem 1 and its moment-generating-function argument; "
+     "Langford (2005)",
+     kBoundedLossAssumptions, "evidence.bounded_loss", HasBoundedLoss,
+     [](const Evidence& e, double d) { return BoundedKl(*e.bounded_loss, d); }},
+    {Family::kBoundedEmpiricalBernstein, "bounded-empirical-bernstein",
+     "Empirical Bernstein bound on the mean of a bounded loss on a hold-out set",
+     "Maurer & Pontil (2009), Theorem 4", kBoundedLossAssumptions,
+     "evidence.bounded_loss with sample_count >= 2 and sample_variance",
+     HasBoundedLossTwoSamples,
+     [](const Evidence& e, double d) { return BoundedEmpiricalBernstein(*e.bounded_loss, d); }},
+    {Family::kPacBayesMcAllester, "pac-bayes-mcallester", "McAllester's PAC-Bayes bound",
+     "McAllester (2003), Machine Learning 51:5-21, Theorem 1", kPacBayesAssumptions,
+     "evidence.pac_bayes", HasPacBayes,
+     [](const Evidence& e, double d) { return PacBayesMcAllester(*e.pac_bayes, d); }},
+    {Family::kPacBayesKl, "pac-bayes-kl", "PAC-Bayes-kl bound (binary KL inverse)",
+     "Seeger (2002), JMLR 3; Maurer (2004), A note on the PAC Bayesian theorem",
+     kPacBayesAssumptions, "evidence.pac_bayes", HasPacBayes,
+     [](const Evidence& e, double d) { return PacBayesKl(*e.pac_bayes, d); }},
+    {Family::kPacBayesCatoni, "pac-bayes-catoni",
+     "Catoni's PAC-Bayes bound, minimum over a fixed grid of 9 constants",
+     "Catoni (2007), Theorem 1.2.6; union bound over the grid", kPacBayesAssumptions,
+     "evidence.pac_bayes", HasPacBayes,
+     [](const Evidence& e, double d) { return PacBayesCatoni(*e.pac_bayes, d); }},
+    {Family::kRademacher, "rademacher", "Rademacher-complexity bound on the training error",
+     "Mohri, Rostamizadeh & Talwalkar (2018), Theorem 3.5; McDiarmid (1989) for "
+     "sampled complexities",
+     kRademacherAssumptions, "evidence.rademacher", HasRademacher,
+     [](const Evidence& e, double d) { return RademacherBound(*e.rademacher, d); }},
+    {Family::kSampleCompression, "sample-compression", "Sample-compression bound",
+     "Langford (2005), sample compression bound; Littlestone & Warmuth (1986); "
+     "Floyd & Warmuth (1995)",
+     kCompressionAssumptions, "evidence.compression", HasCompression,
+     [](const Evidence& e, double d) { return SampleCompression(*e.compression, d); }},
 }};
 
 }  // namespace

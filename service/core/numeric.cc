@@ -25,6 +25,32 @@ double XMinusLog1p(double x, double log1p_x) {
 
 bool FiniteProbability(double v) { return std::isfinite(v) && v >= 0.0 && v <= 1.0; }
 
+// Stirling's error term lgamma(x) - ((x - 1/2) ln x - x + ln(2 pi)/2), by its
+// asymptotic series; accurate to ~1e-16 for x >= 16.
+double StirlingError(double x) {
+  const double y = 1.0 / (x * x);
+  return (1.0 / 12.0 -
+          y * (1.0 / 360.0 - y * (1.0 / 1260.0 - y * (1.0 / 1680.0 - y / 1188.0)))) /
+         x;
+}
+
+// lgamma(y + diff) - lgamma(y) for y >= 16, diff > 0, without cancelling
+// large terms: diff (ln y - 1) + (y + diff - 1/2) log1p(diff / y) + err(y +
+// diff) - err(y). diff is passed on its own because y + diff may not be
+// representable (n + 1 at n = 2^53).
+double LogGammaRatio(double y, double diff) {
+  const double x = y + diff;
+  return diff * (std::log(y) - 1.0) + (y + diff - 0.5) * std::log1p(diff / y) +
+         StirlingError(x) - StirlingError(y);
+}
+
+// Bisection stops when the bracket is below kBisectionTolerance in absolute
+// terms AND relative to the limit's size, so limits near 1e-11 (n ~ 1e15)
+// keep twelve significant digits.
+bool BracketClosed(double lo, double hi) {
+  return hi - lo <= kBisectionTolerance * std::min(1.0, std::max(hi, 1e-300));
+}
+
 }  // namespace
 
 double BernoulliKl(double q, double p) {
@@ -48,7 +74,7 @@ double KlInverseUpper(double q, double c) {
   // Invariant: kl(q||lo) <= c < kl(q||hi); kl(q||1) is infinite.
   double lo = q;
   double hi = 1.0;
-  while (hi - lo > kBisectionTolerance) {
+  while (!BracketClosed(lo, hi)) {
     const double mid = lo + (hi - lo) / 2.0;
     if (mid <= lo || mid >= hi) break;
     if (BernoulliKl(q, mid) <= c) {
@@ -67,7 +93,7 @@ double KlInverseLower(double q, double c) {
   // Invariant: kl(q||lo) > c >= kl(q||hi), or lo = 0.
   double lo = 0.0;
   double hi = q;
-  while (hi - lo > kBisectionTolerance) {
+  while (!BracketClosed(lo, hi)) {
     const double mid = lo + (hi - lo) / 2.0;
     if (mid <= lo || mid >= hi) break;
     if (BernoulliKl(q, mid) <= c) {
@@ -111,7 +137,13 @@ TailLimit BinomialLowerLimit(std::uint64_t n, std::uint64_t k, double delta) {
 
 double LogChoose(double n, double k) {
   if (k <= 0.0 || k >= n) return 0.0;
-  return std::lgamma(n + 1.0) - std::lgamma(k + 1.0) - std::lgamma(n - k + 1.0);
+  const double small = std::min(k, n - k);
+  // Below 16 there is nothing large to cancel; above, lgamma(n+1) ~ 3.4e16 at
+  // n = 1e15 has an ulp of 4, so the difference is rewritten instead.
+  if (n - small + 1.0 < 16.0) {
+    return std::lgamma(n + 1.0) - std::lgamma(small + 1.0) - std::lgamma(n - small + 1.0);
+  }
+  return LogGammaRatio(n - small + 1.0, small) - std::lgamma(small + 1.0);
 }
 
 double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p) {

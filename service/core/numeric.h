@@ -13,7 +13,8 @@
 
 namespace riskbound::core {
 
-// Tolerance of every bisection in this header (absolute, on probabilities).
+// Tolerance of every bisection in this header: absolute on probabilities, and
+// relative to the limit when the limit is below 1.
 inline constexpr double kBisectionTolerance = 1e-12;
 
 // BernoulliKl
@@ -24,7 +25,8 @@ double BernoulliKl(double q, double p);
 
 // KlInverseUpper
 // Returns sup { p in [q, 1] : kl(q || p) <= c }, found by bisection to
-// kBisectionTolerance and rounded to the conservative (larger) end.
+// kBisectionTolerance (absolute, and relative to the result) and rounded to
+// the conservative (larger) end.
 // c <= 0 returns q; q = 1 returns 1; q = 0 uses the closed form 1 - exp(-c).
 // REQUIRES: q in [0, 1]; c not NaN.
 double KlInverseUpper(double q, double c);
@@ -77,7 +79,10 @@ TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
 double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p);
 
 // LogChoose
-// Returns ln C(n, k) from lgamma; never forms C(n, k).
+// Returns ln C(n, k); never forms C(n, k). For large n the difference
+// lgamma(n+1) - lgamma(n-k+1) is rewritten with log1p and Stirling's series so
+// nothing large cancels: relative error ~1e-14 up to n = 2^53 (the plain
+// lgamma difference is off by ~4 at n = 1e15).
 // REQUIRES: 0 <= k <= n.
 double LogChoose(double n, double k);
 

@@ -96,7 +96,18 @@ def vc_crossover():
     return ["samples", "delta", "crossover_ratio", "first_vacuous_h"], [[l, delta, x, first_h]]
 
 
+def log_choose():
+    """ln C(n, k) from exact integer arithmetic (math.comb; math.log of a big int)."""
+    rows = []
+    for n in [10, 52, 1000, 10**6, 10**9, 10**12, 10**15, 2**53]:
+        for k in [1, 2, 5, 300, 10**4]:
+            if k <= n:
+                rows.append([n, k, math.log(math.comb(n, k))])
+    return ["n", "k", "log_choose"], rows
+
+
 FIXTURES = {
+    "log_choose.csv": log_choose,
     "holdout.csv": holdout,
     "occam_kl.csv": occam_kl,
     "vc_crossover.csv": vc_crossover,

@@ -1,0 +1,224 @@
+// Bounded-loss hold-out families (Hoeffding, kl-Chernoff, empirical
+// Bernstein) against scipy/numpy references, the formula sheet's worked
+// values, and edge cases.
+#include "service/core/bounded_loss.h"
+
+#include <cmath>
+#include <cstdint>
+#include <random>
+#include <vector>
+
+#include "gmock/gmock.h"
+#include "gtest/gtest.h"
+#include "service/core/holdout.h"
+#include "tests/testing/fixture.h"
+
+namespace riskbound::core {
+namespace {
+
+using ::riskbound::testing::Num;
+using ::riskbound::testing::ReadFixture;
+using ::testing::HasSubstr;
+
+// |got - want| <= 1e-9 relative, or 2e-12 of the range for the kl limits
+// (numeric.h bisects to an absolute 1e-12 on the rescaled loss and returns
+// the conservative end).
+void ExpectClose(double got, double want, double width, double abs_tol) {
+  EXPECT_NEAR(got, want, std::max(1e-9 * std::fabs(want), abs_tol * width + 1e-300))
+      << "got " << got << " want " << want;
+}
+
+void ExpectSane(const Certificate& c, const BoundedLossEvidence& e) {
+  EXPECT_TRUE(std::isfinite(c.upper_bound));
+  EXPECT_TRUE(std::isfinite(c.penalty));
+  EXPECT_TRUE(std::isfinite(c.empirical_risk));
+  EXPECT_GE(c.upper_bound, c.empirical_risk);
+  EXPECT_LE(c.upper_bound, e.loss_max);
+  EXPECT_GE(c.upper_bound, e.loss_min);
+  ASSERT_TRUE(c.lower_bound.has_value());
+  EXPECT_TRUE(std::isfinite(*c.lower_bound));
+  EXPECT_LE(*c.lower_bound, c.empirical_risk);
+  EXPECT_GE(*c.lower_bound, e.loss_min);
+  EXPECT_EQ(c.vacuous, c.upper_bound >= e.loss_max);
+  EXPECT_TRUE(c.bounded_loss_units);
+  EXPECT_EQ(c.range_min, e.loss_min);
+  EXPECT_EQ(c.range_max, e.loss_max);
+}
+
+// Source: scipy fixture bounded_loss.csv (numpy mean/var(ddof=1) of drawn
+// losses; Hoeffding 1963 and Maurer & Pontil 2009 Thm 4 in closed form;
+// kl limits by scipy.optimize.brentq on the rescaled loss).
+TEST(BoundedLossTest, MatchesScipyFixture) {
+  int rows = 0;
+  for (const auto& row : ReadFixture("bounded_loss.csv")) {
+    BoundedLossEvidence e;
+    e.samples = static_cast<std::uint64_t>(Num(row, "samples"));
+    e.loss_min = Num(row, "loss_min");
+    e.loss_max = Num(row, "loss_max");
+    e.mean_loss = Num(row, "mean_loss");
+    e.sample_variance = Num(row, "sample_variance");
+    const double delta = Num(row, "delta");
+    const double w = e.loss_max - e.loss_min;
+    SCOPED_TRACE(::testing::Message() << "n=" << e.samples << " [" << e.loss_min << ","
+                                      << e.loss_max << "] mean=" << e.mean_loss
+                                      << " d=" << delta);
+    const Certificate h = BoundedHoeffding(e, delta);
+    ExpectSane(h, e);
+    ExpectClose(h.upper_bound, Num(row, "hoeffding_upper"), w, 0.0);
+    ExpectClose(*h.lower_bound, Num(row, "hoeffding_lower"), w, 0.0);
+    const Certificate kl = BoundedKl(e, delta);
+    ExpectSane(kl, e);
+    ExpectClose(kl.upper_bound, Num(row, "kl_upper"), w, 2e-12);
+    ExpectClose(*kl.lower_bound, Num(row, "kl_lower"), w, 2e-12);
+    // Ordering (formula sheet 4, via Pinsker): kl-Chernoff <= Hoeffding.
+    EXPECT_LE(kl.upper_bound, h.upper_bound + 2e-12 * w);
+    EXPECT_GE(*kl.lower_bound, *h.lower_bound - 2e-12 * w);
+    if (e.samples >= 2) {
+      const Certificate eb = BoundedEmpiricalBernstein(e, delta);
+      ExpectSane(eb, e);
+      ExpectClose(eb.upper_bound, Num(row, "eb_upper"), w, 0.0);
+      ExpectClose(*eb.lower_bound, Num(row, "eb_lower"), w, 0.0);
+    }
+    ++rows;
+  }
+  EXPECT_GE(rows, 100);
+}
+
+// Source: formula sheet 4 ("Bounded losses": 4.2 and 4.3 apply unchanged with
+// k/n replaced by the mean loss) and rows 4.2/4.3: n = 1000, k = 20,
+// delta = 0.05 gives Hoeffding 0.058702, kl 0.032813. A 0-1 loss is a loss
+// in [0, 1], so the bounded families must reproduce the hold-out ones.
+TEST(BoundedLossTest, ZeroOneLossReproducesHoldoutRows) {
+  BoundedLossEvidence e;
+  e.samples = 1000;
+  e.mean_loss = 0.02;
+  e.sample_variance = 20.0 * 980.0 / (1000.0 * 999.0);
+  EXPECT_NEAR(BoundedHoeffding(e, 0.05).upper_bound, 0.058702, 5e-7);  // row 4.2
+  EXPECT_NEAR(BoundedKl(e, 0.05).upper_bound, 0.032813, 5e-7);         // row 4.3
+  EXPECT_NEAR(BoundedKl(e, 0.05).upper_bound,
+              HoldoutKlChernoff({20, 1000}, 0.05).upper_bound, 1e-15);
+  EXPECT_NEAR(BoundedHoeffding(e, 0.05).upper_bound,
+              HoldoutHoeffding({20, 1000}, 0.05).upper_bound, 1e-15);
+  // Source: Maurer & Pontil (2009) Thm 4 by hand for these counts:
+  // 0.02 + sqrt(2 * 0.0196196 * ln 40 / 1000) + 7 ln 40 / 2997.
+  const double v = 20.0 * 980.0 / (1000.0 * 999.0);
+  const double l = std::log(40.0);
+  EXPECT_NEAR(BoundedEmpiricalBernstein(e, 0.05).upper_bound,
+              0.02 + std::sqrt(2 * v * l / 1000) + 7 * l / (3 * 999.0), 1e-15);
+}
+
+// Source: formula sheet row 4.4 (check_formulas.py, 20000 trials): for
+// Beta(0.5, 5) losses, n = 200, delta = 0.05, the mean empirical Bernstein
+// upper bound is 0.1559 (Hoeffding 0.1775, kl 0.1484 over the first 2000);
+// for Beta(2, 2), n = 1000: 0.5278 (Hoeffding 0.5386, kl 0.5387). Our own
+// draws (different generator) must reproduce the means within Monte-Carlo
+// error (standard error below 1.5e-4 for EB and Hoeffding, 2.5e-4 for kl)
+// plus the sheet's 4-decimal rounding.
+TEST(BoundedLossTest, FormulaSheetRow44MeanBounds) {
+  struct Case {
+    double a, b;
+    std::uint64_t n;
+    int trials;
+    double eb, hoeffding, kl;
+  };
+  std::mt19937_64 rng(44);
+  for (const Case& cs : {Case{0.5, 5.0, 200, 20000, 0.1559, 0.1775, 0.1484},
+                         Case{2.0, 2.0, 1000, 4000, 0.5278, 0.5386, 0.5387}}) {
+    std::gamma_distribution<double> ga(cs.a, 1.0), gb(cs.b, 1.0);
+    double sum_eb = 0, sum_h = 0, sum_kl = 0;
+    int kl_trials = 0;
+    for (int t = 0; t < cs.trials; ++t) {
+      double s = 0, ss = 0;
+      std::vector<double> x(cs.n);
+      for (auto& xi : x) {
+        const double g1 = ga(rng), g2 = gb(rng);
+        xi = g1 / (g1 + g2);
+        s += xi;
+      }
+      const double mean = s / static_cast<double>(cs.n);
+      for (double xi : x) ss += (xi - mean) * (xi - mean);
+      BoundedLossEvidence e;
+      e.samples = cs.n;
+      e.mean_loss = mean;
+      e.sample_variance = ss / static_cast<double>(cs.n - 1);
+      sum_eb += BoundedEmpiricalBernstein(e, 0.05).upper_bound;
+      sum_h += BoundedHoeffding(e, 0.05).upper_bound;
+      if (t < 2000) {
+        sum_kl += BoundedKl(e, 0.05).upper_bound;
+        ++kl_trials;
+      }
+    }
+    EXPECT_NEAR(sum_eb / cs.trials, cs.eb, 6e-4);
+    EXPECT_NEAR(sum_h / cs.trials, cs.hoeffding, 6e-4);
+    EXPECT_NEAR(sum_kl / kl_trials, cs.kl, 1e-3);
+  }
+}
+
+// Edge cases (common practice): variance 0, mean at either end, n = 1,
+// n = 1e15, delta near 0 and 1, negative and wide ranges. Always finite,
+// inside the range, vacuous exactly when the upper bound reaches loss_max.
+TEST(BoundedLossTest, EdgeCasesStayFiniteAndInRange) {
+  for (double delta : {1e-300, 1e-12, 0.05, 0.5, 1 - 1e-12}) {
+    for (std::uint64_t n : {1ULL, 2ULL, 7ULL, 1000ULL, 1'000'000'000'000'000ULL}) {
+      for (auto [a, b] : {std::pair{0.0, 1.0}, std::pair{-3.0, -1.0},
+                          std::pair{-1e150, 1e150}, std::pair{0.1, 0.7}}) {
+        for (double frac : {0.0, 0.25, 1.0}) {
+          for (double var_frac : {0.0, 1.0}) {
+            BoundedLossEvidence e;
+            e.samples = n;
+            e.loss_min = a;
+            e.loss_max = b;
+            e.mean_loss = frac == 1.0 ? b : a + frac * (b - a);
+            e.sample_variance =
+                n >= 2 ? var_frac * (b - a) * (b - a) * frac * (1 - frac) : 0.0;
+            SCOPED_TRACE(::testing::Message() << "d=" << delta << " n=" << n << " [" << a
+                                              << "," << b << "] f=" << frac);
+            for (const Certificate& c : {BoundedHoeffding(e, delta), BoundedKl(e, delta),
+                                         BoundedEmpiricalBernstein(e, delta)}) {
+              ExpectSane(c, e);
+            }
+            if (frac == 1.0) {  // mean at loss_max: every upper bound is loss_max
+              EXPECT_EQ(BoundedKl(e, delta).upper_bound, b);
+              EXPECT_TRUE(BoundedHoeffding(e, delta).vacuous);
+            }
+          }
+        }
+      }
+    }
+  }
+  // Source: kl^{-1}_+(0, c) = 1 - exp(-c) (formula sheet 0.2): mean at
+  // loss_min, n = 10, delta = 0.05, range [2, 6]: 2 + 4 (1 - 0.05^(1/10)).
+  BoundedLossEvidence e{2.0, 0.0, 10, 2.0, 6.0};
+  EXPECT_NEAR(BoundedKl(e, 0.05).upper_bound, 2.0 + 4.0 * (1 - std::pow(0.05, 0.1)), 1e-14);
+  EXPECT_EQ(*BoundedKl(e, 0.05).lower_bound, 2.0);
+  // Variance 0 leaves only the 7 ln(2/delta) / (3 (n - 1)) term of
+  // Maurer & Pontil (2009) Thm 4, in loss units.
+  EXPECT_NEAR(BoundedEmpiricalBernstein(e, 0.05).upper_bound,
+              2.0 + 4.0 * 7.0 * std::log(40.0) / 27.0, 1e-14);
+  // n = 1: the empirical Bernstein bound is undefined; the trivial range with
+  // a note, never a division by zero.
+  e.samples = 1;
+  const Certificate eb1 = BoundedEmpiricalBernstein(e, 0.05);
+  EXPECT_EQ(eb1.upper_bound, 6.0);
+  EXPECT_TRUE(eb1.vacuous);
+  EXPECT_THAT(eb1.notes, ::testing::Contains(HasSubstr("at least 2 samples")));
+}
+
+// Formula sheet 4 ("4.4 helps when the variance is small"): with a small
+// variance the empirical Bernstein bound beats Hoeffding for large n, and
+// every bound tightens as n grows (common practice).
+TEST(BoundedLossTest, BernsteinWinsAtSmallVariance) {
+  BoundedLossEvidence e{0.05, 0.0005, 100000, 0.0, 1.0};
+  EXPECT_LT(BoundedEmpiricalBernstein(e, 0.05).upper_bound,
+            BoundedHoeffding(e, 0.05).upper_bound);
+  double prev = 2.0;
+  for (std::uint64_t n : {10ULL, 100ULL, 1000ULL, 100000ULL}) {
+    e.samples = n;
+    const double u = BoundedEmpiricalBernstein(e, 0.05).upper_bound;
+    EXPECT_LT(u, prev);
+    prev = u;
+  }
+}
+
+}  // namespace
+}  // namespace riskbound::core
