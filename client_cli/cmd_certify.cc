@@ -14,6 +14,7 @@
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
+#include "client_cli/model_flags.h"
 #include "client_cli/table.h"
 #include "service/core/families.h"
 
@@ -27,7 +28,7 @@ constexpr char kSummary[] =
     "Asks the server for certificates: upper bounds on the model's true error that hold with\n"
     "probability >= 1 - delta. Give hold-out counts (--errors/--samples), training counts with a\n"
     "capacity (--train-errors/--train-samples with --vc-dimension, --hypothesis-count,\n"
-    "--log-hypothesis-count or --rademacher), a bounded loss (--mean-loss ...), a PAC-Bayes\n"
+    "--log-hypothesis-count, --model KIND with its parameter flags, or --rademacher), a bounded loss (--mean-loss ...), a PAC-Bayes\n"
     "posterior (--kl-divergence ...), a compression scheme (--compression-size ...), any\n"
     "combination; or a whole riskbound.v1.CertifyRequest in the protobuf\n"
     "JSON mapping with --input (- for stdin). Without --family, one recommended family gets the\n"
@@ -43,6 +44,8 @@ std::vector<OptionSpec> Specs() {
       {"vc-dimension", "H", "capacity: VC dimension of the class"},
       {"hypothesis-count", "N", "capacity: number of hypotheses of a finite class"},
       {"log-hypothesis-count", "X", "capacity: ln of the number of hypotheses"},
+      {"model", "KIND", "capacity: a model family with its parameter flags below, turned into a "
+                        "capacity by the server (kinds: `riskbound capacity --help`)"},
       {"baseline-error-rate", "P", "error rate of a trivial classifier; bounds at or above it are vacuous"},
       {"mean-loss", "X", "bounded loss: mean per-example loss on a hold-out set"},
       {"loss-variance", "V", "bounded loss: unbiased sample variance of the losses"},
@@ -64,6 +67,10 @@ std::vector<OptionSpec> Specs() {
       {"input", "FILE", "read the request from a JSON file (- for stdin)"},
       {"output", "table|json", "output format (default table)"},
   };
+  for (OptionSpec& s : ModelParameterOptions()) {
+    s.help = "with --model: " + s.help;
+    specs.push_back(s);
+  }
   for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
   return specs;
 }
@@ -126,11 +133,14 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
                  "sample-compression evidence")}) {
     if (problem) return problem;
   }
-  const int capacities =
-      f.Has("vc-dimension") + f.Has("hypothesis-count") + f.Has("log-hypothesis-count");
+  const int capacities = f.Has("vc-dimension") + f.Has("hypothesis-count") +
+                         f.Has("log-hypothesis-count") + args.Has("model");
   if (capacities > 1) {
-    return std::string(
-        "give one capacity: --vc-dimension, --hypothesis-count or --log-hypothesis-count");
+    return std::string("give one capacity: --vc-dimension, --hypothesis-count, "
+                       "--log-hypothesis-count or --model");
+  }
+  if (AnyModelParameter(args) && !args.Has("model")) {
+    return std::string("the model parameter flags (--dimension, --widths, ...) go with --model KIND");
   }
   const bool training = f.Has("train-errors");
   if ((capacities == 1 || f.Has("rademacher")) && !training) {
@@ -138,7 +148,7 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
   }
   if (training && capacities == 0 && !f.Has("rademacher")) {
     return std::string("training evidence needs a capacity (--vc-dimension, --hypothesis-count, "
-                       "--log-hypothesis-count) or --rademacher");
+                       "--log-hypothesis-count, --model) or --rademacher");
   }
   if ((f.Has("loss-variance") || args.Has("loss-range")) && !f.Has("mean-loss")) {
     return std::string("--loss-variance and --loss-range need --mean-loss/--loss-samples");
@@ -173,6 +183,16 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
     }
     if (f.Has("log-hypothesis-count")) {
       t->mutable_capacity()->set_log_hypothesis_count(f.reals["log-hypothesis-count"]);
+    }
+    if (auto kind_word = args.Get("model")) {
+      const std::optional<v1::ModelKind> kind = ModelKindFromName(*kind_word);
+      if (!kind.has_value()) {
+        return absl::StrCat("--model: unknown model kind '", *kind_word,
+                            "'; kinds: ", ModelKindList());
+      }
+      if (auto problem = ModelFromFlags(*kind, args, t->mutable_capacity()->mutable_model())) {
+        return problem;
+      }
     }
   }
   if (f.Has("rademacher")) {
@@ -268,12 +288,17 @@ void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
   }
   out << table.Render() << "\n";
   const v1::Certificate& t = r.tightest();
-  out << absl::StrFormat("Tightest: %s: true error <= %s with probability >= %g%s\n",
-                         t.family_name(), FormatProbability(t.risk_upper_bound()),
+  out << absl::StrFormat("Tightest: %s: %s <= %s with probability >= %g%s\n", t.family_name(),
+                         t.has_loss_range() ? "expected loss" : "true error",
+                         FormatProbability(t.risk_upper_bound()),
                          1.0 - r.delta_accounting().spent_failure_probability(),
                          t.vacuous() ? " (vacuous: says nothing)" : "");
   out << "Delta accounting: " << r.delta_accounting().rule() << "\n";
   for (const v1::Certificate& c : r.certificates()) {
+    if (c.has_loss_range()) {
+      out << absl::StrFormat("Note (%s): bounds on the expected loss, in the loss's units [%g, %g]\n",
+                             c.family_name(), c.loss_range().loss_min(), c.loss_range().loss_max());
+    }
     for (const std::string& note : c.notes()) out << "Note (" << c.family_name() << "): " << note << "\n";
   }
   out << "\nCautions:\n";

@@ -20,6 +20,9 @@ constexpr char kExitCodes[] =
     "  2  usage error (unknown command or flag, missing value)\n"
     "  3  invalid input (refused by the server with the field named, or an unreadable file)\n"
     "  4  server unreachable (unavailable, or no answer within --timeout)\n"
+    "  5  plan: the target risk is unreachable (the reason is printed)\n"
+    "  10 gate: verdict HOLD (0 is PROMOTE)\n"
+    "  11 gate: verdict REJECT\n"
     "\n"
     "Bounds assume i.i.d. samples from the deployment distribution; they say nothing about\n"
     "distribution shift, fairness or misuse, and never replace model-risk review.\n";
@@ -30,6 +33,10 @@ const std::vector<Command>& Commands() {
   static const std::vector<Command>* const kCommands = new std::vector<Command>{
       {"certify", "certificates on one model's true error from its evidence", RunCertify},
       {"families", "list the bound families, their sources and assumptions", RunFamilies},
+      {"capacity", "VC dimension of a model family from its architecture", RunCapacity},
+      {"gate", "PROMOTE, HOLD or REJECT a candidate model under a policy", RunGate},
+      {"select", "choose along a nested model structure by the smallest bound (SRM)", RunSelect},
+      {"plan", "hold-out or training sample size that reaches a target risk", RunPlan},
   };
   return *kCommands;
 }

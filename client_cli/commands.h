@@ -20,8 +20,12 @@ struct Command {
   CommandFn run;
 };
 
+int RunCapacity(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunFamilies(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+int RunGate(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+int RunPlan(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+int RunSelect(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 
 // Commands
 // Every command, in the order `riskbound --help` lists them.

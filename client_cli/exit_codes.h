@@ -11,6 +11,10 @@ enum ExitCode : int {
   kExitInvalidInput = 3,    // The input was refused: INVALID_ARGUMENT (field named) or
                             // an unreadable or malformed input file.
   kExitUnreachable = 4,     // The server could not be reached in time.
+  kExitTargetUnreachable = 5,  // `plan`: no sample size reaches the target risk (the
+                               // answer and its reason are still printed).
+  kExitGateHold = 10,       // `gate`: verdict HOLD (more hold-out data needed).
+  kExitGateReject = 11,     // `gate`: verdict REJECT.
 };
 
 }  // namespace riskbound::cli

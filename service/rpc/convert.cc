@@ -6,6 +6,7 @@
 
 #include "service/core/families.h"
 #include "service/core/field_violation.h"
+#include "service/rpc/capacity_convert.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -34,26 +35,28 @@ void CapacityFromProto(const v1::Capacity& in, const std::string& prefix,
     case v1::Capacity::kLogHypothesisCount:
       out->log_hypothesis_count = in.log_hypothesis_count();
       break;
+    case v1::Capacity::kModel:
+      // Through the capacity catalogue; violations named "<prefix>.model...".
+      ModelCapacityFromProto(in.model(), prefix + ".model", out, violations);
+      break;
     case v1::Capacity::MEASURE_NOT_SET:
       break;  // core::ValidateEvidence names the missing capacity.
   }
 }
 
-absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
-  std::vector<FieldViolation> violations;
-  core::CertifyRequest out;
-  const v1::Evidence& e = in.evidence();
+void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::Evidence* out,
+                       std::vector<FieldViolation>* violations) {
   if (e.has_holdout()) {
-    out.evidence.holdout = Counts(e.holdout().error_count(), e.holdout().sample_count());
+    out->holdout = Counts(e.holdout().error_count(), e.holdout().sample_count());
   }
   if (e.has_training()) {
     core::TrainingEvidence t;
     t.counts = Counts(e.training().error_count(), e.training().sample_count());
-    CapacityFromProto(e.training().capacity(), "evidence.training.capacity", &t.capacity,
-                      &violations);
-    out.evidence.training = t;
+    CapacityFromProto(e.training().capacity(), prefix + ".training.capacity", &t.capacity,
+                      violations);
+    out->training = t;
   }
-  if (e.has_baseline_error_rate()) out.evidence.baseline_error_rate = e.baseline_error_rate();
+  if (e.has_baseline_error_rate()) out->baseline_error_rate = e.baseline_error_rate();
   if (e.has_bounded_loss()) {
     const v1::BoundedLossEvidence& b = e.bounded_loss();
     core::BoundedLossEvidence c;
@@ -62,7 +65,7 @@ absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRe
     c.samples = b.sample_count();
     if (b.has_loss_min()) c.loss_min = b.loss_min();
     if (b.has_loss_max()) c.loss_max = b.loss_max();
-    out.evidence.bounded_loss = c;
+    out->bounded_loss = c;
   }
   if (e.has_pac_bayes()) {
     const v1::PacBayesEvidence& p = e.pac_bayes();
@@ -78,11 +81,11 @@ absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRe
         c.target = core::PacBayesTarget::kMajorityVote;
         break;
       default:
-        violations.push_back({"evidence.pac_bayes.target",
-                              "say which classifier is bounded: PAC_BAYES_TARGET_GIBBS or "
-                              "PAC_BAYES_TARGET_MAJORITY_VOTE"});
+        violations->push_back({prefix + ".pac_bayes.target",
+                               "say which classifier is bounded: PAC_BAYES_TARGET_GIBBS or "
+                               "PAC_BAYES_TARGET_MAJORITY_VOTE"});
     }
-    out.evidence.pac_bayes = c;
+    out->pac_bayes = c;
   }
   if (e.has_rademacher()) {
     const v1::RademacherEvidence& r = e.rademacher();
@@ -90,7 +93,7 @@ absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRe
     c.counts = Counts(r.error_count(), r.sample_count());
     c.empirical_rademacher = r.empirical_rademacher();
     c.sigma_draw_count = r.sigma_draw_count();
-    out.evidence.rademacher = c;
+    out->rademacher = c;
   }
   if (e.has_compression()) {
     const v1::CompressionEvidence& k = e.compression();
@@ -99,8 +102,14 @@ absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRe
     c.compression_size = k.compression_size();
     c.errors_outside = k.outside_error_count();
     c.size_fixed_in_advance = k.size_fixed_in_advance();
-    out.evidence.compression = c;
+    out->compression = c;
   }
+}
+
+absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
+  std::vector<FieldViolation> violations;
+  core::CertifyRequest out;
+  EvidenceFromProto(in.evidence(), "evidence", &out.evidence, &violations);
   out.delta = in.failure_probability();
   switch (in.family_choice_case()) {
     case v1::CertifyRequest::kListed:
@@ -118,6 +127,7 @@ absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRe
   }
   core::CheckProbabilityOpen("failure_probability", out.delta, &violations);
   core::ValidateEvidence(out.evidence, &violations).IgnoreError();
+  DropRedundantCapacityViolations(&violations);
   if (!violations.empty()) return core::InvalidFields(violations);
   return out;
 }
@@ -137,6 +147,10 @@ void CertificateToProto(const core::Certificate& in, v1::Certificate* out) {
   out->set_vacuous(in.vacuous);
   out->set_exact(in.exact);
   for (const std::string& note : in.notes) out->add_notes(note);
+  if (in.bounded_loss_units) {
+    out->mutable_loss_range()->set_loss_min(in.range_min);
+    out->mutable_loss_range()->set_loss_max(in.range_max);
+  }
 }
 
 v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result,

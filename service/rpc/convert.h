@@ -20,9 +20,20 @@ namespace riskbound::rpc {
 // CapacityFromProto
 // Fills `out` from the capacity oneof; appends violations named
 // "<prefix>.<field>" (e.g. prefix "evidence.training.capacity"). A missing
-// measure is left for the core's validation to name.
+// measure is left for the core's validation to name. A model description goes
+// through the capacity catalogue (ModelCapacityFromProto, capacity_convert.h):
+// a finite VC dimension or ln |H| with a provenance note in out->notes, or a
+// violation named "<prefix>.model..." (infinite VC dimension, a bound beyond
+// 2^64, or a bad model field such as "<prefix>.model.layer_widths[1]").
 void CapacityFromProto(const v1::Capacity& in, const std::string& prefix,
                        core::ClassCapacity* out, std::vector<core::FieldViolation>* violations);
+
+// EvidenceFromProto
+// Fills `out` from the evidence message; appends the violations only the
+// wire shape can show, named "<prefix>.<field>" (e.g. prefix "evidence" or
+// "candidate.evidence"). The semantic checks are core::ValidateEvidence's.
+void EvidenceFromProto(const v1::Evidence& in, const std::string& prefix, core::Evidence* out,
+                       std::vector<core::FieldViolation>* violations);
 
 // CertifyRequestFromProto
 // Returns the core request, or INVALID_ARGUMENT listing every bad field by its

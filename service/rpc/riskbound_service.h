@@ -15,6 +15,16 @@ class RiskBoundService final : public v1::RiskBound::Service {
  public:
   grpc::Status Certify(grpc::ServerContext* context, const v1::CertifyRequest* request,
                        v1::CertifyResponse* response) override;
+  grpc::Status EstimateCapacity(grpc::ServerContext* context,
+                                const v1::EstimateCapacityRequest* request,
+                                v1::EstimateCapacityResponse* response) override;
+  grpc::Status Gate(grpc::ServerContext* context, const v1::GateRequest* request,
+                    v1::GateResponse* response) override;
+  grpc::Status SelectStructure(grpc::ServerContext* context,
+                               const v1::SelectStructureRequest* request,
+                               v1::SelectStructureResponse* response) override;
+  grpc::Status PlanSamples(grpc::ServerContext* context, const v1::PlanSamplesRequest* request,
+                           v1::PlanSamplesResponse* response) override;
 };
 
 }  // namespace riskbound::rpc

@@ -4,49 +4,79 @@
 The server runs on an ephemeral loopback port; each test runs the CLI binary
 as a pipeline would and checks stdout, stderr and the exit code.
 """
-import argparse
 import json
-import os
-import signal
-import socket
 import subprocess
-import sys
 import tempfile
-import time
 import unittest
 
-ARGS = None
-SERVER = None
+import harness
 
 
-def start_server(binary):
-    d = tempfile.mkdtemp(prefix="riskbound-cli-")
-    port_file = os.path.join(d, "port")
-    proc = subprocess.Popen([binary, "--listen", "127.0.0.1:0", "--port_file", port_file],
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    deadline = time.monotonic() + 30
-    while not os.path.exists(port_file):
-        if proc.poll() is not None or time.monotonic() > deadline:
-            raise RuntimeError("server did not start")
-        time.sleep(0.05)
-    with open(port_file) as f:
-        return proc, f"127.0.0.1:{int(f.read())}"
+def cli(*args, stdin=None):
+    # `riskbound families` and --help need no server.
+    return harness.run_cli(*args, stdin=stdin,
+                           server=bool(args) and args[0] not in ("--help", "families"))
 
 
-def free_port_nobody_listens_on():
-    s = socket.socket()
-    s.bind(("127.0.0.1", 0))
-    port = s.getsockname()[1]
-    s.close()
-    return port
+class NewEvidenceKindsTest(unittest.TestCase):
+    """The evidence kinds beyond 0-1 counts, end to end through the CLI."""
 
+    def certify_json(self, *args):
+        code, out, err = cli("certify", *args, "--output", "json")
+        self.assertEqual(code, 0, err)
+        return json.loads(out)
 
-def cli(*args, stdin=None, server=True):
-    cmd = [ARGS.cli] + list(args)
-    if server and args and args[0] not in ("--help", "families") and "--help" not in args:
-        cmd += ["--server", SERVER[1]]
-    p = subprocess.run(cmd, input=stdin, capture_output=True, text=True, timeout=60)
-    return p.returncode, p.stdout, p.stderr
+    def test_pac_bayes_kl(self):
+        # Source: formula sheet row 5.3 (check_formulas.py): m = 1e4, KL = 500,
+        # Gibbs empirical risk 0.03, delta = 0.05 -> Maurer/Seeger kl 0.117601.
+        doc = self.certify_json("--kl-divergence", "500", "--gibbs-risk", "0.03",
+                                "--pac-samples", "10000", "--family", "pac-bayes-kl")
+        self.assertAlmostEqual(doc["tightest"]["riskUpperBound"], 0.117601, places=6)
+        # Majority vote: twice the Gibbs bound (Langford & Shawe-Taylor 2002).
+        doc = self.certify_json("--kl-divergence", "500", "--gibbs-risk", "0.03",
+                                "--pac-samples", "10000", "--family", "pac-bayes-kl",
+                                "--bound-target", "majority-vote")
+        self.assertAlmostEqual(doc["tightest"]["riskUpperBound"], 2 * 0.117601, places=5)
+
+    def test_sample_compression(self):
+        # Source: formula sheet row 7.1: m = 10000, d = 300 support vectors,
+        # k = 0 -> 0.130451 (binomial-tail form, Langford 2005).
+        doc = self.certify_json("--compression-size", "300", "--compression-samples", "10000",
+                                "--outside-errors", "0")
+        self.assertEqual(doc["tightest"]["familyName"], "sample-compression")
+        self.assertAlmostEqual(doc["tightest"]["riskUpperBound"], 0.130451, places=6)
+
+    def test_bounded_loss_hoeffding(self):
+        # Source: Hoeffding (1963): mean + (b - a) sqrt(ln(1/delta) / (2n)) for
+        # losses in [a, b]; here [0, 2], n = 800, delta = 0.05.
+        import math
+        doc = self.certify_json("--mean-loss", "0.3", "--loss-variance", "0.04",
+                                "--loss-samples", "800", "--loss-range", "0,2",
+                                "--family", "bounded-hoeffding")
+        want = 0.3 + 2 * math.sqrt(math.log(1 / 0.05) / 1600)
+        self.assertAlmostEqual(doc["tightest"]["riskUpperBound"], want, places=9)
+
+    def test_all_applicable_over_every_kind(self):
+        doc = self.certify_json("--errors", "20", "--samples", "1000",
+                                "--kl-divergence", "5", "--gibbs-risk", "0.02", "--pac-samples", "5000",
+                                "--family", "all")
+        names = {c["familyName"] for c in doc["certificates"]}
+        self.assertTrue({"holdout-binomial", "pac-bayes-kl", "pac-bayes-catoni"} <= names, names)
+        k = len(doc["certificates"])
+        self.assertEqual(doc["deltaAccounting"]["familyCount"], k)
+        for c in doc["certificates"]:
+            self.assertAlmostEqual(c["failureProbability"], 0.05 / k, places=15)
+
+    def test_flag_groups_are_checked(self):
+        for args in (("--kl-divergence", "5"), ("--mean-loss", "0.2"),
+                     ("--compression-size", "3", "--compression-samples", "10"),
+                     ("--rademacher", "0.1"), ("--loss-range", "0,1")):
+            code, _, err = cli("certify", *args)
+            self.assertEqual(code, 2, (args, err))
+        code, _, err = cli("certify", "--kl-divergence", "-1", "--gibbs-risk", "0.1",
+                           "--pac-samples", "100")
+        self.assertEqual(code, 3, err)
+        self.assertIn("evidence.pac_bayes.kl_divergence", err)
 
 
 class CertifyCommandTest(unittest.TestCase):
@@ -130,8 +160,8 @@ class CertifyCommandTest(unittest.TestCase):
         self.assertEqual(code, 2)
 
     def test_exit_code_unreachable(self):
-        port = free_port_nobody_listens_on()
-        p = subprocess.run([ARGS.cli, "certify", "--errors", "1", "--samples", "10",
+        port = harness.free_port_nobody_listens_on()
+        p = subprocess.run([harness.ARGS.cli, "certify", "--errors", "1", "--samples", "10",
                             "--server", f"127.0.0.1:{port}", "--timeout", "2"],
                            capture_output=True, text=True, timeout=60)
         self.assertEqual(p.returncode, 4)
@@ -149,20 +179,5 @@ class CertifyCommandTest(unittest.TestCase):
         self.assertIn("Clopper & Pearson (1934)", out)
 
 
-def main():
-    global ARGS, SERVER
-    parser = argparse.ArgumentParser()
-    parser.add_argument("--server", required=True)
-    parser.add_argument("--cli", required=True)
-    ARGS, rest = parser.parse_known_args()
-    SERVER = start_server(ARGS.server)
-    try:
-        result = unittest.main(argv=[sys.argv[0]] + rest, verbosity=2, exit=False).result
-    finally:
-        SERVER[0].send_signal(signal.SIGTERM)
-        SERVER[0].wait(timeout=30)
-    sys.exit(0 if result.wasSuccessful() else 1)
-
-
 if __name__ == "__main__":
-    main()
+    harness.main()

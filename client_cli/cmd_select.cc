@@ -1,0 +1,190 @@
+// riskbound select: structural risk minimization along a nested structure.
+#include <fstream>
+#include <string>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
+#include "absl/strings/str_join.h"
+#include "client_cli/args.h"
+#include "client_cli/client.h"
+#include "client_cli/commands.h"
+#include "client_cli/exit_codes.h"
+#include "client_cli/json_io.h"
+#include "client_cli/svg_plot.h"
+#include "client_cli/table.h"
+
+namespace riskbound::cli {
+namespace {
+
+constexpr char kUsage[] =
+    "riskbound select --input structure.json [--plot srm.svg] [--output table|json]";
+constexpr char kSummary[] =
+    "Structural risk minimization: for a nested structure of model classes of growing\n"
+    "capacity (fixed, with their delta weights, before the training sample was seen) and the\n"
+    "model fitted in each, asks the server for every candidate's training-set bound at its share\n"
+    "of delta and picks the smallest (ties go to the smaller capacity). By the union bound the\n"
+    "chosen bound holds with probability >= 1 - delta. The choice is flagged fragile when\n"
+    "another candidate's bound is within the fragility tolerance (default 0.01).\n"
+    "\n"
+    "structure.json is a riskbound.v1.SelectStructureRequest in the protobuf JSON mapping (- for\n"
+    "stdin), e.g.\n"
+    "  {\"family\": \"BOUND_FAMILY_VC_ADDITIVE\", \"failure_probability\": 0.05,\n"
+    "   \"delta_spread\": \"DELTA_SPREAD_INVERSE_SQUARE\",\n"
+    "   \"structure\": [{\"id\": \"depth-2\", \"error_count\": 2400, \"sample_count\": 20000,\n"
+    "                  \"capacity\": {\"vc_dimension\": 8}}, ...]}\n"
+    "--plot FILE writes an SVG picture: empirical risk, capacity penalty and bound against\n"
+    "capacity, the chosen candidate ringed.\n"
+    "\n"
+    "exit codes: 0 answered; 1 the plot file could not be written; 2 usage; 3 invalid input\n"
+    "(field named); 4 server unreachable.";
+
+std::vector<OptionSpec> Specs() {
+  std::vector<OptionSpec> specs = {
+      {"input", "FILE", "the SelectStructureRequest as JSON (- for stdin); required"},
+      {"plot", "FILE", "also write an SVG plot of the three curves to FILE"},
+      {"output", "table|json", "output format (default table)"},
+  };
+  for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
+  return specs;
+}
+
+int Usage(std::ostream& err, const std::string& message) {
+  err << "riskbound select: " << message << "\n(see riskbound select --help)\n";
+  return kExitUsage;
+}
+
+std::string CapacityHeader(const v1::SelectStructureResponse& r) {
+  return r.capacity_measure() == "vc_dimension" ? "VC dim h" : "ln|H|";
+}
+
+std::string CapacityText(const v1::SelectStructureResponse& r, double capacity) {
+  return r.capacity_measure() == "vc_dimension" ? absl::StrFormat("%.0f", capacity)
+                                                : absl::StrFormat("%.4g", capacity);
+}
+
+void PrintTable(const v1::SelectStructureResponse& r, std::ostream& out) {
+  out << absl::StrFormat(
+      "Structural risk minimization with %s over %d candidates (delta = %g spread over them)\n\n",
+      r.family_name(), r.candidates_size(), r.requested_failure_probability());
+  Table table({"", "candidate", CapacityHeader(r), "empirical", "penalty", "bound", "delta used",
+               "weight", "vacuous"});
+  for (int i = 0; i < r.candidates_size(); ++i) {
+    const v1::CandidateBound& c = r.candidates(i);
+    table.AddRow({static_cast<std::uint32_t>(i) == r.chosen_index() ? "*" : "", c.id(),
+                  CapacityText(r, c.capacity()), FormatProbability(c.empirical_risk()),
+                  FormatProbability(c.penalty()), FormatProbability(c.risk_upper_bound()),
+                  absl::StrFormat("%.4g", c.failure_probability()),
+                  absl::StrFormat("%.4f", c.delta_weight()), c.vacuous() ? "yes" : "no"});
+  }
+  out << table.Render() << "\n";
+  const v1::CandidateBound& chosen = r.candidates(static_cast<int>(r.chosen_index()));
+  out << absl::StrFormat(
+      "Chosen (*): %s: true error <= %s with probability >= %g%s\n", r.chosen_id(),
+      FormatProbability(chosen.risk_upper_bound()), 1.0 - r.spent_failure_probability(),
+      chosen.vacuous() ? " (vacuous: says nothing)" : "");
+  if (r.fragile()) {
+    out << absl::StrFormat(
+        "WARNING: fragile choice: %s within %g of the chosen bound; the data do not clearly "
+        "separate them. Prefer the simpler candidate, or gather more data before relying on "
+        "the choice.\n",
+        absl::StrJoin(r.within_tolerance_ids(), ", "), r.fragility_tolerance());
+  } else {
+    out << absl::StrFormat("Not fragile: no other candidate's bound is within %g.\n",
+                           r.fragility_tolerance());
+  }
+  out << "Delta accounting: " << r.delta_rule() << "\n";
+  for (const std::string& note : r.notes()) out << "Note: " << note << "\n";
+  for (const v1::CandidateBound& c : r.candidates()) {
+    for (const std::string& note : c.notes()) out << "Note (" << c.id() << "): " << note << "\n";
+  }
+  out << "\nCautions:\n";
+  for (const std::string& caution : r.cautions()) out << "  - " << caution << "\n";
+}
+
+SrmPlot PlotOf(const v1::SelectStructureResponse& r) {
+  SrmPlot plot;
+  plot.title = absl::StrCat("Structural risk minimization (", r.family_name(), ")");
+  const v1::CandidateBound& chosen = r.candidates(static_cast<int>(r.chosen_index()));
+  std::string weights = "the caller's weights w_k";
+  if (r.delta_spread() == v1::DELTA_SPREAD_UNIFORM) weights = "equal weights 1/K";
+  if (r.delta_spread() == v1::DELTA_SPREAD_INVERSE_SQUARE) weights = "weights 6/(pi^2 k^2)";
+  plot.subtitle = absl::StrFormat(
+      "Chosen: %s, true error <= %.4f with probability >= %.4g%s.\n"
+      "Bound = empirical risk + capacity penalty, each at its share of delta = %g (%s).",
+      r.chosen_id(), chosen.risk_upper_bound(), 1.0 - r.spent_failure_probability(),
+      r.fragile() ? absl::StrCat("; FRAGILE: ", absl::StrJoin(r.within_tolerance_ids(), ", "),
+                                 " within ", absl::StrFormat("%g", r.fragility_tolerance()))
+                  : "",
+      r.requested_failure_probability(), weights);
+  plot.capacity_label = r.capacity_measure() == "vc_dimension"
+                            ? "capacity: VC dimension h of the class"
+                            : "capacity: ln |H| of the class";
+  for (const v1::CandidateBound& c : r.candidates()) {
+    plot.points.push_back(
+        {c.id(), c.capacity(), c.empirical_risk(), c.penalty(), c.risk_upper_bound()});
+  }
+  plot.chosen_index = r.chosen_index();
+  plot.fragile = r.fragile();
+  return plot;
+}
+
+}  // namespace
+
+int RunSelect(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
+  const std::vector<OptionSpec> specs = Specs();
+  auto parsed = ParseArgs(specs, args);
+  if (!parsed.ok()) return Usage(err, std::string(parsed.status().message()));
+  if (parsed->Has("help")) {
+    out << FormatHelp(kUsage, kSummary, specs);
+    return kExitOk;
+  }
+  const std::string output = parsed->Get("output").value_or("table");
+  if (output != "table" && output != "json") return Usage(err, "--output must be table or json");
+  auto options = ClientOptionsFromArgs(*parsed);
+  if (!options.ok()) return Usage(err, std::string(options.status().message()));
+  const std::optional<std::string> input = parsed->Get("input");
+  if (!input.has_value()) return Usage(err, "--input FILE is required (the structure as JSON)");
+  const std::optional<std::string> plot_path = parsed->Get("plot");
+  if (plot_path.has_value() && plot_path->empty()) return Usage(err, "--plot needs a file name");
+
+  v1::SelectStructureRequest request;
+  auto text = ReadInput(*input);
+  if (!text.ok()) {
+    err << "riskbound select: " << text.status().message() << "\n";
+    return kExitInvalidInput;
+  }
+  if (auto status = ParseJson(*text, *input, &request); !status.ok()) {
+    err << "riskbound select: " << status.message() << "\n";
+    return kExitInvalidInput;
+  }
+
+  RiskBoundClient client(*options);
+  v1::SelectStructureResponse response;
+  auto ctx = client.NewContext();
+  const grpc::Status status = client.stub()->SelectStructure(ctx.get(), request, &response);
+  if (!status.ok()) return ReportRpcError(status, client.options(), err);
+  if (response.candidates_size() == 0 ||
+      response.chosen_index() >= static_cast<std::uint32_t>(response.candidates_size())) {
+    err << "riskbound select: the server's answer has no chosen candidate\n";
+    return kExitInternal;
+  }
+  if (output == "json") {
+    out << ToJson(response);
+  } else {
+    PrintTable(response, out);
+  }
+  if (plot_path.has_value()) {
+    std::ofstream file(*plot_path, std::ios::binary | std::ios::trunc);
+    file << RenderSrmSvg(PlotOf(response));
+    file.close();
+    if (!file) {
+      err << "riskbound select: cannot write the plot to '" << *plot_path << "'\n";
+      return kExitInternal;
+    }
+    (output == "json" ? err : out) << "Plot written to " << *plot_path << "\n";
+  }
+  return kExitOk;
+}
+
+}  // namespace riskbound::cli

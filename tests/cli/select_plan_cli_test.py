@@ -1,0 +1,266 @@
+#!/usr/bin/python3
+"""End-to-end tests of `riskbound select` and `riskbound plan` against a live
+riskbound-server: tables, JSON, the SVG plot, values against outside sources,
+and every exit code the two commands document.
+
+The server runs on an ephemeral loopback port; each test runs the CLI binary
+as a pipeline would and checks stdout, stderr and the exit code.
+"""
+import csv
+import json
+import math
+import os
+import subprocess
+import tempfile
+import unittest
+
+import xml.etree.ElementTree as ET
+
+import harness
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+# The demo structure (an invented parcel company's nested models).
+STRUCTURE = os.path.normpath(os.path.join(HERE, "..", "..", "examples", "fernhill",
+                                          "structure.json"))
+FIXTURES = os.path.normpath(os.path.join(HERE, "..", "reference", "fixtures"))
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+def cli(*args, stdin=None, server=True):
+    return harness.run_cli(*args, stdin=stdin, server=server, timeout=120)
+
+
+def vc_bound(errors, m, h, eta):
+    """Vapnik's additive bound, conservative form (+1/m), written out from the
+    formula sheet section 1 (Vapnik 1998; Burges 1998 eq. 3)."""
+    conf = math.sqrt((h * (math.log(2 * m / h) + 1) - math.log(eta / 4)) / m) + 1 / m
+    return min(1.0, errors / m + conf)
+
+
+def points(polyline):
+    return [tuple(float(v) for v in p.split(",")) for p in polyline.get("points").split()]
+
+
+class SelectCommandTest(unittest.TestCase):
+    def test_demo_structure_table_and_plot(self):
+        with open(STRUCTURE) as f:
+            structure = json.load(f)
+        with tempfile.TemporaryDirectory() as d:
+            plot = os.path.join(d, "srm.svg")
+            code, out, err = cli("select", "--input", STRUCTURE, "--plot", plot)
+            self.assertEqual(code, 0, err)
+            tree = ET.parse(plot)  # the SVG is well-formed XML
+        for word in ("candidate", "VC dim h", "empirical", "penalty", "bound", "delta used",
+                     "Chosen (*): late-lin-59f", "Not fragile", "6/(pi^2 k^2)", "Cautions:",
+                     "distribution shift", "Plot written to"):
+            self.assertIn(word, out)
+        starred = [line for line in out.splitlines() if line.startswith("*")]
+        self.assertEqual(len(starred), 1)
+        self.assertIn("late-lin-59f", starred[0])
+
+        # Source: formula sheet section 1 and 11.4 (weights 6/(pi^2 k^2)),
+        # computed here: the bound of every candidate; the chosen one is the
+        # interior minimum, not the largest class.
+        bounds = []
+        for k, c in enumerate(structure["structure"], start=1):
+            eta = structure["failure_probability"] * 6 / (math.pi ** 2 * k * k)
+            bounds.append(vc_bound(c["error_count"], c["sample_count"],
+                                   c["capacity"]["vc_dimension"], eta))
+        chosen = bounds.index(min(bounds))
+        self.assertEqual(structure["structure"][chosen]["id"], "late-lin-59f")
+        self.assertTrue(0 < chosen < len(bounds) - 1)
+        self.assertIn(f"{bounds[chosen]:.6f}", starred[0])
+
+        root = tree.getroot()
+        self.assertEqual(root.tag, SVG + "svg")
+        polylines = root.findall(f".//{SVG}polyline")
+        self.assertEqual(len(polylines), 3)
+        classes = sorted(p.get("class") for p in polylines)
+        self.assertEqual(classes, ["curve-bound", "curve-empirical", "curve-penalty"])
+        for p in polylines:
+            self.assertEqual(len(points(p)), 6)
+        bound_line = next(p for p in polylines if p.get("class") == "curve-bound")
+        marker = root.find(f".//{SVG}circle[@id='chosen-marker']")
+        self.assertIsNotNone(marker)
+        bx, by = points(bound_line)[chosen]
+        self.assertAlmostEqual(float(marker.get("cx")), bx, places=2)
+        self.assertAlmostEqual(float(marker.get("cy")), by, places=2)
+        # The lowest point of the bound curve is the chosen one (SVG y grows downward).
+        self.assertEqual(max(points(bound_line), key=lambda xy: xy[1]), (bx, by))
+        texts = " ".join("".join(t.itertext()) for t in root.iter(f"{SVG}text"))
+        for word in ("Structural risk minimization", "capacity: VC dimension h", "log scale",
+                     "risk", "empirical risk", "capacity penalty", "bound = empirical + penalty",
+                     "chosen: late-lin-59f"):
+            self.assertIn(word, texts)
+        self.assertIsNotNone(root.find(f"{SVG}title"))
+        # Tick labels on both axes.
+        self.assertGreaterEqual(len(root.findall(f".//{SVG}g[@class='tick-labels']/{SVG}text")), 6)
+
+    def test_json_and_fragile_choice(self):
+        code, out, err = cli("select", "--input", STRUCTURE, "--output", "json")
+        self.assertEqual(code, 0, err)
+        doc = json.loads(out)
+        self.assertEqual(doc["chosenId"], "late-lin-59f")
+        self.assertEqual(doc["chosenIndex"], 2)
+        self.assertFalse(doc["fragile"])
+        self.assertEqual(len(doc["candidates"]), 6)
+        self.assertEqual(doc["familyName"], "vc-additive")
+
+        # By hand: two identical candidates tie; the earlier wins and the
+        # choice is fragile, naming the other one.
+        request = {"family": "BOUND_FAMILY_VC_ADDITIVE", "failure_probability": 0.05,
+                   "delta_spread": "DELTA_SPREAD_UNIFORM",
+                   "structure": [{"id": "a", "error_count": 300, "sample_count": 8000,
+                                  "capacity": {"vc_dimension": 30}},
+                                 {"id": "b", "error_count": 300, "sample_count": 8000,
+                                  "capacity": {"vc_dimension": 30}}]}
+        with tempfile.TemporaryDirectory() as d:
+            plot = os.path.join(d, "tie.svg")
+            code, out, err = cli("select", "--input", "-", "--plot", plot,
+                                 stdin=json.dumps(request))
+            self.assertEqual(code, 0, err)
+            self.assertIn("WARNING: fragile choice: b within 0.01", out)
+            self.assertIn("Chosen (*): a", out)
+            root = ET.parse(plot).getroot()
+            self.assertEqual(len(root.findall(f".//{SVG}polyline")), 3)
+            texts = " ".join("".join(t.itertext()) for t in root.iter(f"{SVG}text"))
+            self.assertIn("fragile", texts)
+            # Source: formula sheet section 1, both at eta = .05/2.
+            self.assertIn(f"{vc_bound(300, 8000, 30, 0.025):.6f}", out)
+
+    def test_exit_codes(self):
+        bad = {"family": "BOUND_FAMILY_VC_ADDITIVE", "failure_probability": 0.05,
+               "structure": [{"id": "a", "error_count": 9, "sample_count": 5,
+                              "capacity": {"vc_dimension": 3}}, {"id": "b", "sample_count": 5}]}
+        code, out, err = cli("select", "--input", "-", stdin=json.dumps(bad))
+        self.assertEqual(code, 3)
+        self.assertIn("structure[0].error_count", err)
+        self.assertIn("structure[1].capacity", err)
+        self.assertEqual(out, "")
+        code, _, err = cli("select", "--input", "-", stdin='{"structur": []}')
+        self.assertEqual(code, 3)
+        self.assertIn("structur", err)
+        code, _, err = cli("select", "--input", "/nonexistent/structure.json")
+        self.assertEqual(code, 3)
+        for args in (("select",), ("select", "--input", STRUCTURE, "--output", "xml"),
+                     ("select", "--input", STRUCTURE, "extra-word"), ("select", "--bogus")):
+            code, _, err = cli(*args)
+            self.assertEqual(code, 2, args)
+            self.assertTrue(err.startswith("riskbound select"), err)
+        code, _, err = cli("select", "--input", STRUCTURE, "--plot", "/nonexistent/dir/x.svg")
+        self.assertEqual(code, 1)
+        self.assertIn("cannot write the plot", err)
+        port = harness.free_port_nobody_listens_on()
+        p = subprocess.run([harness.ARGS.cli, "select", "--input", STRUCTURE, "--server",
+                            f"127.0.0.1:{port}", "--timeout", "2"],
+                           capture_output=True, text=True, timeout=60)
+        self.assertEqual(p.returncode, 4)
+        code, out, _ = cli("select", "--help")
+        self.assertEqual(code, 0)
+        self.assertIn("--plot", out)
+
+
+class PlanCommandTest(unittest.TestCase):
+    def plan_json(self, *args):
+        code, out, err = cli("plan", *args, "--output", "json")
+        return code, (json.loads(out) if out else None), err
+
+    def test_holdout_formula_sheet_rows(self):
+        # Source: formula sheet row 9.4 (Hanley & Lippman-Hand 1983; 0.99^299 =
+        # .04954 <= .05 < 0.99^298): 299; checked here with the closed form.
+        self.assertEqual(math.ceil(math.log(0.05) / math.log1p(-0.01)), 299)
+        code, doc, err = self.plan_json("holdout", "--target-risk", "0.01", "--expected-risk", "0")
+        self.assertEqual(code, 0, err)
+        self.assertTrue(doc["reachable"])
+        self.assertEqual(int(doc["sampleCount"]), 299)
+        self.assertEqual(int(doc["holdout"]["zeroFailureSampleCount"]), 299)
+        # Source: formula sheet row 9.5: eps = .05, p = .03, delta = .05 -> 410.
+        code, doc, err = self.plan_json("holdout", "--target-risk", "0.05", "--expected-risk",
+                                        "0.03", "--delta", "0.05", "--samples-held", "250")
+        self.assertEqual(code, 0, err)
+        self.assertEqual(int(doc["sampleCount"]), 410)
+        self.assertEqual(int(doc["additionalSampleCount"]), 160)
+        # Source: formula sheet row 9.6: the same at 80% pass probability -> 601,
+        # P(pass) = 0.8002.
+        code, doc, err = self.plan_json("holdout", "--target-risk", "0.05", "--expected-risk",
+                                        "0.03", "--pass-probability", "0.8")
+        self.assertEqual(code, 0, err)
+        self.assertEqual(int(doc["sampleCount"]), 601)
+        self.assertAlmostEqual(doc["holdout"]["passProbabilityAtPlan"], 0.8002, places=4)
+        code, out, err = cli("plan", "holdout", "--target-risk", "0.05", "--expected-risk", "0.03",
+                             "--pass-probability", "0.8")
+        self.assertEqual(code, 0, err)
+        for word in ("hold-out examples needed", "601", "errors tolerated",
+                     "size if no error at all occurs", "Rule:", "Cautions:"):
+            self.assertIn(word, out)
+
+    def test_training_plans_and_comparisons(self):
+        # Source: brute-force scan in fixture vc_invert.csv (scipy; formula sheet
+        # row 9.3 inputs R_emp = .05, h = 100, target .10, delta = .05).
+        with open(os.path.join(FIXTURES, "vc_invert.csv")) as f:
+            row = next(csv.DictReader(line for line in f if not line.startswith("#")))
+        code, doc, err = self.plan_json("training", "--family", "vc-additive", "--vc-dimension",
+                                        "100", "--expected-risk", "0.05", "--target-risk", "0.10")
+        self.assertEqual(code, 0, err)
+        self.assertEqual(int(doc["sampleCount"]), int(float(row["planner_samples"])))
+        # Source: formula sheet row 9.1 (Blumer et al. 1989): eps = .1, h = 1 -> 562.
+        code, doc, err = self.plan_json("training", "--vc-dimension", "1", "--expected-risk", "0",
+                                        "--target-risk", "0.1")
+        self.assertEqual(code, 0, err)
+        self.assertEqual(int(doc["training"]["comparisonOnly"]["realizableSampleCount"]), 562)
+        # Source: formula sheet 3.1 (Occam, Hoeffding form) at R_emp = 0, solved
+        # for m here: ceil((ln|H| + ln(1/delta)) / (2 eps^2)); row 9.2 gives the
+        # comparisons 337 and 14004 for |H| = 1e6, eps = .05.
+        expected = math.ceil((math.log(1e6) + math.log(1 / 0.05)) / (2 * 0.05 ** 2))
+        code, out, err = cli("plan", "training", "--family", "occam-hoeffding",
+                             "--hypothesis-count", "1000000", "--expected-risk", "0",
+                             "--target-risk", "0.05", "--samples-held", "1000")
+        self.assertEqual(code, 0, err)
+        for word in ("training examples needed", str(expected), "additional examples needed",
+                     str(expected - 1000), "For comparison only", "337", "14004", "Cautions:"):
+            self.assertIn(word, out)
+
+    def test_unreachable_target_exit_code(self):
+        code, doc, err = self.plan_json("holdout", "--target-risk", "0.03", "--expected-risk",
+                                        "0.05")
+        self.assertEqual(code, 5)
+        self.assertFalse(doc["reachable"])
+        self.assertEqual(int(doc["sampleCount"]), 0)
+        self.assertIn("not below the target risk", doc["reason"])
+        self.assertIn("target unreachable", err)
+        code, out, err = cli("plan", "training", "--vc-dimension", "10", "--expected-risk", "0.2",
+                             "--target-risk", "0.1")
+        self.assertEqual(code, 5)
+        self.assertIn("Target unreachable", out)
+
+    def test_usage_and_invalid_input(self):
+        for args in (("plan",), ("plan", "bogus"), ("plan", "holdout", "--expected-risk", "0.1"),
+                     ("plan", "training", "--target-risk", "0.1", "--expected-risk", "0"),
+                     ("plan", "training", "--target-risk", "0.1", "--expected-risk", "0",
+                      "--vc-dimension", "3", "--family", "no-such"),
+                     ("plan", "holdout", "--target-risk", "x", "--expected-risk", "0")):
+            code, _, err = cli(*args)
+            self.assertEqual(code, 2, args)
+            self.assertTrue(err.startswith("riskbound plan"), err)
+        code, out, err = cli("plan", "holdout", "--target-risk", "0.05", "--expected-risk", "2")
+        self.assertEqual(code, 3)
+        self.assertIn("holdout.expected_risk", err)
+        self.assertEqual(out, "")
+        code, _, err = cli("plan", "training", "--family", "holdout-binomial", "--vc-dimension",
+                           "3", "--target-risk", "0.1", "--expected-risk", "0")
+        self.assertEqual(code, 3)
+        self.assertIn("training.family", err)
+
+    def test_help_documents_exit_code_five(self):
+        code, out, _ = cli("--help")
+        self.assertEqual(code, 0)
+        self.assertIn("5  plan: the target risk is unreachable", out)
+        for args in (("plan", "--help"), ("plan", "holdout", "--help"),
+                     ("plan", "training", "--help")):
+            code, out, _ = cli(*args)
+            self.assertEqual(code, 0, args)
+            self.assertIn("5 the target is unreachable", out)
+
+
+if __name__ == "__main__":
+    harness.main()
