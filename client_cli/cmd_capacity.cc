@@ -8,6 +8,7 @@
 #include "absl/strings/str_format.h"
 #include "client_cli/args.h"
 #include "client_cli/client.h"
+#include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
@@ -42,8 +43,7 @@ std::vector<OptionSpec> Specs() {
 }
 
 int Usage(std::ostream& err, const std::string& message) {
-  err << "riskbound capacity: " << message << "\n(see riskbound capacity --help)\n";
-  return kExitUsage;
+  return UsageError(err, "capacity", message);
 }
 
 std::string Value(const v1::CapacityEstimate& e) {
@@ -99,30 +99,16 @@ int RunCapacity(const std::vector<std::string>& args, std::ostream& out, std::os
     kind_word = rest[0];
     rest.erase(rest.begin());
   }
-  auto parsed = ParseArgs(specs, rest);
-  if (!parsed.ok()) return Usage(err, std::string(parsed.status().message()));
-  if (parsed->Has("help")) {
-    out << FormatHelp(kUsage, Summary(), specs);
-    return kExitOk;
+  CommandStart start;
+  if (auto code = StartCommand("capacity", kUsage, Summary(), specs, rest, out, err, &start)) {
+    return *code;
   }
-  const std::string output = parsed->Get("output").value_or("table");
-  if (output != "table" && output != "json") return Usage(err, "--output must be table or json");
-  auto options = ClientOptionsFromArgs(*parsed);
-  if (!options.ok()) return Usage(err, std::string(options.status().message()));
 
   v1::EstimateCapacityRequest request;
-  if (auto input = parsed->Get("input")) {
+  if (auto input = start.args.Get("input")) {
     if (!kind_word.empty()) return Usage(err, "--input excludes a KIND word");
-    if (AnyModelParameter(*parsed)) return Usage(err, "--input excludes the parameter flags");
-    auto text = ReadInput(*input);
-    if (!text.ok()) {
-      err << "riskbound capacity: " << text.status().message() << "\n";
-      return kExitInvalidInput;
-    }
-    if (auto status = ParseJson(*text, *input, &request); !status.ok()) {
-      err << "riskbound capacity: " << status.message() << "\n";
-      return kExitInvalidInput;
-    }
+    if (AnyModelParameter(start.args)) return Usage(err, "--input excludes the parameter flags");
+    if (auto code = LoadJsonInput("capacity", *input, &request, err)) return *code;
   } else {
     if (kind_word.empty()) {
       return Usage(err, absl::StrCat("name the model kind first: riskbound capacity KIND "
@@ -133,17 +119,17 @@ int RunCapacity(const std::vector<std::string>& args, std::ostream& out, std::os
       return Usage(err, absl::StrCat("unknown model kind '", kind_word,
                                      "'; kinds: ", ModelKindList()));
     }
-    if (auto problem = ModelFromFlags(*kind, *parsed, request.mutable_model())) {
+    if (auto problem = ModelFromFlags(*kind, start.args, request.mutable_model())) {
       return Usage(err, *problem);
     }
   }
 
-  RiskBoundClient client(*options);
+  RiskBoundClient client(start.client);
   v1::EstimateCapacityResponse response;
   auto ctx = client.NewContext();
   const grpc::Status status = client.stub()->EstimateCapacity(ctx.get(), request, &response);
   if (!status.ok()) return ReportRpcError(status, client.options(), err);
-  if (output == "json") {
+  if (start.json) {
     out << ToJson(response);
   } else {
     PrintTable(request.model(), response, out);

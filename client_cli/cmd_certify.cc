@@ -11,6 +11,7 @@
 #include "absl/strings/str_join.h"
 #include "client_cli/args.h"
 #include "client_cli/client.h"
+#include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
@@ -77,8 +78,7 @@ std::vector<OptionSpec> Specs() {
 
 // A usage problem: message on stderr, exit 2.
 int Usage(std::ostream& err, const std::string& message) {
-  err << "riskbound certify: " << message << "\n(see riskbound certify --help)\n";
-  return kExitUsage;
+  return UsageError(err, "certify", message);
 }
 
 // The numeric flags of certify, read once. A usage message on error.
@@ -301,52 +301,37 @@ void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
     }
     for (const std::string& note : c.notes()) out << "Note (" << c.family_name() << "): " << note << "\n";
   }
-  out << "\nCautions:\n";
-  for (const std::string& caution : r.cautions()) out << "  - " << caution << "\n";
+  PrintCautions(r.cautions(), out);
 }
 
 }  // namespace
 
 int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
   const std::vector<OptionSpec> specs = Specs();
-  auto parsed = ParseArgs(specs, args);
-  if (!parsed.ok()) return Usage(err, std::string(parsed.status().message()));
-  if (parsed->Has("help")) {
-    out << FormatHelp(kUsage, kSummary, specs);
-    return kExitOk;
+  CommandStart start;
+  if (auto code = StartCommand("certify", kUsage, kSummary, specs, args, out, err, &start)) {
+    return *code;
   }
-  const std::string output = parsed->Get("output").value_or("table");
-  if (output != "table" && output != "json") return Usage(err, "--output must be table or json");
-  auto options = ClientOptionsFromArgs(*parsed);
-  if (!options.ok()) return Usage(err, std::string(options.status().message()));
 
   v1::CertifyRequest request;
-  if (auto input = parsed->Get("input")) {
+  if (auto input = start.args.Get("input")) {
     for (const OptionSpec& spec : specs) {
       if (spec.name != "input" && spec.name != "output" && spec.name != "server" &&
-          spec.name != "timeout" && parsed->Has(spec.name)) {
+          spec.name != "timeout" && start.args.Has(spec.name)) {
         return Usage(err, absl::StrCat("--input excludes --", spec.name));
       }
     }
-    auto text = ReadInput(*input);
-    if (!text.ok()) {
-      err << "riskbound certify: " << text.status().message() << "\n";
-      return kExitInvalidInput;
-    }
-    if (auto status = ParseJson(*text, *input, &request); !status.ok()) {
-      err << "riskbound certify: " << status.message() << "\n";
-      return kExitInvalidInput;
-    }
+    if (auto code = LoadJsonInput("certify", *input, &request, err)) return *code;
   } else {
-    if (auto problem = RequestFromFlags(*parsed, &request)) return Usage(err, *problem);
-    if (auto problem = ApplyFamilies(*parsed, &request)) return Usage(err, *problem);
+    if (auto problem = RequestFromFlags(start.args, &request)) return Usage(err, *problem);
+    if (auto problem = ApplyFamilies(start.args, &request)) return Usage(err, *problem);
   }
 
-  RiskBoundClient client(*options);
+  RiskBoundClient client(start.client);
   v1::CertifyResponse response;
   const grpc::Status status = client.Certify(request, &response);
   if (!status.ok()) return ReportRpcError(status, client.options(), err);
-  if (output == "json") {
+  if (start.json) {
     out << ToJson(response);
   } else {
     PrintTable(response, out);

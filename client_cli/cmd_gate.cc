@@ -12,6 +12,7 @@
 #include "absl/strings/string_view.h"
 #include "client_cli/args.h"
 #include "client_cli/client.h"
+#include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
@@ -65,8 +66,7 @@ std::vector<OptionSpec> Specs() {
 }
 
 int Usage(std::ostream& err, const std::string& message) {
-  err << "riskbound gate: " << message << "\n(see riskbound gate --help)\n";
-  return kExitUsage;
+  return UsageError(err, "gate", message);
 }
 
 // The field of `d` a JSON key names: its proto name or its lowerCamelCase
@@ -272,46 +272,39 @@ void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostr
   out << "  families used:    " << absl::StrJoin(families, ", ") << "\n";
   out << "  delta spent:      " << absl::StrFormat("%.6g", a.spent_failure_probability()) << "\n";
   out << "  decided at:       " << a.timestamp() << "\n";
-  out << "\nCautions:\n";
-  for (const std::string& caution : a.cautions()) out << "  - " << caution << "\n";
+  PrintCautions(a.cautions(), out);
 }
 
 }  // namespace
 
 int RunGate(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
   const std::vector<OptionSpec> specs = Specs();
-  auto parsed = ParseArgs(specs, args);
-  if (!parsed.ok()) return Usage(err, std::string(parsed.status().message()));
-  if (parsed->Has("help")) {
-    out << FormatHelp(kUsage, kSummary, specs);
-    return kExitOk;
+  CommandStart start;
+  if (auto code = StartCommand("gate", kUsage, kSummary, specs, args, out, err, &start)) {
+    return *code;
   }
-  const std::string output = parsed->Get("output").value_or("table");
-  if (output != "table" && output != "json") return Usage(err, "--output must be table or json");
-  if (!parsed->Has("policy")) return Usage(err, "--policy FILE is required");
-  if (!parsed->Has("candidate")) return Usage(err, "--candidate FILE is required");
+  if (!start.args.Has("policy")) return Usage(err, "--policy FILE is required");
+  if (!start.args.Has("candidate")) return Usage(err, "--candidate FILE is required");
   int from_stdin = 0;
   for (const char* name : {"policy", "candidate", "champion"}) {
-    from_stdin += parsed->Get(name).value_or("") == "-" ? 1 : 0;
+    from_stdin += start.args.Get(name).value_or("") == "-" ? 1 : 0;
   }
   if (from_stdin > 1) return Usage(err, "only one of the files can be read from stdin (-)");
-  auto options = ClientOptionsFromArgs(*parsed);
-  if (!options.ok()) return Usage(err, std::string(options.status().message()));
 
   v1::GateRequest request;
-  bool ok = ReadMessage(*parsed->Get("policy"), "policy", request.mutable_policy(), err);
-  ok = ReadMessage(*parsed->Get("candidate"), "candidate", request.mutable_candidate(), err) && ok;
-  if (auto champion = parsed->Get("champion")) {
+  bool ok = ReadMessage(*start.args.Get("policy"), "policy", request.mutable_policy(), err);
+  ok = ReadMessage(*start.args.Get("candidate"), "candidate", request.mutable_candidate(), err) && ok;
+  if (auto champion = start.args.Get("champion")) {
     ok = ReadMessage(*champion, "champion", request.mutable_champion(), err) && ok;
   }
   if (!ok) return kExitInvalidInput;
 
-  RiskBoundClient client(*options);
+  RiskBoundClient client(start.client);
   v1::GateResponse response;
   auto context = client.NewContext();
   const grpc::Status status = client.stub()->Gate(context.get(), request, &response);
   if (!status.ok()) return ReportRpcError(status, client.options(), err);
-  if (output == "json") {
+  if (start.json) {
     out << ToJson(response);
   } else {
     PrintTable(request, response, out);

@@ -9,6 +9,7 @@
 #include "absl/strings/str_join.h"
 #include "client_cli/args.h"
 #include "client_cli/client.h"
+#include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
@@ -94,9 +95,7 @@ std::vector<OptionSpec> TrainingSpecs() {
 }
 
 int Usage(std::ostream& err, const std::string& sub, const std::string& message) {
-  const std::string name = sub.empty() ? "plan" : absl::StrCat("plan ", sub);
-  err << "riskbound " << name << ": " << message << "\n(see riskbound " << name << " --help)\n";
-  return kExitUsage;
+  return UsageError(err, sub.empty() ? "plan" : absl::StrCat("plan ", sub), message);
 }
 
 // Reads a required or optional real flag into `out`. A usage message on error.
@@ -183,8 +182,7 @@ std::string Count(std::uint64_t n) { return absl::StrFormat("%d", n); }
 void PrintNotesAndCautions(const v1::PlanSamplesResponse& r, std::ostream& out) {
   if (!r.rule().empty()) out << "Rule: " << r.rule() << "\n";
   for (const std::string& note : r.notes()) out << "Note: " << note << "\n";
-  out << "\nCautions:\n";
-  for (const std::string& caution : r.cautions()) out << "  - " << caution << "\n";
+  PrintCautions(r.cautions(), out);
 }
 
 void PrintHoldout(const v1::HoldoutPlanRequest& q, const v1::PlanSamplesResponse& r,
@@ -273,33 +271,26 @@ int RunPlan(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   }
   const bool holdout = sub == "holdout";
   const std::vector<OptionSpec> specs = holdout ? HoldoutSpecs() : TrainingSpecs();
-  auto parsed = ParseArgs(specs, std::vector<std::string>(args.begin() + 1, args.end()));
-  if (!parsed.ok()) return Usage(err, sub, std::string(parsed.status().message()));
-  if (parsed->Has("help")) {
-    out << FormatHelp(holdout ? kHoldoutUsage : kTrainingUsage,
-                      absl::StrCat(holdout ? kHoldoutSummary : kTrainingSummary, "\n\n", kExitText),
-                      specs);
-    return kExitOk;
+  CommandStart start;
+  if (auto code = StartCommand(
+          absl::StrCat("plan ", sub), holdout ? kHoldoutUsage : kTrainingUsage,
+          absl::StrCat(holdout ? kHoldoutSummary : kTrainingSummary, "\n\n", kExitText), specs,
+          std::vector<std::string>(args.begin() + 1, args.end()), out, err, &start)) {
+    return *code;
   }
-  const std::string output = parsed->Get("output").value_or("table");
-  if (output != "table" && output != "json") {
-    return Usage(err, sub, "--output must be table or json");
-  }
-  auto options = ClientOptionsFromArgs(*parsed);
-  if (!options.ok()) return Usage(err, sub, std::string(options.status().message()));
 
   v1::PlanSamplesRequest request;
   const std::optional<std::string> problem =
-      holdout ? HoldoutFromFlags(*parsed, request.mutable_holdout())
-              : TrainingFromFlags(*parsed, request.mutable_training());
+      holdout ? HoldoutFromFlags(start.args, request.mutable_holdout())
+              : TrainingFromFlags(start.args, request.mutable_training());
   if (problem) return Usage(err, sub, *problem);
 
-  RiskBoundClient client(*options);
+  RiskBoundClient client(start.client);
   v1::PlanSamplesResponse response;
   auto ctx = client.NewContext();
   const grpc::Status status = client.stub()->PlanSamples(ctx.get(), request, &response);
   if (!status.ok()) return ReportRpcError(status, client.options(), err);
-  if (output == "json") {
+  if (start.json) {
     out << ToJson(response);
   } else if (holdout) {
     PrintHoldout(request.holdout(), response, out);

@@ -8,6 +8,7 @@
 #include "absl/strings/str_join.h"
 #include "client_cli/args.h"
 #include "client_cli/client.h"
+#include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
@@ -50,8 +51,7 @@ std::vector<OptionSpec> Specs() {
 }
 
 int Usage(std::ostream& err, const std::string& message) {
-  err << "riskbound select: " << message << "\n(see riskbound select --help)\n";
-  return kExitUsage;
+  return UsageError(err, "select", message);
 }
 
 std::string CapacityHeader(const v1::SelectStructureResponse& r) {
@@ -98,8 +98,7 @@ void PrintTable(const v1::SelectStructureResponse& r, std::ostream& out) {
   for (const v1::CandidateBound& c : r.candidates()) {
     for (const std::string& note : c.notes()) out << "Note (" << c.id() << "): " << note << "\n";
   }
-  out << "\nCautions:\n";
-  for (const std::string& caution : r.cautions()) out << "  - " << caution << "\n";
+  PrintCautions(r.cautions(), out);
 }
 
 SrmPlot PlotOf(const v1::SelectStructureResponse& r) {
@@ -133,33 +132,19 @@ SrmPlot PlotOf(const v1::SelectStructureResponse& r) {
 
 int RunSelect(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
   const std::vector<OptionSpec> specs = Specs();
-  auto parsed = ParseArgs(specs, args);
-  if (!parsed.ok()) return Usage(err, std::string(parsed.status().message()));
-  if (parsed->Has("help")) {
-    out << FormatHelp(kUsage, kSummary, specs);
-    return kExitOk;
+  CommandStart start;
+  if (auto code = StartCommand("select", kUsage, kSummary, specs, args, out, err, &start)) {
+    return *code;
   }
-  const std::string output = parsed->Get("output").value_or("table");
-  if (output != "table" && output != "json") return Usage(err, "--output must be table or json");
-  auto options = ClientOptionsFromArgs(*parsed);
-  if (!options.ok()) return Usage(err, std::string(options.status().message()));
-  const std::optional<std::string> input = parsed->Get("input");
+  const std::optional<std::string> input = start.args.Get("input");
   if (!input.has_value()) return Usage(err, "--input FILE is required (the structure as JSON)");
-  const std::optional<std::string> plot_path = parsed->Get("plot");
+  const std::optional<std::string> plot_path = start.args.Get("plot");
   if (plot_path.has_value() && plot_path->empty()) return Usage(err, "--plot needs a file name");
 
   v1::SelectStructureRequest request;
-  auto text = ReadInput(*input);
-  if (!text.ok()) {
-    err << "riskbound select: " << text.status().message() << "\n";
-    return kExitInvalidInput;
-  }
-  if (auto status = ParseJson(*text, *input, &request); !status.ok()) {
-    err << "riskbound select: " << status.message() << "\n";
-    return kExitInvalidInput;
-  }
+  if (auto code = LoadJsonInput("select", *input, &request, err)) return *code;
 
-  RiskBoundClient client(*options);
+  RiskBoundClient client(start.client);
   v1::SelectStructureResponse response;
   auto ctx = client.NewContext();
   const grpc::Status status = client.stub()->SelectStructure(ctx.get(), request, &response);
@@ -169,7 +154,7 @@ int RunSelect(const std::vector<std::string>& args, std::ostream& out, std::ostr
     err << "riskbound select: the server's answer has no chosen candidate\n";
     return kExitInternal;
   }
-  if (output == "json") {
+  if (start.json) {
     out << ToJson(response);
   } else {
     PrintTable(response, out);
@@ -182,7 +167,7 @@ int RunSelect(const std::vector<std::string>& args, std::ostream& out, std::ostr
       err << "riskbound select: cannot write the plot to '" << *plot_path << "'\n";
       return kExitInternal;
     }
-    (output == "json" ? err : out) << "Plot written to " << *plot_path << "\n";
+    (start.json ? err : out) << "Plot written to " << *plot_path << "\n";
   }
   return kExitOk;
 }
