@@ -21,22 +21,6 @@ bool UsesTrainingCapacity(Family f) {
          f == Family::kOccamHoeffding || f == Family::kOccamKl;
 }
 
-void CheckCounts(const std::string& prefix, const SampleCounts& counts,
-                 std::vector<FieldViolation>* out) {
-  if (counts.samples == 0) {
-    out->push_back({prefix + ".sample_count", "must be at least 1"});
-  } else if (counts.samples > kMaxSampleCount) {
-    out->push_back({prefix + ".sample_count",
-                    absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
-                                 counts.samples)});
-  }
-  if (counts.errors > counts.samples) {
-    out->push_back({prefix + ".error_count",
-                    absl::StrCat(counts.errors, " errors exceed the ", counts.samples,
-                                 " samples they were counted on")});
-  }
-}
-
 // The fixed rule documented at FamilyChoice::kRecommended (certify.h).
 std::vector<const FamilySpec*> RecommendedFamily(const Evidence& e) {
   Family f = Family::kVcAdditive;
@@ -124,7 +108,7 @@ void CheckPacBayes(const PacBayesEvidence& pb, std::vector<FieldViolation>* out)
 
 void CheckRademacher(const RademacherEvidence& r, std::vector<FieldViolation>* out) {
   const std::string p = "evidence.rademacher";
-  CheckCounts(p, r.counts, out);
+  CheckSampleCounts(p, r.counts, out);
   const double v = r.empirical_rademacher;
   if (r.sigma_draw_count == 0) {
     if (!std::isfinite(v) || v < 0.0 || v > 1.0) {
@@ -155,6 +139,22 @@ void CheckCompression(const CompressionEvidence& c, std::vector<FieldViolation>*
 
 }  // namespace
 
+void CheckSampleCounts(const std::string& prefix, const SampleCounts& counts,
+                       std::vector<FieldViolation>* out) {
+  if (counts.samples == 0) {
+    out->push_back({prefix + ".sample_count", "must be at least 1"});
+  } else if (counts.samples > kMaxSampleCount) {
+    out->push_back({prefix + ".sample_count",
+                    absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
+                                 counts.samples)});
+  }
+  if (counts.errors > counts.samples) {
+    out->push_back({prefix + ".error_count",
+                    absl::StrCat(counts.errors, " errors exceed the ", counts.samples,
+                                 " samples they were counted on")});
+  }
+}
+
 absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolation>* out) {
   std::vector<FieldViolation> local;
   std::vector<FieldViolation>* v = out != nullptr ? out : &local;
@@ -169,10 +169,10 @@ absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolati
                   "a Rademacher complexity (evidence.rademacher) or a compression "
                   "scheme (evidence.compression)"});
   }
-  if (evidence.holdout.has_value()) CheckCounts("evidence.holdout", *evidence.holdout, v);
+  if (evidence.holdout.has_value()) CheckSampleCounts("evidence.holdout", *evidence.holdout, v);
   if (evidence.training.has_value()) {
     const TrainingEvidence& t = *evidence.training;
-    CheckCounts("evidence.training", t.counts, v);
+    CheckSampleCounts("evidence.training", t.counts, v);
     if (!t.capacity.vc_dimension.has_value() &&
         !t.capacity.log_hypothesis_count.has_value()) {
       v->push_back({"evidence.training.capacity",

@@ -62,6 +62,12 @@ struct CertifyResult {
   std::string delta_rule;
 };
 
+// CheckSampleCounts
+// Appends violations for "<prefix>.sample_count" (must be in [1, 2^53]) and
+// "<prefix>.error_count" (must be <= sample_count) to `out`.
+void CheckSampleCounts(const std::string& prefix, const SampleCounts& counts,
+                       std::vector<FieldViolation>* out);
+
 // ValidateEvidence
 // Returns OK, or INVALID_ARGUMENT naming every bad field by its API path
 // (see field_violation.h). Appends to `out` when it is not null.

@@ -73,22 +73,6 @@ Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_ch
   return s;
 }
 
-void CheckCounts(const std::string& prefix, const SampleCounts& counts,
-                 std::vector<FieldViolation>* out) {
-  if (counts.samples == 0) {
-    out->push_back({prefix + ".sample_count", "must be at least 1"});
-  } else if (counts.samples > kMaxSampleCount) {
-    out->push_back({prefix + ".sample_count",
-                    absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
-                                 counts.samples)});
-  }
-  if (counts.errors > counts.samples) {
-    out->push_back({prefix + ".error_count",
-                    absl::StrCat(counts.errors, " errors exceed the ", counts.samples,
-                                 " samples they were counted on")});
-  }
-}
-
 void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdout,
                  std::vector<FieldViolation>* out) {
   const std::string prefix = "champion.paired";
@@ -224,7 +208,7 @@ absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
     } else if (champion->paired.has_value()) {
       CheckPaired(*champion->paired, candidate.evidence.holdout, &v);
     } else {
-      CheckCounts("champion.champion_holdout", *champion->champion_holdout, &v);
+      CheckSampleCounts("champion.champion_holdout", *champion->champion_holdout, &v);
       if (!candidate.evidence.holdout.has_value()) {
         v.push_back({"candidate.evidence.holdout",
                      "an unpaired champion comparison needs the candidate's hold-out "
