@@ -20,6 +20,7 @@
 #include "service/rpc/capacity_convert.h"
 #include "service/rpc/convert.h"
 #include "service/rpc/server.h"
+#include "tests/testing/loopback_server.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -27,18 +28,8 @@ namespace {
 using ::testing::Contains;
 using ::testing::HasSubstr;
 
-class CapacityRpcTest : public ::testing::Test {
+class CapacityRpcTest : public ::riskbound::testing::LoopbackServerTest {
  protected:
-  void SetUp() override {
-    ServerConfig config;
-    config.listen_address = "127.0.0.1:0";  // a free port, read back below
-    auto server = StartServer(config);
-    ASSERT_TRUE(server.ok()) << server.status();
-    server_ = std::move(*server);
-    channel_ = grpc::CreateChannel("127.0.0.1:" + std::to_string(server_->port()),
-                                   grpc::InsecureChannelCredentials());
-    stub_ = v1::RiskBound::NewStub(channel_);
-  }
 
   grpc::Status Estimate(const v1::ModelDescription& model, v1::EstimateCapacityResponse* resp) {
     v1::EstimateCapacityRequest req;
@@ -82,9 +73,6 @@ class CapacityRpcTest : public ::testing::Test {
     return stub_->Certify(&ctx, req, resp);
   }
 
-  std::unique_ptr<RunningServer> server_;
-  std::shared_ptr<grpc::Channel> channel_;
-  std::unique_ptr<v1::RiskBound::Stub> stub_;
 };
 
 v1::ModelDescription Model(v1::ModelKind kind) {

@@ -21,6 +21,7 @@
 #include "service/core/certify.h"
 #include "service/rpc/gate_convert.h"
 #include "service/rpc/server.h"
+#include "tests/testing/loopback_server.h"
 #include "tests/testing/fixture.h"
 
 namespace riskbound::rpc {
@@ -35,28 +36,12 @@ std::uint64_t U(const ::riskbound::testing::FixtureRow& row, const char* key) {
 }
 
 // A started server and a stub on it.
-struct Endpoint {
-  std::unique_ptr<RunningServer> server;
-  std::unique_ptr<v1::RiskBound::Stub> stub;
-};
+using Endpoint = ::riskbound::testing::LoopbackEndpoint;
 
-Endpoint Start() {
-  Endpoint e;
-  ServerConfig config;
-  config.listen_address = "127.0.0.1:0";  // a free port, read back below
-  auto server = StartServer(config);
-  EXPECT_TRUE(server.ok()) << server.status();
-  if (!server.ok()) return e;
-  e.server = std::move(*server);
-  e.stub = v1::RiskBound::NewStub(grpc::CreateChannel(
-      "127.0.0.1:" + std::to_string(e.server->port()), grpc::InsecureChannelCredentials()));
-  return e;
-}
+Endpoint Start() { return ::riskbound::testing::StartLoopbackServer(); }
 
 grpc::Status Call(v1::RiskBound::Stub* stub, const v1::GateRequest& req, v1::GateResponse* resp) {
-  grpc::ClientContext ctx;
-  ctx.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(30));
-  return stub->Gate(&ctx, req, resp);
+  return stub->Gate(::riskbound::testing::CallContext().get(), req, resp);
 }
 
 v1::GateRequest Request(double max_risk, double delta, std::uint64_t errors,

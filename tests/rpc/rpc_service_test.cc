@@ -7,6 +7,7 @@
 #include "riskbound/v1/riskbound.grpc.pb.h"
 #include "service/rpc/convert.h"
 #include "service/rpc/server.h"
+#include "tests/testing/loopback_server.h"
 #include "service/rpc/status.h"
 #include "tests/testing/status_matchers.h"
 
@@ -16,29 +17,13 @@ namespace {
 using ::riskbound::testing::StatusIs;
 using ::testing::HasSubstr;
 
-class ServiceTest : public ::testing::Test {
+class ServiceTest : public ::riskbound::testing::LoopbackServerTest {
  protected:
-  void SetUp() override {
-    ServerConfig config;
-    config.listen_address = "127.0.0.1:0";  // a free port, read back below
-    auto server = StartServer(config);
-    ASSERT_TRUE(server.ok()) << server.status();
-    server_ = std::move(*server);
-    ASSERT_GT(server_->port(), 0);
-    channel_ = grpc::CreateChannel("127.0.0.1:" + std::to_string(server_->port()),
-                                   grpc::InsecureChannelCredentials());
-    stub_ = v1::RiskBound::NewStub(channel_);
-  }
 
   grpc::Status Call(const v1::CertifyRequest& req, v1::CertifyResponse* resp) {
-    grpc::ClientContext ctx;
-    ctx.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
-    return stub_->Certify(&ctx, req, resp);
+    return stub_->Certify(::riskbound::testing::CallContext().get(), req, resp);
   }
 
-  std::unique_ptr<RunningServer> server_;
-  std::shared_ptr<grpc::Channel> channel_;
-  std::unique_ptr<v1::RiskBound::Stub> stub_;
 };
 
 // Source: Clopper & Pearson (1934) via the rule of three (Hanley &

@@ -17,6 +17,7 @@
 #include "gtest/gtest.h"
 #include "riskbound/v1/riskbound.grpc.pb.h"
 #include "service/rpc/server.h"
+#include "tests/testing/loopback_server.h"
 #include "tests/testing/fixture.h"
 
 namespace riskbound::rpc {
@@ -36,30 +37,14 @@ double HandVcBound(double errors, double m, double h, double eta) {
   return std::min(1.0, errors / m + conf);
 }
 
-class SelectPlanTest : public ::testing::Test {
+class SelectPlanTest : public ::riskbound::testing::LoopbackServerTest {
  protected:
-  void SetUp() override {
-    ServerConfig config;
-    config.listen_address = "127.0.0.1:0";
-    auto server = StartServer(config);
-    ASSERT_TRUE(server.ok()) << server.status();
-    server_ = std::move(*server);
-    channel_ = grpc::CreateChannel("127.0.0.1:" + std::to_string(server_->port()),
-                                   grpc::InsecureChannelCredentials());
-    stub_ = v1::RiskBound::NewStub(channel_);
-  }
-
-  std::unique_ptr<grpc::ClientContext> Ctx() {
-    auto ctx = std::make_unique<grpc::ClientContext>();
-    ctx->set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(30));
-    return ctx;
-  }
 
   grpc::Status Select(const v1::SelectStructureRequest& req, v1::SelectStructureResponse* resp) {
-    return stub_->SelectStructure(Ctx().get(), req, resp);
+    return stub_->SelectStructure(::riskbound::testing::CallContext().get(), req, resp);
   }
   grpc::Status Plan(const v1::PlanSamplesRequest& req, v1::PlanSamplesResponse* resp) {
-    return stub_->PlanSamples(Ctx().get(), req, resp);
+    return stub_->PlanSamples(::riskbound::testing::CallContext().get(), req, resp);
   }
 
   // The upper bound Certify reports for training evidence under one family.
@@ -73,7 +58,7 @@ class SelectPlanTest : public ::testing::Test {
     req.set_failure_probability(delta);
     req.mutable_listed()->add_families(family);
     v1::CertifyResponse resp;
-    const grpc::Status status = stub_->Certify(Ctx().get(), req, &resp);
+    const grpc::Status status = stub_->Certify(::riskbound::testing::CallContext().get(), req, &resp);
     EXPECT_TRUE(status.ok()) << status.error_message();
     return status.ok() ? resp.tightest().risk_upper_bound() : -1.0;
   }
@@ -85,7 +70,7 @@ class SelectPlanTest : public ::testing::Test {
     req.set_failure_probability(delta);
     req.mutable_listed()->add_families(v1::BOUND_FAMILY_HOLDOUT_EXACT_BINOMIAL);
     v1::CertifyResponse resp;
-    const grpc::Status status = stub_->Certify(Ctx().get(), req, &resp);
+    const grpc::Status status = stub_->Certify(::riskbound::testing::CallContext().get(), req, &resp);
     EXPECT_TRUE(status.ok()) << status.error_message();
     return status.ok() ? resp.tightest().risk_upper_bound() : -1.0;
   }
@@ -105,9 +90,6 @@ class SelectPlanTest : public ::testing::Test {
     return out;
   }
 
-  std::unique_ptr<RunningServer> server_;
-  std::shared_ptr<grpc::Channel> channel_;
-  std::unique_ptr<v1::RiskBound::Stub> stub_;
 };
 
 v1::StructureCandidate* AddVc(v1::SelectStructureRequest* req, const std::string& id,
