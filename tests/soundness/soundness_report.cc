@@ -116,9 +116,8 @@ int Run(int argc, char** argv) {
   md << "# Monte-Carlo soundness report\n\n";
   md << "Produced by (run from the repository root):\n\n```\n" << absl::StrJoin(args, " ")
      << "\n```\n\n";
-  md << "The binary was built with `cmake -S . -B /tmp/build-soundness -DRISKBOUND_CORE_ONLY=ON "
-        "&& cmake --build /tmp/build-soundness -j2 --target riskbound_soundness` "
-        "(tests/soundness/soundness_report.cc). The fast variant of the same scenarios runs in "
+  md << "The binary is built by `./scripts/build riskbound_soundness` (into "
+        "build/tests/soundness/; source tests/soundness/soundness_report.cc). The fast variant of the same scenarios runs in "
         "ctest as soundness_test.\n\n";
   md << absl::StrFormat(
       "Trials per family T = %d, seed %d (std::mt19937_64 through std::seed_seq, one stream "
