@@ -27,11 +27,14 @@ constexpr char kUsage[] =
     "       riskbound certify --input request.json [options]";
 constexpr char kSummary[] =
     "Asks the server for certificates: upper bounds on the model's true error that hold with\n"
-    "probability >= 1 - delta. Give hold-out counts (--errors/--samples), training counts with a\n"
-    "capacity (--train-errors/--train-samples with --vc-dimension, --hypothesis-count,\n"
-    "--log-hypothesis-count, --model KIND with its parameter flags, or --rademacher), a bounded loss (--mean-loss ...), a PAC-Bayes\n"
-    "posterior (--kl-divergence ...), a compression scheme (--compression-size ...), any\n"
-    "combination; or a whole riskbound.v1.CertifyRequest in the protobuf\n"
+    "probability >= 1 - delta. Give hold-out counts (--errors/--samples); training counts\n"
+    "(--train-errors/--train-samples) with a capacity (--vc-dimension, --hypothesis-count,\n"
+    "--log-hypothesis-count, or --model KIND with its parameter flags) or with --rademacher;\n"
+    "a bounded loss (--mean-loss ...); a PAC-Bayes posterior (--kl-divergence ...); a\n"
+    "compression scheme (--compression-size ...); any combination of them; or a whole\n"
+    "riskbound.v1.CertifyRequest in the protobuf JSON mapping with --input (- for stdin).\n"
+    "Without --family, one recommended family gets the whole delta; with several families\n"
+    "(or 'all') each gets its share (union bound) and the tightest is reported."; or a whole riskbound.v1.CertifyRequest in the protobuf\n"
     "JSON mapping with --input (- for stdin). Without --family, one recommended family gets the\n"
     "whole delta; with several families (or 'all') each gets its share (union bound) and the\n"
     "tightest is reported.";
@@ -42,11 +45,9 @@ std::vector<OptionSpec> Specs() {
       {"samples", "N", "hold-out examples"},
       {"train-errors", "K", "training errors"},
       {"train-samples", "M", "training examples"},
-      {"vc-dimension", "H", "capacity: VC dimension of the class"},
-      {"hypothesis-count", "N", "capacity: number of hypotheses of a finite class"},
-      {"log-hypothesis-count", "X", "capacity: ln of the number of hypotheses"},
-      {"model", "KIND", "capacity: a model family with its parameter flags below, turned into a "
-                        "capacity by the server (kinds: `riskbound capacity --help`)"},
+  };
+  for (OptionSpec& s : CapacityOptions()) specs.push_back(s);
+  for (OptionSpec& s : std::vector<OptionSpec>{
       {"baseline-error-rate", "P", "error rate of a trivial classifier; bounds at or above it are vacuous"},
       {"mean-loss", "X", "bounded loss: mean per-example loss on a hold-out set"},
       {"loss-variance", "V", "bounded loss: unbiased sample variance of the losses"},
@@ -67,7 +68,9 @@ std::vector<OptionSpec> Specs() {
       {"weights", "W[,W]", "delta weights of the listed families, summing to <= 1"},
       {"input", "FILE", "read the request from a JSON file (- for stdin)"},
       {"output", "table|json", "output format (default table)"},
-  };
+  }) {
+    specs.push_back(s);
+  }
   for (OptionSpec& s : ModelParameterOptions()) {
     s.help = "with --model: " + s.help;
     specs.push_back(s);

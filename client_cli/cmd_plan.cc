@@ -77,15 +77,15 @@ std::vector<OptionSpec> TrainingSpecs() {
       {"expected-risk", "R", "the training error rate you expect, in [0,1]; required"},
       {"target-risk", "E", "the risk the bound must reach, in (0,1); required"},
       {"family", "NAME", "vc-additive, vc-relative, occam-hoeffding or occam-kl"},
-      {"vc-dimension", "H", "capacity: VC dimension of the class"},
-      {"hypothesis-count", "N", "capacity: number of hypotheses of a finite class"},
-      {"log-hypothesis-count", "X", "capacity: ln of the number of hypotheses"},
-      {"model", "KIND", "capacity: a model family with its parameter flags below, turned into a "
-                        "capacity by the server (kinds: `riskbound capacity --help`)"},
+  };
+  for (OptionSpec& s : CapacityOptions()) specs.push_back(s);
+  for (OptionSpec& s : std::vector<OptionSpec>{
       {"delta", "D", "failure probability in (0,1) (default 0.05)"},
       {"samples-held", "M", "training examples you already have"},
       {"output", "table|json", "output format (default table)"},
-  };
+  }) {
+    specs.push_back(s);
+  }
   for (OptionSpec& s : ModelParameterOptions()) {
     s.help = "with --model: " + s.help;
     specs.push_back(s);

@@ -116,6 +116,16 @@ std::string ModelKindList() {
   return absl::StrJoin(words, ", ");
 }
 
+std::vector<OptionSpec> CapacityOptions() {
+  return {
+      {"vc-dimension", "H", "capacity: VC dimension of the class"},
+      {"hypothesis-count", "N", "capacity: number of hypotheses of a finite class"},
+      {"log-hypothesis-count", "X", "capacity: ln of the number of hypotheses"},
+      {"model", "KIND", "capacity: a model family with its parameter flags below, turned into a "
+                        "capacity by the server (kinds: `riskbound capacity --help`)"},
+  };
+}
+
 std::vector<OptionSpec> ModelParameterOptions() {
   return {
       {"dimension", "D", "input dimension d (model.dimension)"},

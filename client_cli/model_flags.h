@@ -36,6 +36,11 @@ std::string ModelKindHelp();
 // Returns the CLI words of every kind, comma-separated.
 std::string ModelKindList();
 
+// CapacityOptions
+// The capacity flags of commands that take one: --vc-dimension,
+// --hypothesis-count, --log-hypothesis-count and --model KIND.
+std::vector<OptionSpec> CapacityOptions();
+
 // ModelParameterOptions
 // The parameter flags (--dimension, --widths, ...), each naming its field.
 std::vector<OptionSpec> ModelParameterOptions();
