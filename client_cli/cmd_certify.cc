@@ -34,10 +34,7 @@ constexpr char kSummary[] =
     "compression scheme (--compression-size ...); any combination of them; or a whole\n"
     "riskbound.v1.CertifyRequest in the protobuf JSON mapping with --input (- for stdin).\n"
     "Without --family, one recommended family gets the whole delta; with several families\n"
-    "(or 'all') each gets its share (union bound) and the tightest is reported."; or a whole riskbound.v1.CertifyRequest in the protobuf\n"
-    "JSON mapping with --input (- for stdin). Without --family, one recommended family gets the\n"
-    "whole delta; with several families (or 'all') each gets its share (union bound) and the\n"
-    "tightest is reported.";
+    "(or 'all') each gets its share (union bound) and the tightest is reported.";
 
 std::vector<OptionSpec> Specs() {
   std::vector<OptionSpec> specs = {
