@@ -169,6 +169,14 @@ absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
     } else if (!seen.insert(spec->family).second) {
       v.push_back({field, absl::StrCat(spec->slug, " is listed twice")});
       families_ok = false;
+    } else if (spec->family == Family::kBoundedHoeffding || spec->family == Family::kBoundedKl ||
+               spec->family == Family::kBoundedEmpiricalBernstein) {
+      // Their certificates bound an expected loss in the loss's own units;
+      // policy.max_risk is an error rate, so the two cannot be compared.
+      v.push_back({field, absl::StrCat(spec->slug,
+                                       " bounds an expected loss in its own units, not the "
+                                       "error rate that policy.max_risk limits")});
+      families_ok = false;
     }
   }
 

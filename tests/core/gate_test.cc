@@ -509,6 +509,13 @@ TEST(GateTest, InvalidPolicyNamesFields) {
   p.max_regression = 1.5;
   EXPECT_THAT(Fields(DecideGate(p, Candidate(1, 10), std::nullopt).status()),
               Contains("policy.max_regression"));
+  // A bounded-loss family bounds an expected loss in its own units, which
+  // max_risk (an error rate) cannot be compared with.
+  p = Policy(0.05, 0.05);
+  p.allowed_families = {Family::kHoldoutExactBinomial, Family::kBoundedKl};
+  EXPECT_THAT(DecideGate(p, Candidate(1, 10), std::nullopt),
+              StatusIs(absl::StatusCode::kInvalidArgument,
+                       HasSubstr("policy.allowed_families[1]: bounded-kl bounds an expected loss")));
 }
 
 TEST(GateTest, InvalidCandidateAndChampionNameFields) {
