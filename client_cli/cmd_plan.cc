@@ -86,10 +86,6 @@ std::vector<OptionSpec> TrainingSpecs() {
   }) {
     specs.push_back(s);
   }
-  for (OptionSpec& s : ModelParameterOptions()) {
-    s.help = "with --model: " + s.help;
-    specs.push_back(s);
-  }
   for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
   return specs;
 }

@@ -117,13 +117,18 @@ std::string ModelKindList() {
 }
 
 std::vector<OptionSpec> CapacityOptions() {
-  return {
+  std::vector<OptionSpec> specs = {
       {"vc-dimension", "H", "capacity: VC dimension of the class"},
       {"hypothesis-count", "N", "capacity: number of hypotheses of a finite class"},
       {"log-hypothesis-count", "X", "capacity: ln of the number of hypotheses"},
       {"model", "KIND", "capacity: a model family with its parameter flags below, turned into a "
                         "capacity by the server (kinds: `riskbound capacity --help`)"},
   };
+  for (OptionSpec& s : ModelParameterOptions()) {
+    s.help = "with --model: " + s.help;
+    specs.push_back(s);
+  }
+  return specs;
 }
 
 std::vector<OptionSpec> ModelParameterOptions() {

@@ -38,7 +38,8 @@ std::string ModelKindList();
 
 // CapacityOptions
 // The capacity flags of commands that take one: --vc-dimension,
-// --hypothesis-count, --log-hypothesis-count and --model KIND.
+// --hypothesis-count, --log-hypothesis-count, --model KIND and the model
+// parameter flags (their help prefixed "with --model:").
 std::vector<OptionSpec> CapacityOptions();
 
 // ModelParameterOptions
