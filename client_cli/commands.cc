@@ -4,6 +4,10 @@
 #include "client_cli/exit_codes.h"
 
 namespace riskbound::cli {
+
+// cmd_health.cc: the gRPC health probe.
+int RunHealth(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+
 namespace {
 
 constexpr char kOverview[] =
@@ -21,6 +25,7 @@ constexpr char kExitCodes[] =
     "  3  invalid input (refused by the server with the field named, or an unreadable file)\n"
     "  4  server unreachable (unavailable, or no answer within --timeout)\n"
     "  5  plan: the target risk is unreachable (the reason is printed)\n"
+    "  6  health: the server answered, but not SERVING\n"
     "  10 gate: verdict HOLD (0 is PROMOTE)\n"
     "  11 gate: verdict REJECT\n"
     "\n"
@@ -37,6 +42,7 @@ const std::vector<Command>& Commands() {
       {"gate", "PROMOTE, HOLD or REJECT a candidate model under a policy", RunGate},
       {"select", "choose along a nested model structure by the smallest bound (SRM)", RunSelect},
       {"plan", "hold-out or training sample size that reaches a target risk", RunPlan},
+      {"health", "the server's gRPC health status (exit 0 only when SERVING)", RunHealth},
   };
   return *kCommands;
 }
