@@ -1,75 +1,279 @@
 // riskbound-server: the gRPC service that certifies classifiers' true error.
 //
 // Flags are defined here only, read once, and passed down in a config struct.
+// Every flag has a kebab-case name (--port-file; the older --port_file is
+// still accepted) and a RISKBOUND_* environment variable; a flag given on the
+// command line wins over the environment.
 #include <pthread.h>
 #include <signal.h>
 
 #include <cstdio>
+#include <cstdlib>
+#include <algorithm>
 #include <fstream>
+#include <iostream>
 #include <memory>
 #include <string>
 #include <thread>
+#include <tuple>
+#include <vector>
 
+#include "absl/flags/commandlineflag.h"
 #include "absl/flags/flag.h"
-#include "absl/flags/parse.h"
-#include "absl/flags/usage.h"
+#include "absl/flags/reflection.h"
+#include "absl/strings/ascii.h"
+#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
+#include "absl/strings/str_replace.h"
+#include "absl/strings/str_split.h"
+#include "absl/strings/strip.h"
 #include "absl/time/time.h"
+#include "service/rpc/logging.h"
 #include "service/rpc/server.h"
-#include "spdlog/pattern_formatter.h"
 #include "spdlog/spdlog.h"
 
 ABSL_FLAG(std::string, listen, "127.0.0.1:50051",
-          "host:port to listen on; port 0 picks a free port (see --port_file)");
-ABSL_FLAG(int, threads, 4, "maximum threads serving requests");
-ABSL_FLAG(std::string, log_format, "text", "log line format: text or json");
-ABSL_FLAG(std::string, log_level, "info", "log level: debug (one line per request), info, warn");
+          "HOST:PORT to listen on (IPv6 as [ADDR]:PORT). Port 0 picks a free port (see "
+          "--port-file). A port another process listens on is refused, never shared.");
+ABSL_FLAG(int, threads, 0,
+          "threads computing answers: at most this many calls compute at once, whatever the "
+          "number of calls in flight (0: one per CPU core)");
+ABSL_FLAG(int, max_pending_calls, 64,
+          "calls admitted at once, computing or waiting for a thread; a call beyond this is "
+          "answered RESOURCE_EXHAUSTED at once (at least --threads)");
+ABSL_FLAG(double, max_call_seconds, 10,
+          "time budget of one call, whatever the client's deadline; a call past it stops and "
+          "answers DEADLINE_EXCEEDED (0 < S <= 3600)");
+ABSL_FLAG(int64_t, max_request_bytes, 4 << 20,
+          "largest request accepted, in bytes after decompression; a larger one is answered "
+          "RESOURCE_EXHAUSTED (1 KiB .. 1 GiB)");
+ABSL_FLAG(int64_t, max_response_bytes, 4 << 20,
+          "largest answer sent, in bytes; a larger one is answered RESOURCE_EXHAUSTED saying so. "
+          "4 MiB is what a default gRPC client accepts (1 KiB .. 1 GiB)");
+ABSL_FLAG(double, drain_seconds, 10,
+          "on SIGTERM or SIGINT: seconds the calls in flight may run before they are cancelled "
+          "and the process exits (0 .. 3600); a second signal exits at once");
+ABSL_FLAG(std::string, log_format, "text", "log line format: text or json (one object a line)");
+ABSL_FLAG(std::string, log_level, "info",
+          "log level: debug (adds one line per call), info, warn or error");
 ABSL_FLAG(std::string, port_file, "",
-          "if set, write the bound port to this file once serving (for tests and scripts)");
-ABSL_FLAG(int, drain_seconds, 10,
-          "on SIGTERM/SIGINT, seconds to let calls in flight finish before cancelling");
+          "if set, write the bound port to this file once serving (for tests and scripts); "
+          "a file that cannot be written stops the server with exit code 1");
 
 namespace {
 
-// %* in a spdlog pattern: the message, escaped for a JSON string.
-class JsonMessageFlag final : public spdlog::custom_flag_formatter {
- public:
-  void format(const spdlog::details::log_msg& msg, const std::tm&,
-              spdlog::memory_buf_t& dest) override {
-    for (char c : std::string_view(msg.payload.data(), msg.payload.size())) {
-      switch (c) {
-        case '"': dest.append(std::string_view("\\\"")); break;
-        case '\\': dest.append(std::string_view("\\\\")); break;
-        case '\n': dest.append(std::string_view("\\n")); break;
-        case '\t': dest.append(std::string_view("\\t")); break;
-        default:
-          if (static_cast<unsigned char>(c) < 0x20) {
-            char buf[8];
-            std::snprintf(buf, sizeof(buf), "\\u%04x", c);
-            dest.append(std::string_view(buf));
-          } else {
-            dest.push_back(c);
-          }
-      }
-    }
-  }
-  std::unique_ptr<custom_flag_formatter> clone() const override {
-    return std::make_unique<JsonMessageFlag>();
-  }
+// Exit codes (also in --help).
+constexpr int kExitDrained = 0;
+constexpr int kExitStartFailed = 1;
+constexpr int kExitUsage = 2;
+constexpr int kExitDrainExpired = 3;
+constexpr int kExitSecondSignal = 4;
+
+// The server's flags: kebab-case name, environment variable, value name.
+struct FlagSpec {
+  const char* name;
+  const char* env;
+  const char* value;
+};
+constexpr FlagSpec kFlags[] = {
+    {"listen", "RISKBOUND_LISTEN", "HOST:PORT"},
+    {"threads", "RISKBOUND_THREADS", "N"},
+    {"max-pending-calls", "RISKBOUND_MAX_PENDING_CALLS", "N"},
+    {"max-call-seconds", "RISKBOUND_MAX_CALL_SECONDS", "S"},
+    {"max-request-bytes", "RISKBOUND_MAX_REQUEST_BYTES", "N"},
+    {"max-response-bytes", "RISKBOUND_MAX_RESPONSE_BYTES", "N"},
+    {"drain-seconds", "RISKBOUND_DRAIN_SECONDS", "S"},
+    {"log-format", "RISKBOUND_LOG_FORMAT", "text|json"},
+    {"log-level", "RISKBOUND_LOG_LEVEL", "LEVEL"},
+    {"port-file", "RISKBOUND_PORT_FILE", "PATH"},
 };
 
-bool ConfigureLogging(const std::string& format, const std::string& level) {
-  const auto lvl = spdlog::level::from_str(level);
-  if (lvl == spdlog::level::off && level != "off") return false;
-  spdlog::set_level(lvl);
+absl::CommandLineFlag* FlagOf(const FlagSpec& spec) {
+  return absl::FindCommandLineFlag(absl::StrReplaceAll(spec.name, {{"-", "_"}}));
+}
+
+const FlagSpec* FindSpec(absl::string_view name) {
+  const std::string kebab = absl::StrReplaceAll(name, {{"_", "-"}});
+  for (const FlagSpec& spec : kFlags) {
+    if (kebab == spec.name) return &spec;
+  }
+  return nullptr;
+}
+
+void PrintHelp() {
+  std::cout
+      << "riskbound-server: certifies upper bounds on classifiers' true error over gRPC\n"
+         "(riskbound.v1.RiskBound, grpc.health.v1 health checking, server reflection).\n\n"
+         "usage: riskbound-server [--flag=value | --flag value]...\n\n"
+         "Every flag can also be set by its environment variable; a flag on the command\n"
+         "line wins. The older snake_case spellings (--port_file) are accepted too.\n\n"
+         "flags:\n";
+  for (const FlagSpec& spec : kFlags) {
+    const absl::CommandLineFlag* flag = FlagOf(spec);
+    std::cout << "  --" << spec.name << " " << spec.value << "  (env " << spec.env
+              << "; default " << (flag->DefaultValue().empty() ? "none" : flag->DefaultValue())
+              << ")\n      " << flag->Help() << "\n";
+  }
+  std::cout << "  --help, -h       this text\n"
+               "  --version        the engine version\n\n"
+               "health: grpc.health.v1 reports SERVING for \"\" and \""
+            << riskbound::rpc::kHealthServiceName
+            << "\" once started, NOT_SERVING\nfrom the moment a drain starts.\n\n"
+               "exit codes:\n"
+               "  0  stopped by SIGTERM or SIGINT; every call in flight finished in the drain "
+               "period\n"
+               "  1  could not start (address in use, malformed or not local; port file not "
+               "writable)\n"
+               "  2  usage error (unknown flag, bad value, stray argument)\n"
+               "  3  the drain period ran out: calls still in flight were cancelled\n"
+               "  4  a second signal during the drain: exited at once\n";
+}
+
+int UsageError(const std::string& message) {
+  std::cerr << "riskbound-server: " << message << " (see riskbound-server --help)\n";
+  return kExitUsage;
+}
+
+// Sets every flag from its environment variable, then from argv. Returns -1
+// to go on, or the exit code to return (help, version, usage error).
+int ReadFlags(int argc, char** argv) {
+  for (const FlagSpec& spec : kFlags) {
+    const char* value = std::getenv(spec.env);
+    if (value == nullptr) continue;
+    std::string error;
+    if (!FlagOf(spec)->ParseFrom(value, &error)) {
+      return UsageError(absl::StrCat("environment ", spec.env, "=\"", value, "\": ", error));
+    }
+  }
+  for (int i = 1; i < argc; ++i) {
+    const absl::string_view arg = argv[i];
+    if (arg == "--help" || arg == "-h" || arg == "-help") {
+      PrintHelp();
+      return kExitDrained;
+    }
+    if (arg == "--version") {
+      std::cout << "riskbound-server " << RISKBOUND_ENGINE_VERSION << "\n";
+      return kExitDrained;
+    }
+    if (!absl::StartsWith(arg, "--")) {
+      return UsageError(absl::StrCat("unexpected argument \"", arg,
+                                     "\": riskbound-server takes flags only"));
+    }
+    absl::string_view body = arg.substr(2);
+    std::string name, value;
+    bool has_value = false;
+    if (const auto eq = body.find('='); eq != absl::string_view::npos) {
+      name = std::string(body.substr(0, eq));
+      value = std::string(body.substr(eq + 1));
+      has_value = true;
+    } else {
+      name = std::string(body);
+    }
+    const FlagSpec* spec = FindSpec(name);
+    if (spec == nullptr) return UsageError(absl::StrCat("unknown flag --", name));
+    if (!has_value) {
+      if (i + 1 >= argc) return UsageError(absl::StrCat("--", spec->name, " needs a value"));
+      value = argv[++i];
+    }
+    std::string error;
+    if (!FlagOf(*spec)->ParseFrom(value, &error)) {
+      return UsageError(absl::StrCat("--", spec->name, "=\"", value, "\": ", error));
+    }
+  }
+  return -1;
+}
+
+// Checks HOST:PORT (IPv6 in brackets): a host, and a decimal port in 0..65535.
+std::string ListenAddressProblem(const std::string& address) {
+  const auto colon = address.rfind(':');
+  if (colon == std::string::npos || colon == 0) {
+    return "must be HOST:PORT (e.g. 127.0.0.1:50051, [::1]:0, 0.0.0.0:50051)";
+  }
+  const std::string host = address.substr(0, colon);
+  const std::string port = address.substr(colon + 1);
+  if (host.find(':') != std::string::npos && !(host.front() == '[' && host.back() == ']')) {
+    return "an IPv6 host must be written in brackets, e.g. [::1]:50051";
+  }
+  std::uint32_t number = 0;
+  if (port.empty() || port.size() > 5 ||
+      !std::all_of(port.begin(), port.end(), [](char c) { return absl::ascii_isdigit(c); }) ||
+      !absl::SimpleAtoi(port, &number) || number > 65535) {
+    return absl::StrCat("the port must be a number from 0 to 65535, got \"", port, "\"");
+  }
+  return "";
+}
+
+// Validated configuration, or the usage error to print.
+struct Settings {
+  riskbound::rpc::ServerConfig server;
+  absl::Duration drain;
+  riskbound::rpc::LogFormat log_format = riskbound::rpc::LogFormat::kText;
+  std::string log_level;
+  std::string port_file;
+};
+
+std::string SettingsProblem(Settings* s) {
+  s->server.listen_address = absl::GetFlag(FLAGS_listen);
+  if (std::string p = ListenAddressProblem(s->server.listen_address); !p.empty()) {
+    return absl::StrCat("--listen=\"", s->server.listen_address, "\": ", p);
+  }
+  int threads = absl::GetFlag(FLAGS_threads);
+  if (threads < 0 || threads > 1024) {
+    return absl::StrCat("--threads: must be 0 (one per core) to 1024, got ", threads);
+  }
+  if (threads == 0) threads = std::max(1u, std::thread::hardware_concurrency());
+  s->server.threads = threads;
+  const int pending = absl::GetFlag(FLAGS_max_pending_calls);
+  if (pending < threads || pending > 100000) {
+    return absl::StrCat("--max-pending-calls: must be from --threads (", threads,
+                        ") to 100000, got ", pending);
+  }
+  s->server.max_pending_calls = pending;
+  const double call_seconds = absl::GetFlag(FLAGS_max_call_seconds);
+  if (!(call_seconds > 0 && call_seconds <= 3600)) {
+    return absl::StrCat("--max-call-seconds: must be > 0 and <= 3600, got ", call_seconds);
+  }
+  s->server.limits.max_call_time = absl::Seconds(call_seconds);
+  for (auto [name, value, out] :
+       {std::tuple{"--max-request-bytes", absl::GetFlag(FLAGS_max_request_bytes),
+                   &s->server.limits.max_request_bytes},
+        std::tuple{"--max-response-bytes", absl::GetFlag(FLAGS_max_response_bytes),
+                   &s->server.limits.max_response_bytes}}) {
+    if (value < 1024 || value > (int64_t{1} << 30)) {
+      return absl::StrCat(name, ": must be from 1024 to 1073741824 bytes, got ", value);
+    }
+    *out = value;
+  }
+  const double drain = absl::GetFlag(FLAGS_drain_seconds);
+  if (!(drain >= 0 && drain <= 3600)) {
+    return absl::StrCat("--drain-seconds: must be from 0 to 3600, got ", drain);
+  }
+  s->drain = absl::Seconds(drain);
+  const std::string format = absl::GetFlag(FLAGS_log_format);
   if (format == "json") {
-    auto formatter = std::make_unique<spdlog::pattern_formatter>(spdlog::pattern_time_type::utc);
-    formatter->add_flag<JsonMessageFlag>('*').set_pattern(
-        R"({"time":"%Y-%m-%dT%H:%M:%S.%fZ","level":"%l","service":"riskbound","message":"%*"})");
-    spdlog::set_formatter(std::move(formatter));
-  } else if (format == "text") {
-    spdlog::set_pattern("%Y-%m-%dT%H:%M:%S.%fZ %l riskbound %v", spdlog::pattern_time_type::utc);
-  } else {
+    s->log_format = riskbound::rpc::LogFormat::kJson;
+  } else if (format != "text") {
+    return absl::StrCat("--log-format: must be text or json, got \"", format, "\"");
+  }
+  s->log_level = absl::GetFlag(FLAGS_log_level);
+  s->port_file = absl::GetFlag(FLAGS_port_file);
+  return "";
+}
+
+bool WritePortFile(const std::string& path, int port, std::string* error) {
+  const std::string tmp = path + ".tmp";
+  {
+    std::ofstream out(tmp);
+    out << port << "\n";
+    out.close();
+    if (!out) {
+      *error = absl::StrCat("cannot write ", tmp);
+      return false;
+    }
+  }
+  if (std::rename(tmp.c_str(), path.c_str()) != 0) {
+    std::remove(tmp.c_str());
+    *error = absl::StrCat("cannot rename ", tmp, " to ", path);
     return false;
   }
   return true;
@@ -78,52 +282,72 @@ bool ConfigureLogging(const std::string& format, const std::string& level) {
 }  // namespace
 
 int main(int argc, char** argv) {
-  absl::SetProgramUsageMessage(
-      "riskbound-server: certifies upper bounds on classifiers' true error over gRPC "
-      "(riskbound.v1.RiskBound, grpc.health.v1, server reflection).");
-  absl::ParseCommandLine(argc, argv);
-  if (!ConfigureLogging(absl::GetFlag(FLAGS_log_format), absl::GetFlag(FLAGS_log_level))) {
-    std::fprintf(stderr, "riskbound-server: --log_format must be text or json and --log_level "
-                         "one of debug, info, warn, error\n");
-    return 2;
+  if (const int code = ReadFlags(argc, argv); code >= 0) return code;
+  Settings settings;
+  if (std::string problem = SettingsProblem(&settings); !problem.empty()) {
+    return UsageError(problem);
+  }
+  if (absl::Status s = riskbound::rpc::ConfigureLogging(settings.log_format, settings.log_level);
+      !s.ok()) {
+    return UsageError(absl::StrCat("--log-level: ", s.message()));
   }
 
   // Block the shutdown signals before gRPC starts its threads, so that only
-  // the waiter below receives them.
+  // this thread (sigwait below) receives them.
   sigset_t signals;
   sigemptyset(&signals);
   sigaddset(&signals, SIGINT);
   sigaddset(&signals, SIGTERM);
   pthread_sigmask(SIG_BLOCK, &signals, nullptr);
 
-  riskbound::rpc::ServerConfig config;
-  config.listen_address = absl::GetFlag(FLAGS_listen);
-  config.threads = absl::GetFlag(FLAGS_threads);
-  auto server = riskbound::rpc::StartServer(config);
+  auto server = riskbound::rpc::StartServer(settings.server);
   if (!server.ok()) {
-    spdlog::error("startup failed: {}", server.status().ToString());
-    return 1;
+    spdlog::error("startup failed: {}", std::string(server.status().message()));
+    return kExitStartFailed;
   }
-  const int port = (*server)->port();
-  const std::string port_file = absl::GetFlag(FLAGS_port_file);
-  if (!port_file.empty()) {
-    const std::string tmp = port_file + ".tmp";
-    std::ofstream(tmp) << port << "\n";
-    std::rename(tmp.c_str(), port_file.c_str());
-  }
-  spdlog::info("serving riskbound.v1 version={} listen={} port={} threads={}",
-               RISKBOUND_ENGINE_VERSION, config.listen_address, port, config.threads);
-
-  const absl::Duration grace = absl::Seconds(absl::GetFlag(FLAGS_drain_seconds));
   riskbound::rpc::RunningServer* running = server->get();
-  std::thread waiter([&signals, running, grace] {
-    int sig = 0;
-    sigwait(&signals, &sig);
-    spdlog::info("signal {} received: draining for up to {}s", sig, absl::ToInt64Seconds(grace));
-    running->Shutdown(grace);
+  const int port = running->port();
+  if (!settings.port_file.empty()) {
+    std::string error;
+    if (!WritePortFile(settings.port_file, port, &error)) {
+      spdlog::error("startup failed: --port-file: {}", error);
+      running->Drain(absl::ZeroDuration());
+      return kExitStartFailed;
+    }
+  }
+  const auto& c = settings.server;
+  spdlog::info(
+      "serving riskbound.v1 version={} listen={} port={} threads={} max_pending_calls={} "
+      "max_call_seconds={} max_request_bytes={} max_response_bytes={} drain_seconds={}",
+      RISKBOUND_ENGINE_VERSION, c.listen_address, port, c.threads, c.max_pending_calls,
+      absl::ToDoubleSeconds(c.limits.max_call_time), c.limits.max_request_bytes,
+      c.limits.max_response_bytes, absl::ToDoubleSeconds(settings.drain));
+
+  int sig = 0;
+  sigwait(&signals, &sig);
+  spdlog::info("signal {} received: draining for up to {}s (a second signal exits at once)", sig,
+               absl::ToDoubleSeconds(settings.drain));
+  std::thread second([&signals] {
+    int again = 0;
+    sigwait(&signals, &again);
+    spdlog::warn("second signal {} received: exiting now", again);
+    spdlog::shutdown();
+    std::_Exit(kExitSecondSignal);
   });
-  running->Wait();
-  waiter.join();
-  spdlog::info("stopped");
-  return 0;
+  second.detach();
+  switch (running->Drain(settings.drain)) {
+    case riskbound::rpc::DrainOutcome::kClean:
+      spdlog::info("stopped: every call in flight finished");
+      server->reset();
+      return kExitDrained;
+    case riskbound::rpc::DrainOutcome::kCancelled:
+      spdlog::warn("stopped: the drain period ran out and the calls in flight were cancelled");
+      server->reset();
+      return kExitDrainExpired;
+    case riskbound::rpc::DrainOutcome::kAbandoned:
+      break;
+  }
+  spdlog::warn("stopped: the drain period ran out and a call did not stop when cancelled");
+  spdlog::shutdown();
+  std::_Exit(kExitDrainExpired);
 }

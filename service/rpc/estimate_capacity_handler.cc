@@ -1,24 +1,19 @@
 // RiskBound.EstimateCapacity: convert -> core::EstimateCapacity -> convert.
 // The core names bad fields "model.<field>", which is their path in the
 // request, so its errors pass through unchanged.
-#include "absl/time/clock.h"
 #include "service/core/capacity.h"
 #include "service/rpc/capacity_convert.h"
-#include "service/rpc/handler_util.h"
-#include "service/rpc/riskbound_service.h"
+#include "service/rpc/handlers.h"
 
 namespace riskbound::rpc {
 
-grpc::Status RiskBoundService::EstimateCapacity(grpc::ServerContext* /*context*/,
-                                                const v1::EstimateCapacityRequest* request,
-                                                v1::EstimateCapacityResponse* response) {
-  const absl::Time start = absl::Now();
-  absl::StatusOr<core::ModelDescription> model = EstimateCapacityRequestFromProto(*request);
-  if (!model.ok()) return FinishCall("EstimateCapacity", start, model.status());
-  absl::StatusOr<core::CapacityEstimate> estimate = core::EstimateCapacity(*model);
-  if (!estimate.ok()) return FinishCall("EstimateCapacity", start, estimate.status());
-  *response = EstimateCapacityResponseToProto(*estimate);
-  return FinishCall("EstimateCapacity", start, absl::OkStatus());
+absl::StatusOr<v1::EstimateCapacityResponse> HandleEstimateCapacity(
+    const v1::EstimateCapacityRequest& request, const core::StopToken& stop) {
+  absl::StatusOr<core::ModelDescription> model = EstimateCapacityRequestFromProto(request);
+  if (!model.ok()) return model.status();
+  absl::StatusOr<core::CapacityEstimate> estimate = core::EstimateCapacity(*model /*STOPTOKEN*/);
+  if (!estimate.ok()) return estimate.status();
+  return EstimateCapacityResponseToProto(*estimate);
 }
 
 }  // namespace riskbound::rpc

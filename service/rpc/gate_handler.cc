@@ -3,22 +3,18 @@
 #include "absl/time/clock.h"
 #include "service/core/gate.h"
 #include "service/rpc/gate_convert.h"
-#include "service/rpc/handler_util.h"
-#include "service/rpc/riskbound_service.h"
+#include "service/rpc/handlers.h"
 
 namespace riskbound::rpc {
 
-grpc::Status RiskBoundService::Gate(grpc::ServerContext* /*context*/,
-                                    const v1::GateRequest* request,
-                                    v1::GateResponse* response) {
-  const absl::Time start = absl::Now();
-  absl::StatusOr<GateInputs> inputs = GateInputsFromProto(*request);
-  if (!inputs.ok()) return FinishCall("Gate", start, inputs.status());
+absl::StatusOr<v1::GateResponse> HandleGate(const v1::GateRequest& request,
+                                            const core::StopToken& stop) {
+  absl::StatusOr<GateInputs> inputs = GateInputsFromProto(request);
+  if (!inputs.ok()) return inputs.status();
   absl::StatusOr<core::GateDecision> decision =
-      core::DecideGate(inputs->policy, inputs->candidate, inputs->champion);
-  if (!decision.ok()) return FinishCall("Gate", start, decision.status());
-  *response = GateResponseToProto(*decision, *request, absl::Now());
-  return FinishCall("Gate", start, absl::OkStatus());
+      core::DecideGate(inputs->policy, inputs->candidate, inputs->champion /*STOPTOKEN*/);
+  if (!decision.ok()) return decision.status();
+  return GateResponseToProto(*decision, request, absl::Now());
 }
 
 }  // namespace riskbound::rpc

@@ -1,30 +1,105 @@
-// The riskbound.v1.RiskBound service: thin handlers that convert, call the
-// core, convert back, and log one line per request at debug level (FinishCall).
-// Each handler is defined in its own file, <method>_handler.cc.
+// The riskbound.v1.RiskBound service on gRPC's callback API.
+//
+// Every method is registered raw (request and response as bytes), so the
+// service decodes the request itself and can answer INVALID_ARGUMENT for a
+// body that is not a valid message. Each call is admitted to the CallPool or
+// refused at once (RESOURCE_EXHAUSTED when full, UNAVAILABLE while
+// draining), runs one of the handlers.h functions on a pool thread with a
+// StopToken that fires when the client cancels, its deadline or the server's
+// per-call limit passes, or the drain period ends; the answer is refused with
+// RESOURCE_EXHAUSTED when it is larger than the response limit.
 #ifndef RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_
 #define RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_
 
+#include <cstdint>
+#include <atomic>
+
+#include "absl/base/thread_annotations.h"
+#include "absl/status/statusor.h"
+#include "absl/container/flat_hash_set.h"
+#include "absl/synchronization/mutex.h"
+#include "absl/time/time.h"
 #include "riskbound/v1/riskbound.grpc.pb.h"
+#include "service/core/stop.h"
+#include "service/rpc/call_pool.h"
 
 namespace riskbound::rpc {
 
+// The per-call limits the service enforces.
+struct CallLimits {
+  // Largest request accepted, in bytes after decompression (gRPC refuses a
+  // larger one with RESOURCE_EXHAUSTED before the service sees it).
+  std::int64_t max_request_bytes = 4 << 20;
+  // Largest answer sent, in bytes; a larger one becomes RESOURCE_EXHAUSTED
+  // saying so (4 MiB is what a default gRPC client accepts).
+  std::int64_t max_response_bytes = 4 << 20;
+  // Wall-clock budget of one call from admission, whatever the client's
+  // deadline; past it the call stops with DEADLINE_EXCEEDED.
+  absl::Duration max_call_time = absl::Seconds(10);
+};
+
+namespace internal {
+using RawRiskBoundService = v1::RiskBound::WithRawCallbackMethod_Certify<
+    v1::RiskBound::WithRawCallbackMethod_EstimateCapacity<
+        v1::RiskBound::WithRawCallbackMethod_Gate<
+            v1::RiskBound::WithRawCallbackMethod_SelectStructure<
+                v1::RiskBound::WithRawCallbackMethod_PlanSamples<v1::RiskBound::Service>>>>>;
+class CallReactor;
+}  // namespace internal
+
 // RiskBoundService
-// Stateless: every handler is a pure function of its request, so one instance
-// serves any number of concurrent calls. Thread-safe.
-class RiskBoundService final : public v1::RiskBound::Service {
+// Stateless apart from the set of calls in flight (for CancelAll).
+// Thread-safe.
+class RiskBoundService final : public internal::RawRiskBoundService {
  public:
-  grpc::Status Certify(grpc::ServerContext* context, const v1::CertifyRequest* request,
-                       v1::CertifyResponse* response) override;
-  grpc::Status EstimateCapacity(grpc::ServerContext* context,
-                                const v1::EstimateCapacityRequest* request,
-                                v1::EstimateCapacityResponse* response) override;
-  grpc::Status Gate(grpc::ServerContext* context, const v1::GateRequest* request,
-                    v1::GateResponse* response) override;
-  grpc::Status SelectStructure(grpc::ServerContext* context,
-                               const v1::SelectStructureRequest* request,
-                               v1::SelectStructureResponse* response) override;
-  grpc::Status PlanSamples(grpc::ServerContext* context, const v1::PlanSamplesRequest* request,
-                           v1::PlanSamplesResponse* response) override;
+  // REQUIRES: `pool` outlives the service.
+  RiskBoundService(CallPool* pool, CallLimits limits);
+
+  grpc::ServerUnaryReactor* Certify(grpc::CallbackServerContext* context,
+                                    const grpc::ByteBuffer* request,
+                                    grpc::ByteBuffer* response) override;
+  grpc::ServerUnaryReactor* EstimateCapacity(grpc::CallbackServerContext* context,
+                                             const grpc::ByteBuffer* request,
+                                             grpc::ByteBuffer* response) override;
+  grpc::ServerUnaryReactor* Gate(grpc::CallbackServerContext* context,
+                                 const grpc::ByteBuffer* request,
+                                 grpc::ByteBuffer* response) override;
+  grpc::ServerUnaryReactor* SelectStructure(grpc::CallbackServerContext* context,
+                                            const grpc::ByteBuffer* request,
+                                            grpc::ByteBuffer* response) override;
+  grpc::ServerUnaryReactor* PlanSamples(grpc::CallbackServerContext* context,
+                                        const grpc::ByteBuffer* request,
+                                        grpc::ByteBuffer* response) override;
+
+  // StartDrain
+  // New calls are refused with UNAVAILABLE from now on. Thread-safe.
+  void StartDrain();
+
+  // CancelAll
+  // Fires the StopToken of every call in flight: each stops at its next check
+  // and answers UNAVAILABLE (draining) or CANCELLED. Thread-safe.
+  void CancelAll();
+
+  // The number of calls started and not yet done. Thread-safe.
+  int calls_in_flight() const;
+
+ private:
+  friend class internal::CallReactor;
+  template <class Request, class Response>
+  grpc::ServerUnaryReactor* Dispatch(
+      const char* method, grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
+      grpc::ByteBuffer* response,
+      absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&));
+  void Register(internal::CallReactor* call);
+  void Unregister(internal::CallReactor* call);
+
+  // Constant after construction.
+  CallPool* const pool_;
+  const CallLimits limits_;
+
+  std::atomic<bool> draining_{false};
+  mutable absl::Mutex mu_;
+  absl::flat_hash_set<internal::CallReactor*> calls_ ABSL_GUARDED_BY(mu_);
 };
 
 }  // namespace riskbound::rpc

@@ -1,54 +1,105 @@
 #include "service/rpc/server.h"
 
 #include <chrono>
+#include <thread>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
+#include "absl/synchronization/notification.h"
+#include "absl/time/clock.h"
 #include "grpcpp/ext/proto_server_reflection_plugin.h"
 #include "grpcpp/health_check_service_interface.h"
 #include "grpcpp/security/server_credentials.h"
 #include "grpcpp/server_builder.h"
-#include "grpcpp/support/time.h"
 
 namespace riskbound::rpc {
 
-RunningServer::RunningServer(std::unique_ptr<RiskBoundService> service,
+RunningServer::RunningServer(std::unique_ptr<CallPool> pool,
+                             std::unique_ptr<RiskBoundService> service,
                              std::unique_ptr<grpc::Server> server, int port)
-    : service_(std::move(service)), server_(std::move(server)), port_(port) {}
+    : pool_(std::move(pool)),
+      service_(std::move(service)),
+      server_(std::move(server)),
+      port_(port) {}
 
-RunningServer::~RunningServer() { Shutdown(absl::ZeroDuration()); }
-
-void RunningServer::Shutdown(absl::Duration grace) {
-  if (auto* health = server_->GetHealthCheckService()) health->Shutdown();
-  server_->Shutdown(std::chrono::system_clock::now() + absl::ToChronoMilliseconds(grace));
+RunningServer::~RunningServer() {
+  if (Drain(absl::ZeroDuration()) == DrainOutcome::kAbandoned) {
+    // A handler ignored its cancellation: joining the pool would hang.
+    (void)pool_.release();
+    (void)service_.release();
+    (void)server_.release();
+  }
 }
 
-void RunningServer::Wait() { server_->Wait(); }
+DrainOutcome RunningServer::Drain(absl::Duration grace) {
+  absl::MutexLock lock(&mu_);
+  if (outcome_.has_value()) return *outcome_;
+  if (auto* health = server_->GetHealthCheckService()) health->Shutdown();
+  service_->StartDrain();
+  pool_->StopAdmitting();
+  // grpc::Server::Shutdown stops the listener at once, and at the deadline
+  // cancels the calls still running; it returns once every call is done.
+  auto done = std::make_shared<absl::Notification>();
+  grpc::Server* server = server_.get();
+  const auto deadline = std::chrono::system_clock::now() + absl::ToChronoMilliseconds(grace);
+  std::thread shutdown([server, deadline, done] {
+    server->Shutdown(deadline);
+    done->Notify();
+  });
+  const bool clean = pool_->WaitIdle(grace);
+  if (!clean) service_->CancelAll();
+  const absl::Time give_up = absl::Now() + absl::Seconds(1);
+  if (!done->WaitForNotificationWithTimeout(absl::Seconds(1)) ||
+      !pool_->WaitIdle(give_up - absl::Now())) {
+    shutdown.detach();
+    outcome_ = DrainOutcome::kAbandoned;
+    return *outcome_;
+  }
+  shutdown.join();
+  server_->Wait();
+  outcome_ = clean ? DrainOutcome::kClean : DrainOutcome::kCancelled;
+  return *outcome_;
+}
 
 absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& config) {
   if (config.threads < 1) {
     return absl::InvalidArgumentError(
         absl::StrCat("threads: must be at least 1, got ", config.threads));
   }
+  if (config.max_pending_calls < config.threads) {
+    return absl::InvalidArgumentError(
+        absl::StrCat("max_pending_calls: must be at least threads (", config.threads, "), got ",
+                     config.max_pending_calls));
+  }
   grpc::EnableDefaultHealthCheckService(true);
   grpc::reflection::InitProtoReflectionServerBuilderPlugin();
-  auto service = std::make_unique<RiskBoundService>();
+  auto pool = std::make_unique<CallPool>(config.threads, config.max_pending_calls);
+  auto service = std::make_unique<RiskBoundService>(pool.get(), config.limits);
   grpc::ServerBuilder builder;
   int port = 0;
   // TLS, mTLS and token auth are planned; today the server listens in plaintext
   // and defaults to loopback.
   builder.AddListeningPort(config.listen_address, grpc::InsecureServerCredentials(), &port);
+  // Never share the port with another process (a stale server would answer
+  // part of the traffic).
+  builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
+  builder.SetMaxReceiveMessageSize(static_cast<int>(config.limits.max_request_bytes));
+  builder.SetMaxSendMessageSize(static_cast<int>(config.limits.max_response_bytes) + 1024);
   builder.RegisterService(service.get());
-  builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MAX_POLLERS,
-                              config.threads);
+  // Only reflection is served by gRPC's synchronous threads; keep them few.
+  builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MIN_POLLERS, 1);
+  builder.SetSyncServerOption(grpc::ServerBuilder::SyncServerOption::MAX_POLLERS, 2);
   std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
   if (server == nullptr || port == 0) {
     return absl::UnavailableError(
         absl::StrCat("cannot listen on ", config.listen_address,
                      " (address in use, malformed, or not local)"));
   }
-  server->GetHealthCheckService()->SetServingStatus(true);
-  return std::make_unique<RunningServer>(std::move(service), std::move(server), port);
+  grpc::HealthCheckServiceInterface* health = server->GetHealthCheckService();
+  health->SetServingStatus(true);
+  health->SetServingStatus(kHealthServiceName, true);
+  return std::make_unique<RunningServer>(std::move(pool), std::move(service), std::move(server),
+                                         port);
 }
 
 }  // namespace riskbound::rpc

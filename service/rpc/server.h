@@ -1,30 +1,54 @@
-// Starting the riskbound gRPC server: the service, gRPC health checking
-// (grpc.health.v1, SERVING once started) and server reflection.
+// Starting and draining the riskbound gRPC server: the service, gRPC health
+// checking (grpc.health.v1, for "" and "riskbound.v1.RiskBound") and server
+// reflection.
 #ifndef RISKBOUND_SERVICE_RPC_SERVER_H_
 #define RISKBOUND_SERVICE_RPC_SERVER_H_
 
 #include <memory>
+#include <optional>
 #include <string>
 
 #include "absl/status/statusor.h"
+#include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 #include "grpcpp/server.h"
+#include "service/rpc/call_pool.h"
 #include "service/rpc/riskbound_service.h"
 
 namespace riskbound::rpc {
 
+// The service name the health service reports besides "".
+inline constexpr char kHealthServiceName[] = "riskbound.v1.RiskBound";
+
 struct ServerConfig {
   // host:port to listen on; port 0 picks a free port (read it back from
-  // RunningServer::port()).
+  // RunningServer::port()). The port must not be in use by another process.
   std::string listen_address = "127.0.0.1:50051";
-  // Threads that serve requests (gRPC sync server polling threads, max).
+  // Threads that compute answers: at most this many calls compute at once.
   int threads = 4;
+  // Calls admitted at once (computing plus waiting for a thread); a call
+  // beyond is refused with RESOURCE_EXHAUSTED. REQUIRES: >= threads.
+  int max_pending_calls = 64;
+  // Per-call limits (request and response sizes, time budget).
+  CallLimits limits;
 };
 
-// A started server. Destroying it shuts it down.
+// How a drain ended.
+enum class DrainOutcome {
+  // Every call in flight finished within the drain period.
+  kClean,
+  // The period ran out; the calls still in flight were cancelled and have
+  // finished since.
+  kCancelled,
+  // The period ran out and some handler did not finish within a second of
+  // being cancelled; it was abandoned (the caller should exit the process).
+  kAbandoned,
+};
+
+// A started server. Destroying it drains with no grace.
 class RunningServer {
  public:
-  RunningServer(std::unique_ptr<RiskBoundService> service,
+  RunningServer(std::unique_ptr<CallPool> pool, std::unique_ptr<RiskBoundService> service,
                 std::unique_ptr<grpc::Server> server, int port);
   ~RunningServer();
   RunningServer(const RunningServer&) = delete;
@@ -33,26 +57,31 @@ class RunningServer {
   // The port the server is bound to.
   int port() const { return port_; }
   grpc::Server* server() { return server_.get(); }
+  RiskBoundService* service() { return service_.get(); }
 
-  // Shutdown
-  // Marks health NOT_SERVING, stops accepting calls and waits up to `grace`
-  // for calls in flight before cancelling them. Idempotent. Thread-safe.
-  void Shutdown(absl::Duration grace);
-
-  // Wait
-  // Blocks until the server has shut down.
-  void Wait();
+  // Drain
+  // Marks both health names NOT_SERVING, stops accepting calls, lets the
+  // calls in flight run for up to `grace`, then cancels them (each observes
+  // its StopToken) and waits at most one more second. Returns how it ended.
+  // The first call does the work; later calls return its outcome at once.
+  // Thread-safe.
+  DrainOutcome Drain(absl::Duration grace);
 
  private:
   // Constant after construction.
+  std::unique_ptr<CallPool> pool_;
   std::unique_ptr<RiskBoundService> service_;
   std::unique_ptr<grpc::Server> server_;
   const int port_;
+
+  absl::Mutex mu_;
+  std::optional<DrainOutcome> outcome_ ABSL_GUARDED_BY(mu_);
 };
 
 // StartServer
 // Builds and starts the server. Returns UNAVAILABLE when the address cannot be
-// bound, INVALID_ARGUMENT for threads < 1.
+// bound (malformed, not local, or in use: the port is never shared with
+// another process), INVALID_ARGUMENT for a bad config value.
 absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& config);
 
 }  // namespace riskbound::rpc

@@ -1,0 +1,241 @@
+#include "service/rpc/riskbound_service.h"
+
+#include <algorithm>
+#include <string>
+#include <vector>
+
+#include "absl/random/random.h"
+#include "absl/strings/ascii.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
+#include "absl/time/clock.h"
+#include "grpcpp/support/byte_buffer.h"
+#include "grpcpp/support/slice.h"
+#include "service/core/stop.h"
+#include "service/rpc/handlers.h"
+#include "service/rpc/logging.h"
+#include "service/rpc/status.h"
+
+namespace riskbound::rpc {
+namespace internal {
+
+// One call: its StopToken, fired by gRPC's OnCancel (client gone, deadline)
+// or by the service's CancelAll (drain period over). Owned by gRPC from
+// creation to OnDone, when it deletes itself.
+class CallReactor final : public grpc::ServerUnaryReactor {
+ public:
+  CallReactor(RiskBoundService* owner, absl::Time deadline) : owner_(owner), stop_(deadline) {
+    owner_->Register(this);
+  }
+  void OnCancel() override { stop_.Cancel(); }
+  void OnDone() override {
+    owner_->Unregister(this);
+    delete this;
+  }
+  core::StopToken& stop() { return stop_; }
+
+ private:
+  RiskBoundService* const owner_;
+  core::StopToken stop_;
+};
+
+}  // namespace internal
+namespace {
+
+using internal::CallReactor;
+
+constexpr std::size_t kMaxRequestIdLength = 64;
+
+// The caller's x-request-id when it is a sane token (letters, digits and
+// ".-_:", at most 64 characters), else a fresh random one.
+std::string RequestIdFor(const grpc::CallbackServerContext& context) {
+  const auto& metadata = context.client_metadata();
+  auto it = metadata.find("x-request-id");
+  if (it != metadata.end()) {
+    const std::string given(it->second.data(), it->second.size());
+    const bool sane = !given.empty() && given.size() <= kMaxRequestIdLength &&
+                      std::all_of(given.begin(), given.end(), [](char c) {
+                        return absl::ascii_isalnum(static_cast<unsigned char>(c)) ||
+                               c == '.' || c == '-' || c == '_' || c == ':';
+                      });
+    if (sane) return given;
+  }
+  thread_local absl::BitGen bits;
+  return absl::StrFormat("%016x", absl::Uniform<std::uint64_t>(bits));
+}
+
+bool Decode(const grpc::ByteBuffer& bytes, google::protobuf::Message* out) {
+  std::vector<grpc::Slice> slices;
+  if (!bytes.Dump(&slices).ok()) return false;
+  if (slices.size() == 1) {
+    return out->ParseFromArray(slices[0].begin(), static_cast<int>(slices[0].size()));
+  }
+  std::string joined;
+  joined.reserve(bytes.Length());
+  for (const grpc::Slice& s : slices) {
+    joined.append(reinterpret_cast<const char*>(s.begin()), s.size());
+  }
+  return out->ParseFromString(joined);
+}
+
+absl::Duration ToDuration(std::chrono::system_clock::time_point deadline) {
+  const auto now = std::chrono::system_clock::now();
+  if (deadline <= now) return absl::ZeroDuration();
+  if (deadline - now > std::chrono::hours(24 * 365)) return absl::InfiniteDuration();
+  return absl::FromChrono(deadline - now);
+}
+
+}  // namespace
+
+RiskBoundService::RiskBoundService(CallPool* pool, CallLimits limits)
+    : pool_(pool), limits_(limits) {}
+
+void RiskBoundService::Register(CallReactor* call) {
+  absl::MutexLock lock(&mu_);
+  calls_.insert(call);
+}
+
+void RiskBoundService::Unregister(CallReactor* call) {
+  absl::MutexLock lock(&mu_);
+  calls_.erase(call);
+}
+
+void RiskBoundService::StartDrain() { draining_.store(true); }
+
+void RiskBoundService::CancelAll() {
+  absl::MutexLock lock(&mu_);
+  for (CallReactor* call : calls_) call->stop().Cancel();
+}
+
+int RiskBoundService::calls_in_flight() const {
+  absl::MutexLock lock(&mu_);
+  return static_cast<int>(calls_.size());
+}
+
+template <class Request, class Response>
+grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
+    const char* method, grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
+    grpc::ByteBuffer* response,
+    absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&)) {
+  const absl::Time start = absl::Now();
+  const absl::Duration budget =
+      std::min(limits_.max_call_time, ToDuration(context->deadline()));
+  auto* reactor = new CallReactor(this, start + budget);
+  const std::string request_id = RequestIdFor(*context);
+  context->AddInitialMetadata("x-request-id", request_id);
+  const std::int64_t request_bytes = static_cast<std::int64_t>(request->Length());
+
+  // Finishes the call; the only place that does. REQUIRES: called once.
+  auto finish = [this, method, context, reactor, request_id, start, request_bytes](
+                    const absl::Status& status, std::int64_t response_bytes) {
+    const std::string peer = context->peer();
+    LogCall({.rpc = method,
+             .code = status.code(),
+             .latency_us = absl::ToInt64Microseconds(absl::Now() - start),
+             .peer = peer,
+             .request_id = request_id,
+             .message = status.message(),
+             .request_bytes = request_bytes,
+             .response_bytes = response_bytes});
+    reactor->Finish(ToGrpcStatus(status));
+  };
+
+  if (draining_.load()) {
+    finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
+    return reactor;
+  }
+  auto work = [this, method, request, response, reactor, finish, handler, budget]() {
+    const core::StopToken& stop = reactor->stop();
+    // The reason a stopped call gives, when the caller can still read it.
+    auto stopped = [this, method, &stop, budget]() {
+      if (draining_.load()) {
+        return absl::UnavailableError(
+            "the server is shutting down and stopped this call; retry on another replica");
+      }
+      absl::Status why = stop.Status();
+      if (why.code() == absl::StatusCode::kDeadlineExceeded &&
+          budget == limits_.max_call_time) {
+        return absl::DeadlineExceededError(absl::StrCat(
+            method, " was stopped after the server's per-call limit of ",
+            absl::FormatDuration(limits_.max_call_time), " (--max-call-seconds)"));
+      }
+      return why.ok() ? absl::CancelledError("the call was cancelled") : why;
+    };
+    if (stop.StopRequested()) return finish(stopped(), 0);
+    Request decoded;
+    if (!Decode(*request, &decoded)) {
+      return finish(absl::InvalidArgumentError(absl::StrCat(
+                        "the request could not be decoded as ", Request::descriptor()->full_name(),
+                        ": the body is not a valid protobuf message of that type (or a "
+                        "string field is not valid UTF-8)")),
+                    0);
+    }
+    absl::StatusOr<Response> answer = handler(decoded, stop);
+    if (stop.StopRequested() &&
+        (answer.ok() || answer.status().code() == absl::StatusCode::kCancelled ||
+         answer.status().code() == absl::StatusCode::kDeadlineExceeded)) {
+      return finish(stopped(), 0);
+    }
+    if (!answer.ok()) return finish(answer.status(), 0);
+    const std::int64_t size = static_cast<std::int64_t>(answer->ByteSizeLong());
+    if (size > limits_.max_response_bytes) {
+      return finish(absl::ResourceExhaustedError(absl::StrCat(
+                        "the answer would be ", size, " bytes, above the server's limit of ",
+                        limits_.max_response_bytes,
+                        " bytes (--max-response-bytes); send a smaller request, or raise the "
+                        "limit on the server and the client's receive limit together")),
+                    0);
+    }
+    std::string bytes;
+    answer->SerializeToString(&bytes);
+    grpc::Slice slice(std::move(bytes));
+    *response = grpc::ByteBuffer(&slice, 1);
+    finish(absl::OkStatus(), size);
+  };
+  switch (pool_->TrySubmit(std::move(work))) {
+    case CallPool::Admission::kAdmitted:
+      break;
+    case CallPool::Admission::kFull:
+      finish(absl::ResourceExhaustedError(absl::StrCat(
+                 "the server is busy: ", pool_->max_pending(),
+                 " calls are already admitted (--max-pending-calls); retry with backoff")),
+             0);
+      break;
+    case CallPool::Admission::kClosed:
+      finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
+      break;
+  }
+  return reactor;
+}
+
+grpc::ServerUnaryReactor* RiskBoundService::Certify(grpc::CallbackServerContext* context,
+                                                    const grpc::ByteBuffer* request,
+                                                    grpc::ByteBuffer* response) {
+  return Dispatch("Certify", context, request, response, &HandleCertify);
+}
+
+grpc::ServerUnaryReactor* RiskBoundService::EstimateCapacity(
+    grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
+    grpc::ByteBuffer* response) {
+  return Dispatch("EstimateCapacity", context, request, response, &HandleEstimateCapacity);
+}
+
+grpc::ServerUnaryReactor* RiskBoundService::Gate(grpc::CallbackServerContext* context,
+                                                 const grpc::ByteBuffer* request,
+                                                 grpc::ByteBuffer* response) {
+  return Dispatch("Gate", context, request, response, &HandleGate);
+}
+
+grpc::ServerUnaryReactor* RiskBoundService::SelectStructure(
+    grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
+    grpc::ByteBuffer* response) {
+  return Dispatch("SelectStructure", context, request, response, &HandleSelectStructure);
+}
+
+grpc::ServerUnaryReactor* RiskBoundService::PlanSamples(grpc::CallbackServerContext* context,
+                                                        const grpc::ByteBuffer* request,
+                                                        grpc::ByteBuffer* response) {
+  return Dispatch("PlanSamples", context, request, response, &HandlePlanSamples);
+}
+
+}  // namespace riskbound::rpc
