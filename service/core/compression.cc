@@ -6,14 +6,6 @@
 #include "service/core/numeric.h"
 
 namespace riskbound::core {
-namespace {
-
-// Above this many outside examples, at levels below e^-700, the O(k)-per-step
-// log-space inversion is replaced by the kl-Chernoff relaxation (never
-// smaller; within 5e-3 of the exact limit in the fixture's range).
-constexpr double kLogCdfMaxSamples = 1e8;
-
-}  // namespace
 
 Certificate SampleCompression(const CompressionEvidence& evidence, double delta) {
   const std::uint64_t m = evidence.samples;
@@ -31,12 +23,7 @@ Certificate SampleCompression(const CompressionEvidence& evidence, double delta)
   // ln(delta / (m C(m, d))), or ln(delta / C(m, d)) when d was fixed in advance.
   double log_level = std::log(delta) - LogChoose(static_cast<double>(m), static_cast<double>(d));
   if (!evidence.size_fixed_in_advance) log_level -= std::log(static_cast<double>(m));
-  TailLimit limit;
-  if (k > 0 && log_level <= -700.0 && static_cast<double>(outside) > kLogCdfMaxSamples) {
-    limit = {KlInverseUpper(rate, -log_level / static_cast<double>(outside)), false};
-  } else {
-    limit = BinomialUpperLimitLogDelta(outside, k, log_level);
-  }
+  const TailLimit limit = BinomialUpperLimitLogDelta(outside, k, log_level);
   Certificate c =
       MakeCertificate(Family::kSampleCompression, delta, rate, limit.value, std::nullopt);
   c.exact = limit.exact;
@@ -48,8 +35,9 @@ Certificate SampleCompression(const CompressionEvidence& evidence, double delta)
             "delta / (m C(m, d)) (union bound over sizes and subsets)");
   if (!limit.exact) {
     c.notes.emplace_back(
-        "the exact inversion is out of numerical reach here; the kl-Chernoff "
-        "relaxation (never smaller) is reported");
+        "the exact inversion could not be settled to double precision at these counts; "
+        "a conservative upper limit (never smaller than the exact one, never larger "
+        "than the kl-Chernoff limit) is reported");
   }
   return c;
 }

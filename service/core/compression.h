@@ -21,8 +21,9 @@ namespace riskbound::core {
 // dropped when size_fixed_in_advance. Inverted in log space (the level
 // underflows a double). d = m leaves no examples to test on: the certificate
 // is vacuous (upper 1) with a note. empirical_risk = k / (m - d) (0 when
-// d = m). Upper bound only. When m - d is above 1e8 and the level is below
-// e^-700, the kl-Chernoff relaxation (never smaller) is used, exact = false.
+// d = m). Upper bound only. The inversion is a bracketed search with a
+// bounded number of steps and terms (numeric.h); exact = false only at counts
+// near 2^53 where it could not be settled, the limit then still conservative.
 // Source: Langford (2005), sample compression bound; Littlestone & Warmuth
 // (1986); Floyd & Warmuth (1995) (formula sheet 7, constants derived there).
 // REQUIRES: evidence valid per ValidateEvidence (1 <= m, d <= m,

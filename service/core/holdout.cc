@@ -8,8 +8,9 @@ namespace riskbound::core {
 namespace {
 
 constexpr char kRelaxedNote[] =
-    "the exact binomial inversion did not converge at this sample size; the "
-    "kl-Chernoff relaxation (never smaller) is reported instead";
+    "the exact binomial inversion could not be settled to double precision at this "
+    "sample size; conservative limits (never tighter than the exact ones, never looser "
+    "than the kl-Chernoff limits) are reported instead";
 
 }  // namespace
 

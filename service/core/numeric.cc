@@ -4,15 +4,44 @@
 #include <cmath>
 #include <exception>
 #include <limits>
+#include <numbers>
 
 #include <boost/math/distributions/binomial.hpp>
+#include <boost/math/policies/policy.hpp>
 
 #include "absl/status/status.h"
 
 namespace riskbound::core {
 namespace {
 
-using boost::math::binomial_distribution;
+// Boost.Math with its work capped: a root search gives up after
+// kBoostRootIterations steps and a series or continued fraction after
+// kBoostSeriesIterations terms (evaluation_error, caught below), instead of
+// the defaults (200 and 10^6) that cost tens of milliseconds per call at
+// counts near 2^53. Where Boost gives up, the bracketed log-space searches
+// below take over.
+constexpr int kBoostRootIterations = 40;
+constexpr int kBoostSeriesIterations = 10000;
+using CappedPolicy = boost::math::policies::policy<
+    boost::math::policies::max_root_iterations<kBoostRootIterations>,
+    boost::math::policies::max_series_iterations<kBoostSeriesIterations>>;
+using Binomial = boost::math::binomial_distribution<double, CappedPolicy>;
+
+// Above this many samples Boost's inversion is not tried at all: it rarely
+// converges there within the caps and only costs time.
+constexpr double kBoostInverseMaxSamples = 4294967296.0;  // 2^32
+
+// Terms a tail sum adds one by one before it either converged or reports
+// bounds: the cheap first try, and the most it ever adds.
+constexpr std::uint64_t kTailTermsFirst = 4096;
+constexpr std::uint64_t kTailTermsMax = 65536;
+
+// A tail sum has converged when the bound on what is left is below this
+// fraction of the partial sum (below half an ulp of a double).
+constexpr double kTailNegligible = 0x1p-56;
+
+// Below this, exp() of a log probability is not a normal double.
+constexpr double kLogNormalMin = -700.0;
 
 // x - ln(1 + x) >= 0, given x and ln(1 + x) computed without forming 1 + x.
 // For small |x| the series replaces the difference, which would cancel.
@@ -51,6 +80,215 @@ bool BracketClosed(double lo, double hi) {
   return hi - lo <= kBisectionTolerance * std::min(1.0, std::max(hi, 1e-300));
 }
 
+// The midpoint of a bisection step: geometric while the bracket spans more
+// than a factor 4 (so a bracket from 1e-300 to 1 closes in about 50 steps,
+// not 1000), arithmetic after.
+double Mid(double lo, double hi) {
+  if (lo > 0.0 && hi > 4.0 * lo) return std::sqrt(lo) * std::sqrt(hi);
+  return lo + (hi - lo) / 2.0;
+}
+
+// D(x) = ln x! - (x ln x - x + ln(2 pi x)/2), Stirling's remainder for x!.
+double StirlingRemainder(double x) {
+  if (x >= 16.0) return StirlingError(x);
+  return std::lgamma(x + 1.0) - (x * std::log(x) - x + 0.5 * std::log(2.0 * std::numbers::pi * x));
+}
+
+// ln C(n, k) - n H(k/n) for 0 <= k <= n, H the entropy in nats: small
+// (about -ln(2 pi k (n-k)/n)/2) and free of the cancellation of the two large
+// terms, from Stirling's formula with its exact remainders.
+double LogChooseMinusEntropy(double n, double k) {
+  if (k <= 0.0 || k >= n) return 0.0;
+  const double nk = n - k;
+  return 0.5 * std::log(n / (2.0 * std::numbers::pi * k * nk)) + StirlingRemainder(n) -
+         StirlingRemainder(k) - StirlingRemainder(nk);
+}
+
+// ln P(Bin(n, p) = k) = [ln C(n, k) - n H(k/n)] - n kl(k/n || p): exact
+// identity; both parts keep full relative precision, so the result is good
+// to about 1e-15 of its size even at n = 2^53 (summing ln C(n, k), k ln p and
+// (n - k) ln(1 - p) would lose everything to cancellation there).
+double LogPmf(double n, double k, double p) {
+  if (p <= 0.0) return k <= 0.0 ? 0.0 : -std::numeric_limits<double>::infinity();
+  if (p >= 1.0) return k >= n ? 0.0 : -std::numeric_limits<double>::infinity();
+  return LogChooseMinusEntropy(n, k) - n * BernoulliKl(k / n, p);
+}
+
+// Bounds on ln of a binomial tail.
+struct LogBounds {
+  double lower;
+  double upper;
+  bool Converged() const { return lower == upper; }
+};
+
+// Sum of a binomial tail from its first term t_k away from the mode:
+// S = sum_{i=0..m} t_{k -/+ i} / t_k, where the ratio of consecutive terms is
+// r_i = (m - i + 1) / (n - m + i) * odds (lower tail: m = k, odds = (1-p)/p;
+// upper tail: m = n - k, odds = p/(1-p)). REQUIRES r_1 < 1: the ratios then
+// fall with i, so after any term the rest is at most term * r / (1 - r)
+// (a geometric series at the current ratio) and at most term * (terms left).
+// Adds terms until that rest is negligible (lower = upper: the sum to double
+// precision), the partial sum reaches `enough` (a caller's threshold, so the
+// answer is already decided), or `max_terms` were added (lower = partial
+// sum, upper = partial sum + the bound on the rest). Returns ln of the bounds.
+LogBounds LogTailRatioSum(double n, double m, double odds, double enough,
+                          std::uint64_t max_terms) {
+  double sum = 1.0;
+  double term = 1.0;
+  double i = 0.0;
+  for (std::uint64_t step = 0;; ++step) {
+    if (i >= m) return {std::log(sum), std::log(sum)};
+    const double r = (m - i) / (n - m + i + 1.0) * odds;
+    const double rest = r < 1.0 ? term * std::min(r / (1.0 - r), m - i) : term * (m - i);
+    if (rest <= kTailNegligible * sum) return {std::log(sum), std::log(sum)};
+    if (sum >= enough || step >= max_terms) {
+      return {std::log(sum), std::log(sum + rest)};
+    }
+    term *= r;
+    sum += term;
+    i += 1.0;
+  }
+}
+
+// Bounds on ln P(Bin(n, p) <= k) (upper_tail false) or ln P(Bin(n, p) >= k)
+// (upper_tail true), for p on the side where the tail's terms fall away from
+// k (REQUIRES): p > k/(n+1) for the lower tail, p < (k+1)/(n+1) for the
+// upper tail, and k >= 1 for the upper tail.
+// `log_enough`: stop once the lower bound reaches it (the caller's question
+// is then answered). Tries, in order: the log-space sum with kTailTermsFirst
+// terms; Boost.Math's capped CDF (an exact value, when it converges and is a
+// normal double); the log-space sum with kTailTermsMax terms (bounds).
+LogBounds LogTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_tail,
+                        double log_enough) {
+  const double nd = static_cast<double>(n);
+  const double kd = static_cast<double>(k);
+  const double log_first = LogPmf(nd, kd, p);
+  const double m = upper_tail ? nd - kd : kd;
+  const double odds = upper_tail ? p / (1.0 - p) : (1.0 - p) / p;
+  // exp() of the gap to the threshold, capped so it stays finite.
+  const double enough = std::exp(std::min(log_enough - log_first, 700.0));
+  LogBounds s = LogTailRatioSum(nd, m, odds, enough, kTailTermsFirst);
+  if (s.Converged() || s.lower + log_first >= log_enough) {
+    return {log_first + s.lower, log_first + s.upper};
+  }
+  try {
+    const Binomial bin(nd, p);
+    const double v = upper_tail ? boost::math::cdf(boost::math::complement(bin, kd - 1.0))
+                                : boost::math::cdf(bin, kd);
+    if (std::isfinite(v) && v > 0.0 && v <= 1.0 && std::log(v) > kLogNormalMin) {
+      return {std::log(v), std::log(v)};
+    }
+  } catch (const std::exception&) {
+    // Boost gave up within its caps: bound the sum instead.
+  }
+  s = LogTailRatioSum(nd, m, odds, enough, kTailTermsMax);
+  return {log_first + s.lower, log_first + s.upper};
+}
+
+// Bounds on ln P(Bin(n, p) <= k) (upper_tail false) or ln P(Bin(n, p) >= k)
+// (upper_tail true) at any p: the tail itself where its terms fall away from
+// k, else one minus the complementary tail (which then has that property).
+// `log_enough` as in LogTailBounds (a threshold for the tail asked about).
+LogBounds AnyTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_tail,
+                        double log_enough) {
+  if (upper_tail ? k == 0 : k >= n) return {0.0, 0.0};
+  const double s = p * (static_cast<double>(n) + 1.0);
+  const double kd = static_cast<double>(k);
+  if (upper_tail ? s < kd + 1.0 : s > kd) {
+    return LogTailBounds(n, k, p, upper_tail, log_enough);
+  }
+  // Complement: P(X <= k) = 1 - P(X >= k + 1); P(X >= k) = 1 - P(X <= k - 1).
+  // Asked whether the tail reaches exp(log_enough), the complement answers
+  // "no" once its own lower bound reaches 1 - exp(log_enough).
+  const double complement_enough = log_enough < 0.0 ? std::log(-std::expm1(log_enough))
+                                                    : std::numeric_limits<double>::infinity();
+  const LogBounds c =
+      LogTailBounds(n, upper_tail ? k - 1 : k + 1, p, !upper_tail, complement_enough);
+  return {std::log(-std::expm1(c.upper)), std::log(-std::expm1(c.lower))};
+}
+
+// Is ln P(tail) >= log_delta? Yes, no, or unsure (the bounds straddle it).
+enum class Answer { kYes, kNo, kUnsure };
+
+Answer TailAtLeast(std::uint64_t n, std::uint64_t k, double p, bool upper_tail,
+                   double log_delta) {
+  const LogBounds b = AnyTailBounds(n, k, p, upper_tail, log_delta);
+  if (b.lower >= log_delta) return Answer::kYes;
+  if (b.upper < log_delta) return Answer::kNo;
+  return Answer::kUnsure;
+}
+
+// ln 2: below a failure probability of 1/2 the limits lie on their own side
+// of k/n (the median of Bin(n, k/n) is k; Kaas & Buhrman 1980).
+constexpr double kLogHalf = -0.69314718055994531;
+
+// The Clopper-Pearson upper limit by bisection: the largest p with
+// P(Bin(n, p) <= k) >= delta. Bracket: the Chernoff bound P(Bin(n, p) <= k)
+// <= exp(-n kl(k/n || p)) makes the kl limit an upper end; k/n is a lower
+// end for delta <= 1/2, else the mirror-image Chernoff bound on
+// P(X >= k + 1). At most ~100 steps (geometric midpoints while the bracket
+// spans orders of magnitude, then 1e-12 relative). An unsure step counts as
+// "at least delta" (moving the limit up, the conservative side) and clears
+// exact. REQUIRES: 1 <= k < n, log_delta < 0.
+TailLimit UpperLimitSearch(std::uint64_t n, std::uint64_t k, double log_delta) {
+  const double nd = static_cast<double>(n);
+  const double q = static_cast<double>(k) / nd;
+  double lo = q;
+  if (log_delta > kLogHalf) {
+    lo = KlInverseLower((static_cast<double>(k) + 1.0) / nd,
+                        -std::log(-std::expm1(log_delta)) / nd);
+  }
+  double hi = KlInverseUpper(q, -log_delta / nd);
+  bool exact = true;
+  while (!BracketClosed(lo, hi)) {
+    const double mid = Mid(lo, hi);
+    if (mid <= lo || mid >= hi) break;
+    const Answer a = TailAtLeast(n, k, mid, /*upper_tail=*/false, log_delta);
+    if (a == Answer::kNo) {
+      hi = mid;
+    } else {
+      lo = mid;
+      if (a == Answer::kUnsure) exact = false;
+    }
+  }
+  return {hi, exact};
+}
+
+// The Clopper-Pearson lower limit by bisection: the smallest p with
+// P(Bin(n, p) >= k) >= delta. Mirror image of UpperLimitSearch (an unsure
+// step moves the limit down). REQUIRES: 1 <= k < n, log_delta < 0.
+TailLimit LowerLimitSearch(std::uint64_t n, std::uint64_t k, double log_delta) {
+  const double nd = static_cast<double>(n);
+  const double q = static_cast<double>(k) / nd;
+  double lo = KlInverseLower(q, -log_delta / nd);
+  double hi = q;
+  if (log_delta > kLogHalf) {
+    hi = KlInverseUpper((static_cast<double>(k) - 1.0) / nd,
+                        -std::log(-std::expm1(log_delta)) / nd);
+  }
+  bool exact = true;
+  if (lo <= 0.0) {
+    // The kl limit underflowed: start from the smallest normal double, or
+    // report 0 when even there the tail reaches delta (the limit is below it).
+    lo = std::numeric_limits<double>::min();
+    if (TailAtLeast(n, k, lo, /*upper_tail=*/true, log_delta) != Answer::kNo) {
+      return {0.0, true};
+    }
+  }
+  while (!BracketClosed(lo, hi)) {
+    const double mid = Mid(lo, hi);
+    if (mid <= lo || mid >= hi) break;
+    const Answer a = TailAtLeast(n, k, mid, /*upper_tail=*/true, log_delta);
+    if (a == Answer::kNo) {
+      lo = mid;
+    } else {
+      hi = mid;
+      if (a == Answer::kUnsure) exact = false;
+    }
+  }
+  return {lo, exact};
+}
+
 }  // namespace
 
 double BernoulliKl(double q, double p) {
@@ -75,7 +313,7 @@ double KlInverseUpper(double q, double c) {
   double lo = q;
   double hi = 1.0;
   while (!BracketClosed(lo, hi)) {
-    const double mid = lo + (hi - lo) / 2.0;
+    const double mid = Mid(lo, hi);
     if (mid <= lo || mid >= hi) break;
     if (BernoulliKl(q, mid) <= c) {
       lo = mid;
@@ -90,11 +328,17 @@ double KlInverseLower(double q, double c) {
   if (c <= 0.0) return q;
   if (q <= 0.0) return 0.0;
   if (q >= 1.0) return std::exp(-c);  // kl(1||p) = -ln p.
-  // Invariant: kl(q||lo) > c >= kl(q||hi), or lo = 0.
-  double lo = 0.0;
+  // kl(q||p) >= q ln(q/p) + (1-q) ln(1-q), which exceeds c below
+  // p0 = q exp(((1-q) ln(1-q) - c) / q): the limit is at least p0.
+  double lo = q * std::exp(((1.0 - q) * std::log1p(-q) - c) / q);
+  if (!(lo > 0.0)) {
+    lo = std::numeric_limits<double>::min();
+    if (BernoulliKl(q, lo) <= c) return 0.0;  // the limit is below DBL_MIN
+  }
+  // Invariant: kl(q||lo) > c >= kl(q||hi).
   double hi = q;
   while (!BracketClosed(lo, hi)) {
-    const double mid = lo + (hi - lo) / 2.0;
+    const double mid = Mid(lo, hi);
     if (mid <= lo || mid >= hi) break;
     if (BernoulliKl(q, mid) <= c) {
       hi = mid;
@@ -109,30 +353,30 @@ TailLimit BinomialUpperLimit(std::uint64_t n, std::uint64_t k, double delta) {
   if (k >= n) return {1.0, true};
   const double nd = static_cast<double>(n);
   if (k == 0) return {-std::expm1(std::log(delta) / nd), true};
-  try {
-    const double v = binomial_distribution<>::find_upper_bound_on_p(
-        nd, static_cast<double>(k), delta);
-    if (FiniteProbability(v)) return {v, true};
-  } catch (const std::exception&) {
-    // Fall through to the conservative relaxation.
+  if (nd <= kBoostInverseMaxSamples) {
+    try {
+      const double v = Binomial::find_upper_bound_on_p(nd, static_cast<double>(k), delta);
+      if (FiniteProbability(v)) return {v, true};
+    } catch (const std::exception&) {
+      // Boost gave up within its caps: search in log space instead.
+    }
   }
-  const double q = static_cast<double>(k) / nd;
-  return {KlInverseUpper(q, -std::log(delta) / nd), false};
+  return UpperLimitSearch(n, k, std::log(delta));
 }
 
 TailLimit BinomialLowerLimit(std::uint64_t n, std::uint64_t k, double delta) {
   if (k == 0) return {0.0, true};
   const double nd = static_cast<double>(n);
   if (k >= n) return {std::exp(std::log(delta) / nd), true};
-  try {
-    const double v = binomial_distribution<>::find_lower_bound_on_p(
-        nd, static_cast<double>(k), delta);
-    if (FiniteProbability(v)) return {v, true};
-  } catch (const std::exception&) {
-    // Fall through to the conservative relaxation.
+  if (nd <= kBoostInverseMaxSamples) {
+    try {
+      const double v = Binomial::find_lower_bound_on_p(nd, static_cast<double>(k), delta);
+      if (FiniteProbability(v)) return {v, true};
+    } catch (const std::exception&) {
+      // Boost gave up within its caps: search in log space instead.
+    }
   }
-  const double q = static_cast<double>(k) / nd;
-  return {KlInverseLower(q, -std::log(delta) / nd), false};
+  return LowerLimitSearch(n, k, std::log(delta));
 }
 
 double LogChoose(double n, double k) {
@@ -148,22 +392,18 @@ double LogChoose(double n, double k) {
 
 double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p) {
   if (k >= n || p <= 0.0) return 0.0;
-  const double nd = static_cast<double>(n);
   if (p >= 1.0) return -std::numeric_limits<double>::infinity();
-  const double lp = std::log(p);
-  const double lq = std::log1p(-p);
-  // Terms j = 0..k; find the largest first for a stable log-sum-exp.
-  double max_term = -std::numeric_limits<double>::infinity();
-  for (std::uint64_t j = 0; j <= k; ++j) {
-    const double jd = static_cast<double>(j);
-    max_term = std::max(max_term, LogChoose(nd, jd) + jd * lp + (nd - jd) * lq);
-  }
-  double sum = 0.0;
-  for (std::uint64_t j = 0; j <= k; ++j) {
-    const double jd = static_cast<double>(j);
-    sum += std::exp(LogChoose(nd, jd) + jd * lp + (nd - jd) * lq - max_term);
-  }
-  return max_term + std::log(sum);
+  return AnyTailBounds(n, k, p, /*upper_tail=*/false, std::numeric_limits<double>::infinity())
+      .upper;
+}
+
+double BinomialCdfLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact) {
+  if (k >= n || p <= 0.0) return 1.0;
+  if (p >= 1.0) return 0.0;
+  const LogBounds b = AnyTailBounds(n, k, p, /*upper_tail=*/false,
+                                    std::numeric_limits<double>::infinity());
+  if (!b.Converged() && exact != nullptr) *exact = false;
+  return std::clamp(std::exp(b.lower), 0.0, 1.0);
 }
 
 TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
@@ -172,24 +412,8 @@ TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
   const double nd = static_cast<double>(n);
   if (k == 0) return {-std::expm1(log_delta / nd), true};
   // exp() of anything above ln(DBL_MIN) ~ -708.4 is a normal double.
-  if (log_delta > -700.0) return BinomialUpperLimit(n, k, std::exp(log_delta));
-  const double q = static_cast<double>(k) / nd;
-  const double relaxed = KlInverseUpper(q, -log_delta / nd);
-  if (k > 10'000'000) return {relaxed, false};
-  // ln P(Bin(n,p) <= k) decreases in p. Invariant: cdf(lo) >= log_delta > cdf(hi).
-  double lo = q;
-  double hi = relaxed;
-  if (LogBinomialCdf(n, k, hi) >= log_delta) return {relaxed, false};
-  while (hi - lo > kBisectionTolerance * std::max(hi, 1e-300)) {
-    const double mid = lo + (hi - lo) / 2.0;
-    if (mid <= lo || mid >= hi) break;
-    if (LogBinomialCdf(n, k, mid) >= log_delta) {
-      lo = mid;
-    } else {
-      hi = mid;
-    }
-  }
-  return {hi, true};
+  if (log_delta > kLogNormalMin) return BinomialUpperLimit(n, k, std::exp(log_delta));
+  return UpperLimitSearch(n, k, log_delta);
 }
 
 absl::StatusOr<std::uint64_t> SmallestSatisfying(

@@ -26,22 +26,26 @@ double BernoulliKl(double q, double p);
 // KlInverseUpper
 // Returns sup { p in [q, 1] : kl(q || p) <= c }, found by bisection to
 // kBisectionTolerance (absolute, and relative to the result) and rounded to
-// the conservative (larger) end.
+// the conservative (larger) end. Geometric midpoints while the bracket spans
+// orders of magnitude, so at most ~100 steps for any q.
 // c <= 0 returns q; q = 1 returns 1; q = 0 uses the closed form 1 - exp(-c).
 // REQUIRES: q in [0, 1]; c not NaN.
 double KlInverseUpper(double q, double c);
 
 // KlInverseLower
 // Returns inf { p in [0, q] : kl(q || p) <= c }, rounded to the conservative
-// (smaller) end. c <= 0 returns q; q = 0 returns 0.
+// (smaller) end, at most ~100 steps (the bracket starts at a closed-form lower
+// end). Returns 0 when the limit is below the smallest normal double.
+// c <= 0 returns q; q = 0 returns 0.
 // REQUIRES: q in [0, 1]; c not NaN.
 double KlInverseLower(double q, double c);
 
 // A binomial confidence limit and how it was obtained.
 struct TailLimit {
   double value = 0.0;
-  // True when the exact Clopper-Pearson inversion was used; false when the
-  // (looser, still valid) kl-Chernoff relaxation had to stand in for it.
+  // True when the exact Clopper-Pearson limit was found (to the bisection
+  // tolerance); false when a conservative limit (looser, still valid, never
+  // looser than the kl-Chernoff relaxation) had to stand in for it.
   bool exact = true;
 };
 
@@ -49,34 +53,51 @@ struct TailLimit {
 // One-sided Clopper-Pearson upper limit: the largest p with
 // P(Bin(n, p) <= k) >= delta, i.e. the (1 - delta) quantile of
 // Beta(k + 1, n - k), computed with Boost.Math's complement inverse (never as
-// a quantile at 1 - delta). k = 0 uses the closed form 1 - delta^(1/n); k = n
-// returns 1. Where Boost cannot converge (n beyond about 1e13 with many
-// errors) the kl-Chernoff bound, which is never smaller, is returned with
-// exact = false.
+// a quantile at 1 - delta), its iterations capped. k = 0 uses the closed form
+// 1 - delta^(1/n); k = n returns 1. Where Boost gives up within its caps, and
+// always above 2^32 samples, a bracketed bisection on the binomial tail
+// (summed in log space from the term at k, with Boost's capped CDF where the
+// sum would need more than a few thousand terms) takes over; it never
+// returns less than the exact limit (to the bisection tolerance) and stays
+// below the kl-Chernoff limit. exact = false only where neither the sum nor
+// Boost could settle a step (counts near 2^53 with many errors); the value is
+// then still an upper limit, rounded up.
+// Cost: bounded, under a millisecond at any admissible n and k.
 // REQUIRES: n >= 1, k <= n, 0 < delta < 1.
 TailLimit BinomialUpperLimit(std::uint64_t n, std::uint64_t k, double delta);
 
 // BinomialLowerLimit
 // One-sided Clopper-Pearson lower limit: the smallest p with
-// P(Bin(n, p) >= k) >= delta. k = 0 returns 0. Fallback as above (kl lower
-// inverse, never larger than the exact limit).
+// P(Bin(n, p) >= k) >= delta. k = 0 returns 0. Fallback as above, mirrored
+// (never larger than the exact limit).
 // REQUIRES: n >= 1, k <= n, 0 < delta < 1.
 TailLimit BinomialLowerLimit(std::uint64_t n, std::uint64_t k, double delta);
 
 // BinomialUpperLimitLogDelta
 // As BinomialUpperLimit, but the failure probability is given by its natural
 // logarithm, for the tiny levels of union bounds (delta / C(m, d),
-// delta * 2^-bits) that underflow a double. Uses Boost while exp(log_delta)
-// is a normal double, else bisection on the log binomial CDF (O(k) per step)
-// for k up to 10^7, else the kl-Chernoff relaxation (exact = false).
+// delta * 2^-bits) that underflow a double. Uses BinomialUpperLimit while
+// exp(log_delta) is a normal double, else the bracketed log-space search
+// (bounded number of steps and terms per step; exact = false only where the
+// tail sum could not be settled, the value then still conservative).
 // REQUIRES: n >= 1, k <= n, log_delta < 0.
 TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
                                      double log_delta);
 
 // LogBinomialCdf
-// Returns ln P(Bin(n, p) <= k), summed in log space. O(k).
+// Returns ln P(Bin(n, p) <= k), summed in log space from the term at k (or
+// k + 1 for the complement) away from the mode, so the cost does not grow
+// with k: at most 65536 terms, else Boost's CDF; where neither settles it,
+// an upper bound on the true value.
 // REQUIRES: k <= n, 0 <= p <= 1.
 double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p);
+
+// BinomialCdfLowerBound
+// Returns a lower bound on P(Bin(n, p) <= k), equal to it to double precision
+// unless *exact is set to false (left untouched otherwise; may be null).
+// Same method and cost as LogBinomialCdf.
+// REQUIRES: k <= n, 0 <= p <= 1.
+double BinomialCdfLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact);
 
 // LogChoose
 // Returns ln C(n, k); never forms C(n, k). For large n the difference

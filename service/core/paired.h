@@ -58,7 +58,7 @@ double McNemarExactOneSidedPValue(std::uint64_t b, std::uint64_t c);
 // together with probability >= 1 - delta (union bound). b and c are each
 // Bin(n, p_b) and Bin(n, p_c) marginally, whatever their dependence, which is
 // all this construction needs. value is in [-1, 1]; exact is false when a
-// kl-Chernoff relaxation stood in for a Clopper-Pearson limit (still valid).
+// conservative relaxation stood in for a Clopper-Pearson limit (still valid).
 // Source: Clopper & Pearson (1934) with a Bonferroni union bound; bounds.md
 // 11.2(a) (derived there; coverage 0.9972 at nominal 0.95 in its row 11.2).
 // REQUIRES: counts.samples >= 1, b <= n, c <= n, 0 < delta < 1. Thread-safe.
