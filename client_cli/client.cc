@@ -65,6 +65,8 @@ int ExitCodeFor(const grpc::Status& status) {
     case grpc::StatusCode::UNAVAILABLE:
     case grpc::StatusCode::DEADLINE_EXCEEDED:
       return kExitUnreachable;
+    case grpc::StatusCode::RESOURCE_EXHAUSTED:
+      return kExitServerLimit;
     default:
       return kExitInternal;
   }
@@ -91,6 +93,9 @@ int ReportRpcError(const grpc::Status& status, const ClientOptions& options, std
     for (const auto& v : violations.field_violations()) {
       err << "  " << v.field() << ": " << v.description() << "\n";
     }
+  } else if (code == kExitServerLimit) {
+    err << "riskbound: the server at " << options.server
+        << " refused the call for its limits: " << status.error_message() << "\n";
   } else {
     err << "riskbound: the server answered " << status.error_code() << ": "
         << status.error_message() << "\n";

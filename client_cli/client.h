@@ -54,8 +54,8 @@ class RiskBoundClient {
 
 // ExitCodeFor
 // kExitOk, kExitInvalidInput (INVALID_ARGUMENT, OUT_OF_RANGE,
-// FAILED_PRECONDITION), kExitUnreachable (UNAVAILABLE, DEADLINE_EXCEEDED), or
-// kExitInternal.
+// FAILED_PRECONDITION), kExitUnreachable (UNAVAILABLE, DEADLINE_EXCEEDED),
+// kExitServerLimit (RESOURCE_EXHAUSTED), or kExitInternal.
 int ExitCodeFor(const grpc::Status& status);
 
 // ReportRpcError

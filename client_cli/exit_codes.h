@@ -13,6 +13,9 @@ enum ExitCode : int {
   kExitUnreachable = 4,     // The server could not be reached in time.
   kExitTargetUnreachable = 5,  // `plan`: no sample size reaches the target risk (the
                                // answer and its reason are still printed).
+  kExitServerLimit = 7,     // The server refused the call for its limits
+                            // (RESOURCE_EXHAUSTED): busy (retry later), or the
+                            // request or its answer is above its size limits.
   kExitGateHold = 10,       // `gate`: verdict HOLD (more hold-out data needed).
   kExitGateReject = 11,     // `gate`: verdict REJECT.
 };
