@@ -746,7 +746,9 @@ absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
   return shape;
 }
 
-absl::StatusOr<CapacityEstimate> EstimateCapacity(const ModelDescription& model) {
+absl::StatusOr<CapacityEstimate> EstimateCapacity(const ModelDescription& model,
+                                                  const StopToken& stop) {
+  if (stop.StopRequested()) return stop.Status();
   if (ModelKindName(model.kind) == "unknown") {
     return InvalidFields({{"model.kind", absl::StrCat("unknown model kind ",
                                                       static_cast<int>(model.kind))}});
@@ -792,6 +794,9 @@ absl::StatusOr<CapacityEstimate> EstimateCapacity(const ModelDescription& model)
     return InvalidFields({{"model", "the capacity of this model exceeds the double range"}});
   }
   Finish(&*e);
+  // Every kind costs a bounded amount (at most a few thousand steps, or one
+  // pass over layer_widths); a stop that came meanwhile still wins.
+  if (stop.StopRequested()) return stop.Status();
   return e;
 }
 

@@ -20,6 +20,7 @@
 
 #include "absl/status/statusor.h"
 #include "absl/strings/string_view.h"
+#include "service/core/stop.h"
 
 namespace riskbound::core {
 
@@ -208,8 +209,11 @@ absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
 // kind does not use, a zero dimension/degree/count, a count above
 // kMaxModelParameter, network sizes >= 10^12, zero layers or widths, radius
 // or margin not finite and > 0, a result beyond the double range.
+// Returns stop.Status() (CANCELLED or DEADLINE_EXCEEDED) instead of an
+// estimate when `stop` has stopped.
 // REQUIRES: nothing; every input is validated. Thread-safe.
-absl::StatusOr<CapacityEstimate> EstimateCapacity(const ModelDescription& model);
+absl::StatusOr<CapacityEstimate> EstimateCapacity(
+    const ModelDescription& model, const StopToken& stop = StopToken::Never());
 
 // LogGrowthFunctionBound
 // Returns ln sum_{i=0}^{min(h, m)} C(m, i), the Sauer-Shelah bound on ln

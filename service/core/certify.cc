@@ -195,7 +195,7 @@ absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolati
   return InvalidFields(local);
 }
 
-absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request) {
+absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopToken& stop) {
   std::vector<FieldViolation> violations;
   CheckProbabilityOpen("failure_probability", request.delta, &violations);
   ValidateEvidence(request.evidence, &violations).IgnoreError();
@@ -271,6 +271,7 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request) {
 
   CertifyResult result;
   for (std::size_t i = 0; i < k; ++i) {
+    if (stop.StopRequested()) return stop.Status();
     const double delta_i = request.delta * weights[i];
     Certificate c = chosen[i]->compute(request.evidence, delta_i);
     if (UsesTrainingCapacity(c.family) && request.evidence.training.has_value()) {
@@ -299,6 +300,7 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request) {
       found = true;
     }
   }
+  if (stop.StopRequested()) return stop.Status();
   if (k == 1) {
     result.delta_rule = absl::StrFormat(
         "one family, computed at the full failure probability delta = %g", request.delta);

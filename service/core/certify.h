@@ -12,6 +12,7 @@
 #include "absl/status/statusor.h"
 #include "service/core/evidence.h"
 #include "service/core/field_violation.h"
+#include "service/core/stop.h"
 
 namespace riskbound::core {
 
@@ -81,8 +82,12 @@ absl::Status ValidateEvidence(const Evidence& evidence,
 // Errors: INVALID_ARGUMENT naming the field for bad evidence, a delta outside
 // (0, 1), an unknown, duplicated or inapplicable listed family, or bad
 // weights. Never returns NaN or Inf in a certificate.
+// Every family costs a bounded amount of CPU (numeric.h); `stop` is checked
+// before each one, and a stopped call returns stop.Status() (CANCELLED or
+// DEADLINE_EXCEEDED), never a partial result.
 // Thread-safe; no shared state.
-absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request);
+absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request,
+                                      const StopToken& stop = StopToken::Never());
 
 // Cautions
 // The plain-words cautions every answer carries (i.i.d. assumption, no

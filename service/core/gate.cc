@@ -7,7 +7,6 @@
 #include <functional>
 #include <set>
 
-#include <boost/math/distributions/binomial.hpp>
 
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
@@ -239,13 +238,28 @@ std::uint64_t ScaledFloor(std::uint64_t count, std::uint64_t samples, std::uint6
 // Smallest n in [lo, kMaxSampleCount] with ok(n), for a predicate that is
 // (roughly) monotone: doubles a bracket from lo first, so the cost scales with
 // the answer, not with 2^53 (bound evaluations at huge n are slow).
+// Once `stop` stops, the predicate answers true without computing, so the
+// search ends in a few cheap steps, and the stop's status is returned.
 absl::StatusOr<std::uint64_t> SmallestFrom(std::uint64_t lo,
-                                           const std::function<bool(std::uint64_t)>& ok) {
+                                           const std::function<bool(std::uint64_t)>& ok,
+                                           const StopToken& stop) {
+  bool stopped = false;
+  const std::function<bool(std::uint64_t)> checked = [&](std::uint64_t n) {
+    if (stopped || stop.StopRequested()) {
+      stopped = true;
+      return true;
+    }
+    return ok(n);
+  };
   lo = std::max<std::uint64_t>(lo, 1);
   std::uint64_t hi = std::max<std::uint64_t>(2 * lo, 64);
   while (true) {
     hi = std::min(hi, kMaxSampleCount);
-    if (ok(hi)) return SmallestSatisfying(lo, hi, ok);
+    if (checked(hi)) {
+      absl::StatusOr<std::uint64_t> n = SmallestSatisfying(lo, hi, checked);
+      if (stopped) return stop.Status();
+      return n;
+    }
     if (hi == kMaxSampleCount) {
       return absl::NotFoundError("no sample size up to 2^53 settles it");
     }
@@ -254,38 +268,39 @@ absl::StatusOr<std::uint64_t> SmallestFrom(std::uint64_t lo,
   }
 }
 
-// P(Bin(n, p) >= k), with Boost.Math's exact binomial distribution.
+// P(Bin(n, p) >= k), summed in log space (numeric.h); where the sum cannot
+// be settled, a lower bound (the plan only grows).
 double UpperTail(std::uint64_t n, std::uint64_t k, double p) {
-  if (k == 0) return 1.0;
-  if (k > n) return 0.0;
-  try {
-    const boost::math::binomial_distribution<> bin(static_cast<double>(n), p);
-    return boost::math::cdf(boost::math::complement(bin, static_cast<double>(k - 1)));
-  } catch (const std::exception&) {
-    return 0.0;  // Counts as "not settled": the plan only grows.
-  }
+  return BinomialUpperTailLowerBound(n, k, p, nullptr);
 }
 
 // The mirror image of bounds.md 9.6 for a REJECT: smallest total n (found by
 // exponential search and bisection) with P(Bin(n, p) >= k_min(n)) >= pass,
 // where k_min(n) is the fewest errors whose Clopper-Pearson lower limit at
 // `delta` exceeds epsilon. NOT_FOUND when no n up to 2^53 does it.
+// Each "lower limit > epsilon" is decided from one binomial tail where it
+// can be (numeric.h LowerLimitAbove); k_min > epsilon n, so its search
+// starts there.
 absl::StatusOr<std::uint64_t> PlanRejection(double epsilon, double p, double delta,
-                                            double pass, std::uint64_t held) {
+                                            double pass, std::uint64_t held,
+                                            const StopToken& stop) {
   auto ok = [&](std::uint64_t n) {
-    if (BinomialLowerLimit(n, n, delta).value <= epsilon) return false;
+    if (!LowerLimitAbove(n, n, delta, epsilon)) return false;
+    const double floor_k = std::floor(epsilon * static_cast<double>(n));
+    const std::uint64_t from = std::min<std::uint64_t>(n, static_cast<std::uint64_t>(floor_k));
     absl::StatusOr<std::uint64_t> k_min = SmallestSatisfying(
-        0, n, [&](std::uint64_t k) { return BinomialLowerLimit(n, k, delta).value > epsilon; });
+        from, n, [&](std::uint64_t k) { return LowerLimitAbove(n, k, delta, epsilon); });
     return k_min.ok() && UpperTail(n, *k_min, p) >= pass;
   };
-  return SmallestFrom(held, ok);
+  return SmallestFrom(held, ok, stop);
 }
 
 // Smallest total n (anticipated disagreement rates held fixed) at which the
 // paired difference limits settle the comparison against tolerance t.
 absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double t,
                                                    double delta_upper,
-                                                   double delta_lower) {
+                                                   double delta_lower,
+                                                   const StopToken& stop) {
   const double rate_b = static_cast<double>(p.only_challenger_wrong) /
                         static_cast<double>(p.samples);
   const double rate_c = static_cast<double>(p.only_champion_wrong) /
@@ -309,7 +324,7 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
   } else {
     return absl::NotFoundError("the observed difference equals the tolerance");
   }
-  return SmallestFrom(p.samples, ok);
+  return SmallestFrom(p.samples, ok, stop);
 }
 
 }  // namespace
@@ -328,8 +343,10 @@ const char* VerdictName(Verdict verdict) {
 
 absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
                                         const GateCandidate& candidate,
-                                        const std::optional<ChampionComparison>& champion) {
+                                        const std::optional<ChampionComparison>& champion,
+                                        const StopToken& stop) {
   if (absl::Status s = Validate(policy, candidate, champion); !s.ok()) return s;
+  if (stop.StopRequested()) return stop.Status();
 
   const Evidence& evidence = candidate.evidence;
   const Split split = MakeSplit(policy, evidence, champion.has_value());
@@ -517,6 +534,7 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
   }
 
   // How many more hold-out samples would settle a HOLD.
+  if (stop.StopRequested()) return stop.Status();
   if (d.verdict == Verdict::kHold) {
     std::uint64_t need = 0;
     bool plannable = true;
@@ -547,7 +565,8 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
         req.delta = next.per_family;
         req.pass_probability = policy.plan_pass_probability;
         req.samples_held = held;
-        absl::StatusOr<HoldoutPlan> plan = PlanHoldout(req);
+        absl::StatusOr<HoldoutPlan> plan = PlanHoldout(req, stop);
+        if (stop.StopRequested()) return stop.Status();
         if (plan.ok() && plan->reachable) {
           need = std::max(need, plan->additional_samples);
           details.push_back(absl::StrCat(
@@ -562,8 +581,9 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
               plan.ok() ? plan->reason : std::string(plan.status().message())));
         }
       } else {
-        absl::StatusOr<std::uint64_t> n =
-            PlanRejection(epsilon, rate, next.risk_lower, policy.plan_pass_probability, held);
+        absl::StatusOr<std::uint64_t> n = PlanRejection(
+            epsilon, rate, next.risk_lower, policy.plan_pass_probability, held, stop);
+        if (stop.StopRequested()) return stop.Status();
         if (n.ok()) {
           need = std::max(need, *n - std::min(*n, held));
           details.push_back(absl::StrCat(
@@ -584,7 +604,8 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
       if (champion->paired.has_value()) {
         absl::StatusOr<std::uint64_t> n =
             PlanPairedComparison(*champion->paired, tolerance, split.difference_upper,
-                                 split.difference_lower);
+                                 split.difference_lower, stop);
+        if (stop.StopRequested()) return stop.Status();
         if (n.ok()) {
           need = std::max(need, *n - std::min(*n, held));
           details.push_back(absl::StrCat(

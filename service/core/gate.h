@@ -50,6 +50,7 @@
 #include "absl/status/statusor.h"
 #include "service/core/evidence.h"
 #include "service/core/paired.h"
+#include "service/core/stop.h"
 
 namespace riskbound::core {
 
@@ -172,10 +173,13 @@ const char* VerdictName(Verdict verdict);
 // champion.champion_holdout.*, champion), including evidence no allowed
 // family can use and paired counts that disagree with the candidate's
 // hold-out counts. Never returns NaN or Inf in a decision.
+// Stops early when `stop` does and returns its status (CANCELLED or
+// DEADLINE_EXCEEDED), never a partial decision.
 // Thread-safe; no shared state.
 absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
                                         const GateCandidate& candidate,
-                                        const std::optional<ChampionComparison>& champion);
+                                        const std::optional<ChampionComparison>& champion,
+                                        const StopToken& stop = StopToken::Never());
 
 }  // namespace riskbound::core
 

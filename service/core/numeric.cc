@@ -40,6 +40,11 @@ constexpr std::uint64_t kTailTermsMax = 65536;
 // fraction of the partial sum (below half an ulp of a double).
 constexpr double kTailNegligible = 0x1p-56;
 
+// A decision "is the limit beyond eps?" taken from one tail evaluation at
+// eps is trusted when the tail is this far (in ln) from ln delta; closer, the
+// limit itself is computed, so the answer agrees with the reported limit.
+constexpr double kDecideMargin = 1e-3;
+
 // Below this, exp() of a log probability is not a normal double.
 constexpr double kLogNormalMin = -700.0;
 
@@ -401,6 +406,47 @@ double BinomialCdfLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* e
   if (k >= n || p <= 0.0) return 1.0;
   if (p >= 1.0) return 0.0;
   const LogBounds b = AnyTailBounds(n, k, p, /*upper_tail=*/false,
+                                    std::numeric_limits<double>::infinity());
+  if (!b.Converged() && exact != nullptr) *exact = false;
+  return std::clamp(std::exp(b.lower), 0.0, 1.0);
+}
+
+bool UpperLimitAtMost(std::uint64_t n, std::uint64_t k, double delta, double eps) {
+  if (k >= n) return eps >= 1.0;
+  if (eps >= 1.0) return true;
+  if (eps <= 0.0) return false;
+  if (k == 0 || static_cast<double>(k) >= eps * static_cast<double>(n)) {
+    return BinomialUpperLimit(n, k, delta).value <= eps;  // closed form, or false
+  }
+  // u <= eps  <=>  P(Bin(n, eps) <= k) <= delta (the tail falls in p).
+  const double log_delta = std::log(delta);
+  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/false, log_delta + kDecideMargin);
+  if (b.upper < log_delta - kDecideMargin) return true;
+  if (b.lower > log_delta + kDecideMargin) return false;
+  return BinomialUpperLimit(n, k, delta).value <= eps;
+}
+
+bool LowerLimitAbove(std::uint64_t n, std::uint64_t k, double delta, double eps) {
+  if (k == 0) return eps < 0.0;
+  if (eps < 0.0) return true;
+  if (eps >= 1.0) return false;
+  if (k >= n || static_cast<double>(k) <= eps * static_cast<double>(n)) {
+    return BinomialLowerLimit(n, k, delta).value > eps;  // closed form, or false
+  }
+  if (eps <= 0.0) return BinomialLowerLimit(n, k, delta).value > eps;
+  // l > eps  <=>  P(Bin(n, eps) >= k) < delta (the tail grows in p).
+  const double log_delta = std::log(delta);
+  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/true, log_delta + kDecideMargin);
+  if (b.upper < log_delta - kDecideMargin) return true;
+  if (b.lower > log_delta + kDecideMargin) return false;
+  return BinomialLowerLimit(n, k, delta).value > eps;
+}
+
+double BinomialUpperTailLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact) {
+  if (k == 0) return 1.0;
+  if (k > n || p <= 0.0) return 0.0;
+  if (p >= 1.0) return 1.0;
+  const LogBounds b = AnyTailBounds(n, k, p, /*upper_tail=*/true,
                                     std::numeric_limits<double>::infinity());
   if (!b.Converged() && exact != nullptr) *exact = false;
   return std::clamp(std::exp(b.lower), 0.0, 1.0);

@@ -99,6 +99,27 @@ double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p);
 // REQUIRES: k <= n, 0 <= p <= 1.
 double BinomialCdfLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact);
 
+// BinomialUpperTailLowerBound
+// Returns a lower bound on P(Bin(n, p) >= k), equal to it to double precision
+// unless *exact is set to false (left untouched otherwise; may be null).
+// Same method and cost as LogBinomialCdf. REQUIRES: 0 <= p <= 1.
+double BinomialUpperTailLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact);
+
+// UpperLimitAtMost
+// Returns BinomialUpperLimit(n, k, delta).value <= eps, decided from one
+// binomial tail at eps (the limit is at most eps iff P(Bin(n, eps) <= k) <=
+// delta) where the tail is clearly on one side of delta (by more than the
+// limit's own bisection tolerance moves it, at every n up to 2^53), else by
+// computing the limit; so it agrees with the reported limit at a fraction
+// of the cost. For the planners' searches. REQUIRES: n >= 1, k <= n, 0 < delta < 1.
+bool UpperLimitAtMost(std::uint64_t n, std::uint64_t k, double delta, double eps);
+
+// LowerLimitAbove
+// Returns BinomialLowerLimit(n, k, delta).value > eps, decided the same way
+// (the limit exceeds eps iff P(Bin(n, eps) >= k) < delta).
+// REQUIRES: n >= 1, k <= n, 0 < delta < 1.
+bool LowerLimitAbove(std::uint64_t n, std::uint64_t k, double delta, double eps);
+
 // LogChoose
 // Returns ln C(n, k); never forms C(n, k). For large n the difference
 // lgamma(n+1) - lgamma(n-k+1) is rewritten with log1p and Stirling's series so

@@ -10,7 +10,6 @@
 #include <utility>
 #include <vector>
 
-#include <boost/math/distributions/binomial.hpp>
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
@@ -37,20 +36,31 @@ std::uint64_t ErrorsAt(double rate, std::uint64_t n) {
   return static_cast<std::uint64_t>(k);
 }
 
-// Counts evaluations of a bound predicate ok(n, k).
+// Counts evaluations of a bound predicate ok(n, k) and watches a StopToken:
+// once it stops, every evaluation answers true without computing, so the
+// (logarithmic) searches around it run out in a few cheap steps; the caller
+// then sees stopped() and returns the token's status, never the search's
+// result.
 class CountedBound {
  public:
   CountedBound(std::function<bool(std::uint64_t, std::uint64_t)> ok,
-               std::uint64_t* evaluations)
-      : ok_(std::move(ok)), evaluations_(evaluations) {}
+               std::uint64_t* evaluations, const StopToken& stop)
+      : ok_(std::move(ok)), evaluations_(evaluations), stop_(stop) {}
   bool operator()(std::uint64_t n, std::uint64_t k) const {
+    if (stopped_ || stop_.StopRequested()) {
+      stopped_ = true;
+      return true;
+    }
     ++*evaluations_;
     return ok_(n, k);
   }
+  bool stopped() const { return stopped_; }
 
  private:
   std::function<bool(std::uint64_t, std::uint64_t)> ok_;
   std::uint64_t* evaluations_;
+  const StopToken& stop_;
+  mutable bool stopped_ = false;
 };
 
 // Smallest n in [lo, kPlanMaxSamples] with ok(n, k(n)) and ok(s, k(s)) for
@@ -119,24 +129,11 @@ double HoldoutUpper(std::uint64_t n, std::uint64_t k, double delta, bool* exact)
   return std::max(v, static_cast<double>(k) / static_cast<double>(n));
 }
 
-// P(Bin(n, p) <= k) from Boost.Math; where Boost cannot converge (n beyond
-// about 1e13) the Chernoff lower bound 1 - exp(-n kl((k+1)/n || p)) stands in,
+// P(Bin(n, p) <= k), summed in log space (numeric.h; bounded cost at any n);
+// where the sum cannot be settled a lower bound stands in (exact = false),
 // which never overstates the pass probability.
 double PassProbability(std::uint64_t n, std::uint64_t k, double p, bool* exact) {
-  if (k >= n || p <= 0.0) return 1.0;
-  if (p >= 1.0) return 0.0;
-  const double nd = static_cast<double>(n);
-  try {
-    const double v = boost::math::cdf(
-        boost::math::binomial_distribution<>(nd, p), static_cast<double>(k));
-    if (std::isfinite(v) && v >= 0.0 && v <= 1.0) return v;
-  } catch (const std::exception&) {
-    // Fall through to the Chernoff bound.
-  }
-  *exact = false;
-  const double q = (static_cast<double>(k) + 1.0) / nd;
-  if (q <= p) return 0.0;
-  return std::clamp(-std::expm1(-nd * BernoulliKl(q, p)), 0.0, 1.0);
+  return BinomialCdfLowerBound(n, k, p, exact);
 }
 
 std::string Unreachable(double target, double expected, absl::string_view what) {
@@ -175,7 +172,8 @@ std::optional<std::uint64_t> ZeroFailureSamples(double eps, double delta) {
 
 }  // namespace
 
-absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request) {
+absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
+                                        const StopToken& stop) {
   std::vector<FieldViolation> violations;
   CheckTarget(request.target_risk, &violations);
   CheckProbabilityClosed("expected_risk", request.expected_risk, &violations);
@@ -201,15 +199,16 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request) {
     return plan;
   }
 
+  if (stop.StopRequested()) return stop.Status();
+  // HoldoutUpper(n, k) <= eps, decided from one binomial tail where possible.
   const CountedBound ok(
-      [&](std::uint64_t n, std::uint64_t k) {
-        return HoldoutUpper(n, k, delta, nullptr) <= eps;
-      },
-      &plan.bound_evaluations);
+      [&](std::uint64_t n, std::uint64_t k) { return UpperLimitAtMost(n, k, delta, eps); },
+      &plan.bound_evaluations, stop);
   // No n below the zero-failure size can work: Binbar(n, k) >= Binbar(n, 0).
   // One below it guards against rounding in the closed form.
   const absl::StatusOr<std::uint64_t> n95 =
       RobustSmallest(p, std::max<std::uint64_t>(1, plan.zero_failure_samples - 1), ok);
+  if (ok.stopped()) return stop.Status();
   if (!n95.ok()) {
     plan.reason = kBeyondRange;
     return plan;
@@ -308,6 +307,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request) {
     const absl::StatusOr<std::uint64_t> k_star = SmallestNear(guess, 0, k_limit, passes);
     const absl::StatusOr<std::uint64_t> s_star =
         k_star.ok() ? first_feasible(*k_star) : k_star;
+    if (ok.stopped()) return stop.Status();
     if (!s_star.ok()) {
       plan.reason = kBeyondRange;
       plan.samples = 0;
@@ -318,6 +318,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request) {
     plan.pass_probability_samples = n96;
     plan.samples = n96;
     tolerated = k_max(n96, good);
+    if (ok.stopped()) return stop.Status();
     plan.rule = absl::StrFormat(
         "smallest n at which a model with true error rate %g passes (exact binomial "
         "bound <= %g) with probability >= %g (formula sheet 9.6)",
@@ -329,6 +330,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request) {
 
   plan.reachable = true;
   plan.tolerated_errors = tolerated;
+  if (stop.StopRequested()) return stop.Status();
   bool exact = true;
   HoldoutUpper(plan.samples, plan.tolerated_errors, delta, &exact);
   plan.pass_probability_at_plan =
@@ -343,7 +345,8 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request) {
   return plan;
 }
 
-absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request) {
+absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
+                                          const StopToken& stop) {
   std::vector<FieldViolation> violations;
   const FamilySpec* spec = FindFamily(request.family);
   bool uses_vc = false;
@@ -400,6 +403,7 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request) {
                                                 8.0 * h / eps * std::log2(13.0 / eps)));
       // Formula sheet 9.2: VC confidence (our conservative form, +1/m) <= eps/2.
       // Falls in m for m > h/2 and exceeds 1 below, so the predicate is monotone.
+      if (stop.StopRequested()) return stop.Status();
       const absl::StatusOr<std::uint64_t> agn =
           SmallestSatisfying(1, kPlanMaxSamples, [&](std::uint64_t m) {
             const double md = static_cast<double>(m);
@@ -439,8 +443,9 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request) {
         e.training = TrainingEvidence{{k, m}, request.capacity};
         return spec->compute(e, delta).upper_bound <= eps;
       },
-      &plan.bound_evaluations);
+      &plan.bound_evaluations, stop);
   const absl::StatusOr<std::uint64_t> m = RobustSmallest(r, 1, ok);
+  if (ok.stopped()) return stop.Status();
   if (!m.ok()) {
     plan.reason = kBeyondRange;
     return plan;

@@ -30,6 +30,7 @@
 #include "absl/status/statusor.h"
 #include "service/core/certify.h"
 #include "service/core/evidence.h"
+#include "service/core/stop.h"
 
 namespace riskbound::core {
 
@@ -97,8 +98,11 @@ struct HoldoutPlan {
 // Errors: INVALID_ARGUMENT naming each bad field: target_risk (NaN, <= 0),
 // expected_risk (NaN, outside [0, 1]), failure_probability (outside (0, 1)),
 // pass_probability (outside (0, 1)), samples_held (> 2^53).
+// Stops early when `stop` does and returns its status (CANCELLED or
+// DEADLINE_EXCEEDED), never a partial plan.
 // Never returns NaN or Inf. Thread-safe; no shared state.
-absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request);
+absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
+                                        const StopToken& stop = StopToken::Never());
 
 struct TrainingPlanRequest {
   // kVcAdditive, kVcRelative, kOccamHoeffding or kOccamKl (any registered
@@ -151,8 +155,11 @@ struct TrainingPlan {
 // training-set family), capacity (missing the measure the family uses) /
 // capacity.log_hypothesis_count (not finite, < 0), expected_empirical_risk,
 // target_risk, failure_probability, samples_held.
+// Stops early when `stop` does and returns its status (CANCELLED or
+// DEADLINE_EXCEEDED), never a partial plan.
 // Never returns NaN or Inf. Thread-safe; no shared state.
-absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request);
+absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
+                                          const StopToken& stop = StopToken::Never());
 
 }  // namespace riskbound::core
 

@@ -18,6 +18,10 @@ namespace {
 // Certify.
 constexpr double kWeightSumSlack = 1e-12;
 
+// Candidates computed between two looks at the StopToken (each costs a few
+// microseconds at most).
+constexpr std::size_t kStopCheckEvery = 16;
+
 // Which capacity measure a family reads.
 enum class Measure { kVcDimension, kLogHypothesisCount };
 
@@ -173,7 +177,9 @@ std::string DeltaRule(const SelectRequest& request, double total) {
 
 }  // namespace
 
-absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request) {
+absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
+                                             const StopToken& stop) {
+  if (stop.StopRequested()) return stop.Status();
   std::vector<FieldViolation> violations;
   CheckProbabilityOpen("failure_probability", request.delta, &violations);
   CheckNonNegativeFinite("fragility_tolerance", request.fragility_tolerance, &violations);
@@ -194,10 +200,13 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request) {
   CheckCandidates(request, measure, &violations);
   CheckWeights(request, &violations);
   if (!violations.empty()) return InvalidFields(violations);
+  if (stop.StopRequested()) return stop.Status();
 
   const std::vector<double> weights = Weights(request);
   SelectResult result;
+  result.candidates.reserve(request.candidates.size());
   for (std::size_t i = 0; i < request.candidates.size(); ++i) {
+    if (i % kStopCheckEvery == 0 && stop.StopRequested()) return stop.Status();
     const Candidate& c = request.candidates[i];
     Evidence evidence;
     evidence.training = TrainingEvidence{c.training, c.capacity};
@@ -230,6 +239,7 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request) {
       result.within_tolerance.push_back(i);
     }
   }
+  if (stop.StopRequested()) return stop.Status();
   result.fragile = !result.within_tolerance.empty();
   result.delta_rule = DeltaRule(request, result.total_delta);
   if (rows[result.chosen_index].vacuous) {

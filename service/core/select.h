@@ -22,6 +22,7 @@
 
 #include "absl/status/statusor.h"
 #include "service/core/evidence.h"
+#include "service/core/stop.h"
 
 namespace riskbound::core {
 
@@ -119,10 +120,14 @@ struct SelectResult {
 // weights[i] (wrong size, outside (0, 1], sum above 1, or given without
 // kCallerWeights), failure_probability (outside (0, 1)), fragility_tolerance.
 // Never returns NaN or Inf.
+// Cost: linear in the number of candidates (a bounded amount per candidate);
+// `stop` is checked every few candidates, and a stopped call returns
+// stop.Status() (CANCELLED or DEADLINE_EXCEEDED), never a partial result.
 // REQUIRES: the candidates, their order, the family and the weights were
 // fixed before the training sample was seen.
 // Thread-safe; no shared state.
-absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request);
+absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
+                                             const StopToken& stop = StopToken::Never());
 
 }  // namespace riskbound::core
 
