@@ -2,12 +2,14 @@
 
 #include <cmath>
 #include <cstdint>
+#include <unordered_set>
 #include <utility>
 
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
+#include "service/core/limits.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -64,6 +66,11 @@ std::optional<core::ModelDescription> ModelDescriptionFromProto(
     const v1::ModelDescription& in, const std::string& model_path,
     std::vector<FieldViolation>* violations) {
   core::ModelDescription out;
+  // Sizes first: an oversized list gets one violation and its entries are
+  // never looked at (core/limits.h).
+  const bool widths_fit = core::CheckListSize(model_path + ".layer_widths",
+                                              static_cast<std::size_t>(in.layer_widths_size()),
+                                              core::kMaxLayerWidths, violations);
   bool found = false;
   for (const KindRow& row : kKinds) {
     if (row.wire == in.kind()) {
@@ -81,6 +88,7 @@ std::optional<core::ModelDescription> ModelDescriptionFromProto(
              : absl::StrCat("unknown model kind ", static_cast<int>(in.kind()))});
     return std::nullopt;
   }
+  if (!widths_fit) return std::nullopt;
   if (in.has_dimension()) out.dimension = in.dimension();
   if (in.has_with_bias()) out.with_bias = in.with_bias();
   if (in.has_degree()) out.degree = in.degree();
@@ -131,13 +139,29 @@ std::optional<core::CapacityEstimate> EstimateModel(const v1::ModelDescription& 
   if (!model.has_value()) return std::nullopt;
   absl::StatusOr<core::CapacityEstimate> estimate = core::EstimateCapacity(*model);
   if (estimate.ok()) return *std::move(estimate);
-  std::vector<FieldViolation> found = core::FieldViolationsOf(estimate.status());
-  if (found.empty()) {
+  core::ViolationReport found = core::ViolationReportOf(estimate.status());
+  if (found.listed.empty() && found.unlisted_count == 0) {
     // Not a field error (should not happen): report it on the model itself.
-    found.push_back({"model", std::string(estimate.status().message())});
+    found.listed.push_back({"model", std::string(estimate.status().message())});
   }
-  for (FieldViolation& v : found) {
+  // The core listed at most kMaxListedViolations (e.g. 1000 zero layer
+  // widths): keep one slot for a violation on the model counting the rest,
+  // so the count survives into the request's own list.
+  std::uint64_t unlisted = found.unlisted_count;
+  if (unlisted > 0 && found.listed.size() >= core::kMaxListedViolations) {
+    unlisted += found.listed.size() - (core::kMaxListedViolations - 1);
+    found.listed.resize(core::kMaxListedViolations - 1);
+  }
+  for (FieldViolation& v : found.listed) {
     violations->push_back({Reroot(v.field, model_path), std::move(v.description)});
+  }
+  if (unlisted > 0) {
+    violations->push_back(
+        {model_path, absl::StrCat("and ", unlisted,
+                                  unlisted == 1 ? " more invalid field of this model was "
+                                                  "not listed"
+                                                : " more invalid fields of this model were "
+                                                  "not listed")});
   }
   return std::nullopt;
 }
@@ -187,15 +211,26 @@ void ModelCapacityFromProto(const v1::ModelDescription& in, const std::string& m
 }
 
 void DropRedundantCapacityViolations(std::vector<FieldViolation>* violations) {
-  std::vector<FieldViolation> kept;
-  for (const FieldViolation& v : *violations) {
-    bool explained = false;
-    if (absl::EndsWith(v.field, "capacity")) {
-      for (const FieldViolation& w : *violations) {
-        explained |= absl::StartsWith(w.field, v.field + ".model");
+  // Every "<path>.capacity" that some violation sits under as
+  // "<path>.capacity.model...": one pass over each path's parents, so the
+  // cost is linear in the total length of the paths.
+  std::unordered_set<std::string> explained;
+  for (const FieldViolation& w : *violations) {
+    const std::string& f = w.field;
+    for (std::size_t end = f.size(); end != std::string::npos && end > 0;
+         end = f.find_last_of(".[", end - 1)) {
+      const absl::string_view parent(f.data(), end);
+      if (absl::EndsWith(parent, "capacity.model") && parent.size() > 6) {
+        explained.emplace(parent.substr(0, parent.size() - 6));
       }
+      if (end == 0) break;
     }
-    if (!explained) kept.push_back(v);
+  }
+  if (explained.empty()) return;
+  std::vector<FieldViolation> kept;
+  kept.reserve(violations->size());
+  for (FieldViolation& v : *violations) {
+    if (!explained.contains(v.field)) kept.push_back(std::move(v));
   }
   *violations = std::move(kept);
 }

@@ -23,8 +23,10 @@ namespace riskbound::rpc {
 
 // ModelDescriptionFromProto
 // Returns the core description, or nullopt after appending a violation named
-// "<model_path>.kind" when the kind is unspecified or unknown. Every other
-// check is the core's (core::EstimateCapacity). Thread-safe.
+// "<model_path>.kind" when the kind is unspecified or unknown, or one named
+// "<model_path>.layer_widths" when it has more than core::kMaxLayerWidths
+// entries (checked before any entry is copied). Every other check is the
+// core's (core::EstimateCapacity). Thread-safe.
 std::optional<core::ModelDescription> ModelDescriptionFromProto(
     const v1::ModelDescription& in, const std::string& model_path,
     std::vector<core::FieldViolation>* violations);
@@ -37,7 +39,9 @@ void ModelDescriptionToProto(const core::ModelDescription& in, v1::ModelDescript
 // Converts `in` and runs core::EstimateCapacity. Returns the estimate, or
 // nullopt after appending every violation, each re-rooted from "model" to
 // `model_path` (e.g. "evidence.training.capacity.model.layer_widths[1]").
-// Thread-safe.
+// When the core listed only some (core::InvalidFields caps its list), the
+// first kMaxListedViolations - 1 are appended and one more, named
+// `model_path`, says how many were not listed. Thread-safe.
 std::optional<core::CapacityEstimate> EstimateModel(const v1::ModelDescription& in,
                                                     const std::string& model_path,
                                                     std::vector<core::FieldViolation>* violations);
@@ -59,6 +63,7 @@ void ModelCapacityFromProto(const v1::ModelDescription& in, const std::string& m
 // Removes a violation named "<path>.capacity" (the core's "a training-set
 // bound needs a capacity") when a violation under "<path>.capacity.model"
 // already says why the model gave none. Call after core::ValidateEvidence.
+// Linear in the number and length of the paths.
 void DropRedundantCapacityViolations(std::vector<core::FieldViolation>* violations);
 
 // CapacityEstimateToProto
@@ -66,8 +71,8 @@ void DropRedundantCapacityViolations(std::vector<core::FieldViolation>* violatio
 void CapacityEstimateToProto(const core::CapacityEstimate& in, v1::CapacityEstimate* out);
 
 // EstimateCapacityRequestFromProto
-// Returns the core description, or INVALID_ARGUMENT naming "model" (missing)
-// or "model.kind". Thread-safe.
+// Returns the core description, or INVALID_ARGUMENT naming "model" (missing),
+// "model.kind" or "model.layer_widths" (over its cap). Thread-safe.
 absl::StatusOr<core::ModelDescription> EstimateCapacityRequestFromProto(
     const v1::EstimateCapacityRequest& in);
 

@@ -6,6 +6,7 @@
 
 #include "service/core/families.h"
 #include "service/core/field_violation.h"
+#include "service/core/limits.h"
 #include "service/rpc/capacity_convert.h"
 
 namespace riskbound::rpc {
@@ -109,15 +110,28 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
 absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
   std::vector<FieldViolation> violations;
   core::CertifyRequest out;
+  // Sizes first: an oversized list gets one violation and its entries are
+  // never looked at (core/limits.h).
+  const bool families_fit =
+      core::CheckListSize("listed.families", in.listed().families_size(),
+                          core::kMaxListedFamilies, &violations);
+  const bool weights_fit =
+      core::CheckListSize("listed.delta_weights", in.listed().delta_weights_size(),
+                          core::kMaxListedDeltaWeights, &violations);
   EvidenceFromProto(in.evidence(), "evidence", &out.evidence, &violations);
   out.delta = in.failure_probability();
   switch (in.family_choice_case()) {
-    case v1::CertifyRequest::kListed:
+    case v1::CertifyRequest::kListed: {
       out.choice = core::FamilyChoice::kListed;
-      for (int f : in.listed().families()) out.families.push_back(static_cast<core::Family>(f));
-      out.delta_weights.assign(in.listed().delta_weights().begin(),
-                               in.listed().delta_weights().end());
+      if (families_fit && weights_fit) {
+        for (int f : in.listed().families()) {
+          out.families.push_back(static_cast<core::Family>(f));
+        }
+        out.delta_weights.assign(in.listed().delta_weights().begin(),
+                                 in.listed().delta_weights().end());
+      }
       break;
+    }
     case v1::CertifyRequest::kAllApplicable:
       out.choice = core::FamilyChoice::kAllApplicable;
       break;

@@ -37,7 +37,9 @@ void EvidenceFromProto(const v1::Evidence& in, const std::string& prefix, core::
 
 // CertifyRequestFromProto
 // Returns the core request, or INVALID_ARGUMENT listing every bad field by its
-// path (see core/field_violation.h). Thread-safe.
+// path (see core/field_violation.h). Lists over their caps (core/limits.h:
+// listed.families, listed.delta_weights, a model's layer_widths) are refused
+// with one violation each before their entries are looked at. Thread-safe.
 absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in);
 
 // CertificateToProto

@@ -12,6 +12,7 @@
 #include "google/protobuf/io/zero_copy_stream_impl_lite.h"
 #include "service/core/certify.h"
 #include "service/core/field_violation.h"
+#include "service/core/limits.h"
 #include "service/rpc/convert.h"
 
 namespace riskbound::rpc {
@@ -41,26 +42,43 @@ absl::StatusOr<GateInputs> GateInputsFromProto(const v1::GateRequest& in) {
   GateInputs out;
 
   const v1::GatePolicy& p = in.policy();
+  // Sizes first: an oversized list or name gets one violation and is never
+  // looked at further (core/limits.h). A name over its cap reaches the core
+  // cut to the cap, so the core's other checks still run.
+  const bool families_fit =
+      core::CheckListSize("policy.allowed_families", p.allowed_families_size(),
+                          core::kMaxAllowedFamilies, &violations);
+  core::CheckTextSize("candidate.id", in.candidate().id(), core::kMaxIdBytes, &violations);
+  if (in.has_champion()) {
+    core::CheckTextSize("champion.champion_id", in.champion().champion_id(), core::kMaxIdBytes,
+                        &violations);
+  }
+  // Paths the size checks refused: the core's findings under them are left out.
+  std::set<std::string> refused;
+  for (const FieldViolation& v : violations) refused.insert(v.field);
+
   out.policy.max_risk = p.max_risk();
   out.policy.delta = p.failure_probability();
   // Unknown values (and BOUND_FAMILY_UNSPECIFIED) reach the core, which names
   // them as policy.allowed_families[i].
-  for (int f : p.allowed_families()) {
-    out.policy.allowed_families.push_back(static_cast<core::Family>(f));
+  if (families_fit) {
+    for (int f : p.allowed_families()) {
+      out.policy.allowed_families.push_back(static_cast<core::Family>(f));
+    }
   }
   out.policy.min_holdout_samples = p.min_holdout_sample_count();
   if (p.has_max_regression()) out.policy.max_regression = p.max_regression();
   out.policy.plan_pass_probability =
       p.has_plan_pass_probability() ? p.plan_pass_probability() : kDefaultPlanPassProbability;
 
-  out.candidate.id = in.candidate().id();
+  out.candidate.id = in.candidate().id().substr(0, core::kMaxIdBytes);
   EvidenceFromProto(in.candidate().evidence(), "candidate.evidence", &out.candidate.evidence,
                     &violations);
 
   if (in.has_champion()) {
     const v1::ChampionComparison& c = in.champion();
     core::ChampionComparison champion;
-    champion.champion_id = c.champion_id();
+    champion.champion_id = c.champion_id().substr(0, core::kMaxIdBytes);
     switch (c.comparison_case()) {
       case v1::ChampionComparison::kPaired:
         champion.paired = core::PairedCounts{
@@ -78,18 +96,24 @@ absl::StatusOr<GateInputs> GateInputsFromProto(const v1::GateRequest& in) {
   }
 
   if (violations.empty()) return out;
+  // An oversized list: the rest of the policy cannot be judged without it.
+  if (!families_fit) return core::InvalidFields(violations);
   // Shape problems found: add the core's own findings so that one answer
   // names every bad field. The core validates before it computes anything.
   absl::StatusOr<core::GateDecision> decided =
       core::DecideGate(out.policy, out.candidate, out.champion);
+  std::uint64_t unlisted = 0;
   if (!decided.ok()) {
     std::set<std::pair<std::string, std::string>> seen;
     for (const FieldViolation& v : violations) seen.emplace(v.field, v.description);
-    for (FieldViolation& v : core::FieldViolationsOf(decided.status())) {
+    core::ViolationReport found = core::ViolationReportOf(decided.status());
+    for (FieldViolation& v : found.listed) {
+      if (refused.count(v.field) > 0) continue;
       if (seen.emplace(v.field, v.description).second) violations.push_back(std::move(v));
     }
+    unlisted = found.unlisted_count;
   }
-  return core::InvalidFields(violations);
+  return core::InvalidFields(violations, unlisted);
 }
 
 std::string CanonicalGateRequestBytes(const v1::GateRequest& request) {

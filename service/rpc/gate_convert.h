@@ -28,7 +28,11 @@ struct GateInputs {
 // wire shape alone can show (e.g. policy.allowed_families[i] out of the enum,
 // a missing comparison oneof is left to the core), together with every
 // violation core::DecideGate's validation finds, so one call names them all.
-// Paths: policy.*, candidate.*, champion.*. Thread-safe.
+// Paths: policy.*, candidate.*, champion.*. Sizes are checked first
+// (core/limits.h): more than kMaxAllowedFamilies allowed families is one
+// violation "policy.allowed_families" and nothing else of the policy is
+// judged; candidate.id or champion.champion_id over kMaxIdBytes is named.
+// Thread-safe.
 absl::StatusOr<GateInputs> GateInputsFromProto(const v1::GateRequest& in);
 
 // CanonicalGateRequestBytes

@@ -1,6 +1,9 @@
 #include "service/rpc/select_convert.h"
 
+#include <cmath>
+#include <optional>
 #include <string>
+#include <unordered_set>
 #include <vector>
 
 #include "absl/strings/match.h"
@@ -8,6 +11,7 @@
 #include "absl/strings/str_replace.h"
 #include "service/core/certify.h"
 #include "service/core/families.h"
+#include "service/core/limits.h"
 #include "service/rpc/convert.h"
 
 namespace riskbound::rpc {
@@ -15,12 +19,15 @@ namespace {
 
 using core::FieldViolation;
 
-// True when `parent` is `path` or a field above it ("a.b" above "a.b.c" and
-// "a.b[2]").
-bool IsSameOrParent(const std::string& parent, const std::string& path) {
-  if (path == parent) return true;
-  return absl::StartsWith(path, parent) &&
-         (path[parent.size()] == '.' || path[parent.size()] == '[');
+// Inserts `path` and every field above it ("a.b[2].c" -> "a.b[2].c",
+// "a.b[2]", "a.b", "a") into `out`.
+void InsertSelfAndParents(const std::string& path, std::unordered_set<std::string>* out) {
+  out->insert(path);
+  for (std::size_t end = path.find_last_of(".[");
+       end != std::string::npos && end > 0; end = path.find_last_of(".[", end - 1)) {
+    // A parent already present has its own parents present too.
+    if (!out->insert(path.substr(0, end)).second) break;
+  }
 }
 
 // The name of the capacity measure a training-set family reads.
@@ -39,16 +46,20 @@ std::string MeasureName(core::Family family) {
 absl::Status MergeViolations(const std::vector<FieldViolation>& shape,
                              const absl::Status& core_status,
                              const std::function<std::string(const std::string&)>& to_wire) {
-  const std::vector<FieldViolation> from_core = core::FieldViolationsOf(core_status);
-  if (!core_status.ok() && from_core.empty()) return core_status;
-  std::vector<FieldViolation> all = shape;
-  for (const FieldViolation& v : from_core) {
-    const std::string path = to_wire(v.field);
-    bool covered = false;
-    for (const FieldViolation& s : shape) covered = covered || IsSameOrParent(path, s.field);
-    if (!covered) all.push_back({path, v.description});
+  core::ViolationReport from_core = core::ViolationReportOf(core_status);
+  if (!core_status.ok() && from_core.listed.empty() && from_core.unlisted_count == 0) {
+    return core_status;
   }
-  return core::InvalidFields(all);
+  // Linear: every shape path and its parents in one set, then one lookup per
+  // core violation (a core path equal to, or above, a shape path is covered).
+  std::unordered_set<std::string> covered;
+  for (const FieldViolation& s : shape) InsertSelfAndParents(s.field, &covered);
+  std::vector<FieldViolation> all = shape;
+  for (FieldViolation& v : from_core.listed) {
+    std::string path = to_wire(v.field);
+    if (covered.count(path) == 0) all.push_back({std::move(path), std::move(v.description)});
+  }
+  return core::InvalidFields(all, from_core.unlisted_count);
 }
 
 std::string SelectPathToWire(const std::string& core_path) {
@@ -62,18 +73,50 @@ absl::StatusOr<core::SelectRequest> SelectRequestFromProto(
     const v1::SelectStructureRequest& in) {
   std::vector<FieldViolation> shape;
   core::SelectRequest out;
+  // Sizes first: an oversized list gets one violation and its entries are
+  // never looked at (core/limits.h); the structure cannot be judged without
+  // them, so the core is not asked either.
+  const bool structure_fits = core::CheckListSize("structure", in.structure_size(),
+                                                  core::kMaxStructureCandidates, &shape);
+  const bool weights_fit =
+      core::CheckListSize("weights", in.weights_size(), core::kMaxStructureWeights, &shape);
+  if (!structure_fits || !weights_fit) return core::InvalidFields(shape);
+  out.candidates.reserve(in.structure_size());
+  // The last capacity of each measure a candidate carries, for the
+  // placeholder below.
+  std::uint64_t last_vc_dimension = 0;
+  double last_log_hypothesis_count = 0.0;
   for (int i = 0; i < in.structure_size(); ++i) {
     const v1::StructureCandidate& c = in.structure(i);
     core::Candidate cand;
-    cand.id = c.id();
+    // An id over its cap is named here and reaches the core cut to the cap
+    // (the core's own finding on the same path is then left out).
+    core::CheckTextSize(absl::StrCat("structure[", i, "].id"), c.id(), core::kMaxIdBytes,
+                        &shape);
+    cand.id = c.id().substr(0, core::kMaxIdBytes);
     cand.training = core::SampleCounts{c.error_count(), c.sample_count()};
     const std::string prefix = absl::StrCat("structure[", i, "].capacity");
+    const std::size_t before = shape.size();
     if (!c.has_capacity() || c.capacity().measure_case() == v1::Capacity::MEASURE_NOT_SET) {
       shape.push_back({prefix,
                        "required: vc_dimension, hypothesis_count, log_hypothesis_count or a "
                        "model description"});
     } else {
       CapacityFromProto(c.capacity(), prefix, &cand.capacity, &shape);
+    }
+    if (shape.size() > before && absl::StartsWith(shape.back().field, prefix)) {
+      // Refused here. For the core's probe (this request is never returned
+      // then) the candidate gets the capacity of the one before it: the core
+      // neither restates the refusal, which would be counted twice once the
+      // core's list is capped, nor judges the nesting differently than it
+      // would skip a candidate without capacity.
+      cand.capacity.vc_dimension = last_vc_dimension;
+      cand.capacity.log_hypothesis_count = last_log_hypothesis_count;
+    }
+    if (cand.capacity.vc_dimension.has_value()) last_vc_dimension = *cand.capacity.vc_dimension;
+    if (const std::optional<double>& h = cand.capacity.log_hypothesis_count;
+        h.has_value() && std::isfinite(*h) && *h >= 0.0) {
+      last_log_hypothesis_count = *h;
     }
     out.candidates.push_back(std::move(cand));
   }
@@ -105,10 +148,8 @@ absl::StatusOr<core::SelectRequest> SelectRequestFromProto(
   out.fragility_tolerance =
       in.has_fragility_tolerance() ? in.fragility_tolerance() : kDefaultFragilityTolerance;
   if (shape.empty()) return out;
-  // Report the core's findings too, so one call names every bad field. With
-  // shape violations present the core refuses before computing anything in
-  // every case that matters (a missing capacity or family); otherwise it
-  // computes K bounds, which is cheap.
+  // Report the core's findings too, so one call names every bad field. When
+  // the core finds nothing more it computes K bounds, which is cheap.
   const absl::StatusOr<core::SelectResult> probe = core::SelectStructure(out);
   return MergeViolations(shape, probe.status(), SelectPathToWire);
 }

@@ -30,8 +30,10 @@ inline constexpr double kDefaultFragilityTolerance = 0.01;
 // (core::InvalidFields); then INVALID_ARGUMENT listing `shape` followed by the
 // core's violations with each path passed through `to_wire`, leaving out a
 // core violation whose wire path is `shape`'s path or a parent of it (the
-// shape check already said what is wrong there). With an OK `core_status`,
-// returns InvalidFields(shape) (OK when `shape` is empty). Thread-safe.
+// shape check already said what is wrong there). Violations the core's status
+// counted but did not list (core::InvalidFields caps the list) stay counted.
+// With an OK `core_status`, returns InvalidFields(shape) (OK when `shape` is
+// empty). Linear in the number and length of the paths. Thread-safe.
 absl::Status MergeViolations(const std::vector<core::FieldViolation>& shape,
                              const absl::Status& core_status,
                              const std::function<std::string(const std::string&)>& to_wire);
@@ -43,7 +45,11 @@ std::string SelectPathToWire(const std::string& core_path);
 // SelectRequestFromProto
 // Returns the core request, or INVALID_ARGUMENT listing every bad field by its
 // wire path: the shape checks (capacity oneof, family and delta_spread
-// values) together with the core's own checks. Thread-safe.
+// values) together with the core's own checks. First of all the sizes
+// (core/limits.h): more than kMaxStructureCandidates candidates or
+// kMaxStructureWeights weights is refused with one violation ("structure" or
+// "weights") before any candidate is looked at; an id longer than
+// kMaxIdBytes is named "structure[i].id". Thread-safe.
 absl::StatusOr<core::SelectRequest> SelectRequestFromProto(
     const v1::SelectStructureRequest& in);
 

@@ -1,29 +1,74 @@
 #include "service/rpc/status.h"
 
 #include <string>
+#include <vector>
 
 #include "riskbound/v1/common.pb.h"
 #include "service/core/field_violation.h"
 
 namespace riskbound::rpc {
+namespace {
+
+// Length of the base64 form of `n` bytes, padding included (an upper bound
+// for the unpadded form gRPC sends).
+std::size_t Base64Size(std::size_t n) { return 4 * ((n + 2) / 3); }
+
+std::string Details(int code, const std::string& message,
+                    const std::vector<core::FieldViolation>& listed, std::size_t keep,
+                    std::uint64_t unlisted) {
+  v1::FieldViolations detail;
+  for (std::size_t i = 0; i < keep; ++i) {
+    v1::FieldViolation* out = detail.add_field_violations();
+    out->set_field(listed[i].field);
+    out->set_description(listed[i].description);
+  }
+  if (unlisted > 0) {
+    const core::FieldViolation summary = core::SummaryViolation(unlisted);
+    v1::FieldViolation* out = detail.add_field_violations();
+    out->set_field(summary.field);
+    out->set_description(summary.description);
+  }
+  v1::ErrorStatus error;
+  error.set_code(code);
+  error.set_message(message);
+  error.add_details()->PackFrom(detail);
+  return error.SerializeAsString();
+}
+
+}  // namespace
+
+std::size_t PercentEncodedSize(absl::string_view text) {
+  std::size_t size = 0;
+  for (const char ch : text) {
+    const unsigned char c = static_cast<unsigned char>(ch);
+    size += (c < 0x20 || c > 0x7E || c == '%') ? 3 : 1;
+  }
+  return size;
+}
 
 grpc::Status ToGrpcStatus(const absl::Status& status) {
   if (status.ok()) return grpc::Status::OK;
   const auto code = static_cast<grpc::StatusCode>(status.code());
-  const std::string message(status.message());
-  const auto violations = core::FieldViolationsOf(status);
-  if (violations.empty()) return grpc::Status(code, message);
-  v1::FieldViolations detail;
-  for (const core::FieldViolation& v : violations) {
-    v1::FieldViolation* out = detail.add_field_violations();
-    out->set_field(v.field);
-    out->set_description(v.description);
+  // Idempotent: a message made by core::InvalidFields passes unchanged.
+  const std::string message = core::SanitizeText(status.message(), core::kMaxMessageBytes);
+  core::ViolationReport report = core::ViolationReportOf(status);
+  if (report.listed.empty() && report.unlisted_count == 0) return grpc::Status(code, message);
+  for (core::FieldViolation& v : report.listed) {
+    v.field = core::SanitizeText(v.field, core::kMaxFieldPathBytes);
+    v.description = core::SanitizeText(v.description, core::kMaxDescriptionBytes);
   }
-  v1::ErrorStatus error;
-  error.set_code(static_cast<int>(status.code()));
-  error.set_message(message);
-  error.add_details()->PackFrom(detail);
-  return grpc::Status(code, message, error.SerializeAsString());
+  // Message <= 512 bytes, so <= 1536 percent-encoded: >= 3584 bytes remain.
+  const std::size_t details_budget = kTrailerBudgetBytes - PercentEncodedSize(message);
+  const std::size_t listed = report.listed.size();
+  for (std::size_t keep = listed;; --keep) {
+    std::string details = Details(static_cast<int>(status.code()), message, report.listed,
+                                  keep, report.unlisted_count + (listed - keep));
+    // With no violation kept the details are the message and one summary:
+    // at most ~600 bytes, always within the budget.
+    if (Base64Size(details.size()) <= details_budget || keep == 0) {
+      return grpc::Status(code, message, std::move(details));
+    }
+  }
 }
 
 }  // namespace riskbound::rpc
