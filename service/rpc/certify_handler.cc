@@ -9,7 +9,7 @@ absl::StatusOr<v1::CertifyResponse> HandleCertify(const v1::CertifyRequest& requ
                                                   const core::StopToken& stop) {
   absl::StatusOr<core::CertifyRequest> core_request = CertifyRequestFromProto(request);
   if (!core_request.ok()) return core_request.status();
-  absl::StatusOr<core::CertifyResult> result = core::Certify(*core_request /*STOPTOKEN*/);
+  absl::StatusOr<core::CertifyResult> result = core::Certify(*core_request, stop);
   if (!result.ok()) return result.status();
   return CertifyResponseToProto(*result, core_request->delta);
 }

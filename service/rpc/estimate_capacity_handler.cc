@@ -11,7 +11,7 @@ absl::StatusOr<v1::EstimateCapacityResponse> HandleEstimateCapacity(
     const v1::EstimateCapacityRequest& request, const core::StopToken& stop) {
   absl::StatusOr<core::ModelDescription> model = EstimateCapacityRequestFromProto(request);
   if (!model.ok()) return model.status();
-  absl::StatusOr<core::CapacityEstimate> estimate = core::EstimateCapacity(*model /*STOPTOKEN*/);
+  absl::StatusOr<core::CapacityEstimate> estimate = core::EstimateCapacity(*model, stop);
   if (!estimate.ok()) return estimate.status();
   return EstimateCapacityResponseToProto(*estimate);
 }

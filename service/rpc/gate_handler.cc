@@ -12,7 +12,7 @@ absl::StatusOr<v1::GateResponse> HandleGate(const v1::GateRequest& request,
   absl::StatusOr<GateInputs> inputs = GateInputsFromProto(request);
   if (!inputs.ok()) return inputs.status();
   absl::StatusOr<core::GateDecision> decision =
-      core::DecideGate(inputs->policy, inputs->candidate, inputs->champion /*STOPTOKEN*/);
+      core::DecideGate(inputs->policy, inputs->candidate, inputs->champion, stop);
   if (!decision.ok()) return decision.status();
   return GateResponseToProto(*decision, request, absl::Now());
 }

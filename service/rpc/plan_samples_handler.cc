@@ -14,11 +14,11 @@ absl::StatusOr<v1::PlanSamplesResponse> HandlePlanSamples(const v1::PlanSamplesR
   const std::string kind = call->holdout.has_value() ? "holdout" : "training";
   auto to_wire = [&kind](const std::string& p) { return PlanPathToWire(kind, p); };
   if (call->holdout.has_value()) {
-    absl::StatusOr<core::HoldoutPlan> plan = core::PlanHoldout(*call->holdout /*STOPTOKEN*/);
+    absl::StatusOr<core::HoldoutPlan> plan = core::PlanHoldout(*call->holdout, stop);
     if (!plan.ok()) return MergeViolations({}, plan.status(), to_wire);
     return HoldoutPlanToProto(*plan);
   }
-  absl::StatusOr<core::TrainingPlan> plan = core::PlanTraining(*call->training /*STOPTOKEN*/);
+  absl::StatusOr<core::TrainingPlan> plan = core::PlanTraining(*call->training, stop);
   if (!plan.ok()) return MergeViolations({}, plan.status(), to_wire);
   return TrainingPlanToProto(*call->training, *plan);
 }

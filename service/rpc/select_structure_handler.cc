@@ -9,7 +9,7 @@ absl::StatusOr<v1::SelectStructureResponse> HandleSelectStructure(
     const v1::SelectStructureRequest& request, const core::StopToken& stop) {
   absl::StatusOr<core::SelectRequest> core_request = SelectRequestFromProto(request);
   if (!core_request.ok()) return core_request.status();
-  absl::StatusOr<core::SelectResult> result = core::SelectStructure(*core_request /*STOPTOKEN*/);
+  absl::StatusOr<core::SelectResult> result = core::SelectStructure(*core_request, stop);
   if (!result.ok()) return MergeViolations({}, result.status(), SelectPathToWire);
   return SelectResponseToProto(*core_request, *result);
 }
