@@ -18,6 +18,7 @@
 #include "service/core/holdout.h"
 #include "service/core/numeric.h"
 #include "service/core/plan.h"
+#include "service/core/work_budget.h"
 
 namespace riskbound::core {
 namespace {
@@ -25,6 +26,10 @@ namespace {
 // Below this the delta split (down to delta/8 per binomial limit, /K per
 // family) would leave the normal doubles.
 constexpr double kMinGateDelta = 1e-300;
+
+// CPU time one REJECT plan may take (ordinary plans take well under a
+// millisecond; only rates within a hair of the threshold come near it).
+constexpr double kRejectionPlanCpuSeconds = 0.1;
 
 // Shares of one family in a K-way split are shrunk by this factor so that K
 // rounded shares never add up to more than the share they split.
@@ -284,15 +289,40 @@ double UpperTail(std::uint64_t n, std::uint64_t k, double p) {
 absl::StatusOr<std::uint64_t> PlanRejection(double epsilon, double p, double delta,
                                             double pass, std::uint64_t held,
                                             const StopToken& stop) {
+  // At a true rate p <= epsilon the lower limit exceeds epsilon (so exceeds
+  // p) with probability at most delta, whatever n (Clopper & Pearson 1934):
+  // a pass probability above delta is out of reach, no search needed.
+  if (p <= epsilon && pass > delta) {
+    return absl::NotFoundError("no sample size up to 2^53 settles it");
+  }
+  // Work budget: each decision costs microseconds, up to about half a
+  // millisecond where a limit must be computed (rates within a hair of
+  // epsilon at huge n, where thousands are needed); past the budget the plan
+  // is given up (and every later decision answers at once, so the searches
+  // wind down).
+  WorkBudget budget(kRejectionPlanCpuSeconds);
+  bool exhausted = false;
+  const auto above = [&](std::uint64_t n, std::uint64_t k) {
+    if (exhausted || budget.Spent()) {
+      exhausted = true;
+      return true;
+    }
+    return LowerLimitAbove(n, k, delta, epsilon);
+  };
   auto ok = [&](std::uint64_t n) {
-    if (!LowerLimitAbove(n, n, delta, epsilon)) return false;
+    if (!above(n, n)) return false;
     const double floor_k = std::floor(epsilon * static_cast<double>(n));
     const std::uint64_t from = std::min<std::uint64_t>(n, static_cast<std::uint64_t>(floor_k));
-    absl::StatusOr<std::uint64_t> k_min = SmallestSatisfying(
-        from, n, [&](std::uint64_t k) { return LowerLimitAbove(n, k, delta, epsilon); });
-    return k_min.ok() && UpperTail(n, *k_min, p) >= pass;
+    absl::StatusOr<std::uint64_t> k_min =
+        SmallestSatisfying(from, n, [&](std::uint64_t k) { return above(n, k); });
+    return k_min.ok() && (exhausted || UpperTail(n, *k_min, p) >= pass);
   };
-  return SmallestFrom(held, ok, stop);
+  absl::StatusOr<std::uint64_t> n = SmallestFrom(held, ok, stop);
+  if (exhausted && n.ok()) {
+    return absl::ResourceExhaustedError(
+        "the rate is too close to the threshold for a plan within the per-call work budget");
+  }
+  return n;
 }
 
 // Smallest total n (anticipated disagreement rates held fixed) at which the
@@ -591,6 +621,11 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
               *n - std::min(*n, held), " more labelled hold-out samples (", *n,
               " in all) would show it with probability ", Num(policy.plan_pass_probability),
               " if the rate stays there (a REJECT)"));
+        } else if (n.status().code() == absl::StatusCode::kResourceExhausted) {
+          plannable = false;
+          details.push_back(absl::StrCat("no REJECT plan: ", rate_words, " ", Num(rate),
+                                         " is so close to the threshold that a plan would "
+                                         "take more than the per-call work budget"));
         } else {
           plannable = false;
           details.push_back(absl::StrCat(rate_words, " ", Num(rate),

@@ -159,7 +159,8 @@ const char* VerdictName(Verdict verdict);
 //        smallest total n at which P(Bin(n, p) >= k_min(n)) reaches the pass
 //        probability, k_min(n) being the fewest errors whose Clopper-Pearson
 //        lower limit exceeds epsilon (found by exponential search and
-//        bisection, so a small n, not always the very smallest);
+//        bisection, so a small n, not always the very smallest; given up,
+//        with no plan, past a work budget of 100 ms of CPU);
 //      - champion comparison unsettled (paired only): the smallest total n at
 //        which the difference limits, with the observed disagreement rates
 //        held fixed, settle the comparison (anticipated-rate plan, bounds.md

@@ -26,6 +26,14 @@ using CappedPolicy = boost::math::policies::policy<
     boost::math::policies::max_root_iterations<kBoostRootIterations>,
     boost::math::policies::max_series_iterations<kBoostSeriesIterations>>;
 using Binomial = boost::math::binomial_distribution<double, CappedPolicy>;
+// Above 2^32 samples the CDF, asked many times per search, gets a tighter
+// series cap: where it would need more terms (near the mode) it gives up
+// within tens of microseconds and the log-space bounds answer instead.
+constexpr int kBoostCdfSeriesIterations = 1000;
+using CdfBinomial = boost::math::binomial_distribution<
+    double, boost::math::policies::policy<
+                boost::math::policies::max_root_iterations<kBoostRootIterations>,
+                boost::math::policies::max_series_iterations<kBoostCdfSeriesIterations>>>;
 
 // Above this many samples Boost's inversion is not tried at all: it rarely
 // converges there within the caps and only costs time.
@@ -34,7 +42,7 @@ constexpr double kBoostInverseMaxSamples = 4294967296.0;  // 2^32
 // Terms a tail sum adds one by one before it either converged or reports
 // bounds: the cheap first try, and the most it ever adds.
 constexpr std::uint64_t kTailTermsFirst = 4096;
-constexpr std::uint64_t kTailTermsMax = 65536;
+constexpr std::uint64_t kTailTermsMax = 16384;
 
 // A tail sum has converged when the bound on what is left is below this
 // fraction of the partial sum (below half an ulp of a double).
@@ -43,7 +51,12 @@ constexpr double kTailNegligible = 0x1p-56;
 // A decision "is the limit beyond eps?" taken from one tail evaluation at
 // eps is trusted when the tail is this far (in ln) from ln delta; closer, the
 // limit itself is computed, so the answer agrees with the reported limit.
-constexpr double kDecideMargin = 1e-3;
+// The margin covers what the limit's own bisection tolerance (1e-12
+// relative) moves the tail by: d ln P / d ln p is at most about
+// sqrt(2 n ln(1/delta)), so 4e-11 sqrt(n) (for ln(1/delta) up to ~800).
+double DecideMargin(std::uint64_t n) {
+  return 1e-9 + 4e-11 * std::sqrt(static_cast<double>(n));
+}
 
 // Below this, exp() of a log probability is not a normal double.
 constexpr double kLogNormalMin = -700.0;
@@ -177,9 +190,16 @@ LogBounds LogTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
     return {log_first + s.lower, log_first + s.upper};
   }
   try {
-    const Binomial bin(nd, p);
-    const double v = upper_tail ? boost::math::cdf(boost::math::complement(bin, kd - 1.0))
-                                : boost::math::cdf(bin, kd);
+    double v = 0.0;
+    if (nd <= kBoostInverseMaxSamples) {
+      const Binomial bin(nd, p);
+      v = upper_tail ? boost::math::cdf(boost::math::complement(bin, kd - 1.0))
+                     : boost::math::cdf(bin, kd);
+    } else {
+      const CdfBinomial bin(nd, p);
+      v = upper_tail ? boost::math::cdf(boost::math::complement(bin, kd - 1.0))
+                     : boost::math::cdf(bin, kd);
+    }
     if (std::isfinite(v) && v > 0.0 && v <= 1.0 && std::log(v) > kLogNormalMin) {
       return {std::log(v), std::log(v)};
     }
@@ -415,14 +435,15 @@ bool UpperLimitAtMost(std::uint64_t n, std::uint64_t k, double delta, double eps
   if (k >= n) return eps >= 1.0;
   if (eps >= 1.0) return true;
   if (eps <= 0.0) return false;
-  if (k == 0 || static_cast<double>(k) >= eps * static_cast<double>(n)) {
-    return BinomialUpperLimit(n, k, delta).value <= eps;  // closed form, or false
-  }
+  if (k == 0) return BinomialUpperLimit(n, k, delta).value <= eps;  // closed form
+  // The limit exceeds k/n (k < n), so it exceeds eps when k/n >= eps.
+  if (static_cast<double>(k) >= eps * static_cast<double>(n)) return false;
   // u <= eps  <=>  P(Bin(n, eps) <= k) <= delta (the tail falls in p).
   const double log_delta = std::log(delta);
-  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/false, log_delta + kDecideMargin);
-  if (b.upper < log_delta - kDecideMargin) return true;
-  if (b.lower > log_delta + kDecideMargin) return false;
+  const double margin = DecideMargin(n);
+  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/false, log_delta + margin);
+  if (b.upper < log_delta - margin) return true;
+  if (b.lower > log_delta + margin) return false;
   return BinomialUpperLimit(n, k, delta).value <= eps;
 }
 
@@ -430,15 +451,16 @@ bool LowerLimitAbove(std::uint64_t n, std::uint64_t k, double delta, double eps)
   if (k == 0) return eps < 0.0;
   if (eps < 0.0) return true;
   if (eps >= 1.0) return false;
-  if (k >= n || static_cast<double>(k) <= eps * static_cast<double>(n)) {
-    return BinomialLowerLimit(n, k, delta).value > eps;  // closed form, or false
-  }
-  if (eps <= 0.0) return BinomialLowerLimit(n, k, delta).value > eps;
+  if (k >= n) return BinomialLowerLimit(n, k, delta).value > eps;  // closed form
+  // The limit is below k/n (k >= 1), so it is not above eps when k/n <= eps.
+  if (static_cast<double>(k) <= eps * static_cast<double>(n)) return false;
+  if (eps <= 0.0) return true;  // the limit is positive for k >= 1
   // l > eps  <=>  P(Bin(n, eps) >= k) < delta (the tail grows in p).
   const double log_delta = std::log(delta);
-  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/true, log_delta + kDecideMargin);
-  if (b.upper < log_delta - kDecideMargin) return true;
-  if (b.lower > log_delta + kDecideMargin) return false;
+  const double margin = DecideMargin(n);
+  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/true, log_delta + margin);
+  if (b.upper < log_delta - margin) return true;
+  if (b.lower > log_delta + margin) return false;
   return BinomialLowerLimit(n, k, delta).value > eps;
 }
 

@@ -17,11 +17,24 @@
 #include "service/core/field_violation.h"
 #include "service/core/numeric.h"
 #include "service/core/vc.h"
+#include "service/core/work_budget.h"
 
 namespace riskbound::core {
 namespace {
 
 using Predicate = std::function<bool(std::uint64_t)>;
+
+// CPU time one plan's searches may take. Ordinary plans need well under a
+// millisecond, large ones (answers near 1e9) tens of milliseconds; only an
+// expected rate within a hair of the target (whose answer lies near or
+// beyond 2^53, with bound evaluations at huge n) comes near it. Past it the
+// plan is reported unreachable with kOverBudget.
+constexpr double kPlanCpuBudgetSeconds = 0.15;
+
+constexpr char kOverBudget[] =
+    "the expected error rate is so close to the target risk that the plan would need "
+    "more than the per-call work budget; the answer would lie near or beyond 2^53 "
+    "samples: lower the expected rate or raise the target";
 
 constexpr char kBeyondRange[] =
     "more than 2^53 (about 9.0e15) samples would be needed: the target is out of reach "
@@ -51,15 +64,19 @@ class CountedBound {
       stopped_ = true;
       return true;
     }
+    if (budget_.Spent()) return true;
     ++*evaluations_;
     return ok_(n, k);
   }
   bool stopped() const { return stopped_; }
+  // True when the work budget ran out (the searches' answers are then void).
+  bool exhausted() const { return budget_.spent(); }
 
  private:
   std::function<bool(std::uint64_t, std::uint64_t)> ok_;
   std::uint64_t* evaluations_;
   const StopToken& stop_;
+  mutable WorkBudget budget_{kPlanCpuBudgetSeconds};
   mutable bool stopped_ = false;
 };
 
@@ -209,6 +226,10 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
   const absl::StatusOr<std::uint64_t> n95 =
       RobustSmallest(p, std::max<std::uint64_t>(1, plan.zero_failure_samples - 1), ok);
   if (ok.stopped()) return stop.Status();
+  if (ok.exhausted()) {
+    plan.reason = kOverBudget;
+    return plan;
+  }
   if (!n95.ok()) {
     plan.reason = kBeyondRange;
     return plan;
@@ -308,6 +329,11 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
     const absl::StatusOr<std::uint64_t> s_star =
         k_star.ok() ? first_feasible(*k_star) : k_star;
     if (ok.stopped()) return stop.Status();
+    if (ok.exhausted()) {
+      plan.reason = kOverBudget;
+      plan.samples = 0;
+      return plan;
+    }
     if (!s_star.ok()) {
       plan.reason = kBeyondRange;
       plan.samples = 0;
@@ -319,6 +345,11 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
     plan.samples = n96;
     tolerated = k_max(n96, good);
     if (ok.stopped()) return stop.Status();
+    if (ok.exhausted()) {
+      plan.reason = kOverBudget;
+      plan.samples = 0;
+      return plan;
+    }
     plan.rule = absl::StrFormat(
         "smallest n at which a model with true error rate %g passes (exact binomial "
         "bound <= %g) with probability >= %g (formula sheet 9.6)",
@@ -446,6 +477,10 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
       &plan.bound_evaluations, stop);
   const absl::StatusOr<std::uint64_t> m = RobustSmallest(r, 1, ok);
   if (ok.stopped()) return stop.Status();
+  if (ok.exhausted()) {
+    plan.reason = kOverBudget;
+    return plan;
+  }
   if (!m.ok()) {
     plan.reason = kBeyondRange;
     return plan;

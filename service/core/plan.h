@@ -94,7 +94,9 @@ struct HoldoutPlan {
 // Plans the size of a hold-out set for the exact binomial bound
 // (HoldoutExactBinomial; formula sheet 9.4-9.6).
 // Returns OK with reachable = false and a reason when target_risk >= 1,
-// expected_risk >= target_risk, or the answer exceeds kPlanMaxSamples.
+// expected_risk >= target_risk, the answer exceeds kPlanMaxSamples, or the
+// searches would take more than a work budget of 150 ms of CPU (only an
+// expected rate within a hair of the target, whose answer lies near 2^53).
 // Errors: INVALID_ARGUMENT naming each bad field: target_risk (NaN, <= 0),
 // expected_risk (NaN, outside [0, 1]), failure_probability (outside (0, 1)),
 // pass_probability (outside (0, 1)), samples_held (> 2^53).
@@ -149,8 +151,8 @@ struct TrainingPlan {
 // registered family's own computation (families.h), so the answer agrees with
 // a Certify call at (ceil(r m) errors, m samples).
 // Returns OK with reachable = false and a reason when target_risk >= 1,
-// expected_empirical_risk >= target_risk, or the answer exceeds
-// kPlanMaxSamples.
+// expected_empirical_risk >= target_risk, the answer exceeds
+// kPlanMaxSamples, or the search would exceed the 150 ms CPU work budget.
 // Errors: INVALID_ARGUMENT naming each bad field: family (unknown or not a
 // training-set family), capacity (missing the measure the family uses) /
 // capacity.log_hypothesis_count (not finite, < 0), expected_empirical_risk,
