@@ -22,13 +22,20 @@ The convention (also in DEVELOPERS.md, "Commands in the docs"):
   lines (zero included); `...` inside a line stands for any text on that line
   (digests, timestamps, long notes). Without a final `...` line, the output
   must end where the shown output ends.
+* The address 127.0.0.1:50051 (the server's default) stands for the test's
+  server wherever it appears in a command or a python block, and is replaced
+  by it. A command that names another `--server` keeps it (the docs use that
+  to show exit code 4).
+* A `python` block that contains 127.0.0.1:50051 is a complete client and is
+  run as a whole with /usr/bin/python3, with --stubs (the generated
+  riskbound.v1 Python stubs) on PYTHONPATH; it must exit 0. Other python
+  blocks are fragments and are not run.
 * Each command runs through bash from the repository root, with `riskbound`
   on PATH being the built CLI and RISKBOUND_SERVER set to a riskbound-server
-  started for this test on 127.0.0.1:0. A command that names --server itself
-  keeps its own (the docs use that only to show exit code 4).
+  started for this test on 127.0.0.1:0.
 
 Usage: doc_commands_test.py --server BIN --cli BIN --source REPO_DIR
-       [--only FILE.md ...] [--verbose]
+       [--stubs PYGEN_DIR] [--only FILE.md ...] [--verbose]
 Exit code 0 when every command and link checks out; the report lists every
 block that ran.
 """
@@ -119,10 +126,16 @@ def join_continuations(body, first_line):
 
 
 def parse(path, rel):
-    """Returns (commands, skipped lines, blocks read) of one document."""
-    commands, skipped, read = [], [], 0
+    """Returns (commands, skipped lines, blocks read, python blocks) of one
+    document; a python block is (line number, source)."""
+    commands, skipped, read, python = [], [], 0, []
     for info, first, body in blocks(path):
-        if info == "sh":
+        if info == "python":
+            if "127.0.0.1:50051" in "\n".join(body):
+                python.append((first, "\n".join(body)))
+            else:
+                skipped.append((rel, first, "python fragment (no 127.0.0.1:50051 in it)"))
+        elif info == "sh":
             read += 1
             for number, line in join_continuations(body, first):
                 stripped = line.strip()
@@ -146,7 +159,7 @@ def parse(path, rel):
                         current = None
                 elif current is not None:
                     current.expected_output.append(line)
-    return commands, skipped, read
+    return commands, skipped, read, python
 
 
 def normalize(text):
@@ -216,6 +229,7 @@ def main():
     parser.add_argument("--server", required=True, help="the riskbound-server binary")
     parser.add_argument("--cli", required=True, help="the riskbound binary")
     parser.add_argument("--source", required=True, help="the repository root")
+    parser.add_argument("--stubs", help="generated riskbound.v1 Python stubs (runs python blocks)")
     parser.add_argument("--only", nargs="*", help="documents to check, relative to --source")
     parser.add_argument("--verbose", action="store_true", help="print every command's output")
     args = parser.parse_args()
@@ -224,15 +238,16 @@ def main():
     bindir = tempfile.mkdtemp(prefix="riskbound-docs-")
     os.symlink(os.path.abspath(args.cli), os.path.join(bindir, "riskbound"))
 
-    all_commands, all_skipped, failures = [], [], []
+    all_commands, all_skipped, all_python, failures = [], [], [], []
     for path in doc_files(source, args.only):
         rel = os.path.relpath(path, source)
-        commands, skipped, read = parse(path, rel)
+        commands, skipped, read, python = parse(path, rel)
         all_commands += commands
+        all_python += [(rel, line, code) for line, code in python]
         all_skipped += skipped
         failures += check_links(path, rel, source)
         print(f"{rel}: {read} sh/console blocks, {len(commands)} riskbound commands, "
-              f"{len(skipped)} other lines not run")
+              f"{len(python)} python clients, {len(skipped)} other lines not run")
 
     server = server_harness.ServerProcess(os.path.abspath(args.server), log_level="info")
     env = dict(os.environ)
@@ -243,7 +258,8 @@ def main():
         for c in all_commands:
             where = f"{c.doc}:{c.line}"
             try:
-                p = subprocess.run(["bash", "-c", c.text], cwd=source, env=env, capture_output=True,
+                p = subprocess.run(["bash", "-c", c.text.replace("127.0.0.1:50051", server.address)],
+                                   cwd=source, env=env, capture_output=True,
                                    text=True, timeout=COMMAND_TIMEOUT)
             except subprocess.TimeoutExpired:
                 failures.append(f"{where}: `{c.text}` did not finish within {COMMAND_TIMEOUT} s")
@@ -270,12 +286,34 @@ def main():
                     print(f"       | {l}")
             if problems:
                 failures.append(f"{where}: `{c.text}`: " + "; ".join(problems))
+        for doc, line, code in all_python:
+            where = f"{doc}:{line}"
+            if not args.stubs:
+                all_skipped.append((doc, line, "python block (no --stubs given)"))
+                continue
+            penv = dict(os.environ)
+            penv["PYTHONPATH"] = os.path.abspath(args.stubs)
+            try:
+                p = subprocess.run(["/usr/bin/python3", "-c", code.replace("127.0.0.1:50051", server.address)],
+                                   cwd=source, env=penv, capture_output=True, text=True,
+                                   timeout=COMMAND_TIMEOUT)
+            except subprocess.TimeoutExpired:
+                failures.append(f"{where}: python block did not finish within {COMMAND_TIMEOUT} s")
+                continue
+            ran += 1
+            status = "ok" if p.returncode == 0 else "FAIL"
+            print(f"  {status:4} {where}: python block (exit {p.returncode})")
+            if p.returncode != 0 or args.verbose:
+                for l in normalize(p.stdout + p.stderr):
+                    print(f"       | {l}")
+            if p.returncode != 0:
+                failures.append(f"{where}: python block exited {p.returncode}")
     finally:
         code = server.stop()
         if code not in (0, None):
             failures.append(f"riskbound-server exited {code}: {server.logs()[-2000:]}")
 
-    print(f"\n{ran} riskbound commands ran; {len(all_skipped)} lines in sh/console blocks "
+    print(f"\n{ran} riskbound commands and python blocks ran; {len(all_skipped)} lines in sh/console blocks "
           f"were not riskbound calls and were not run:")
     for doc, line, text in all_skipped:
         print(f"  skip {doc}:{line}: {text}")
