@@ -208,6 +208,17 @@ def first_difference(expected, actual):
     return "?"
 
 
+def anchors(path):
+    """GitHub-style anchors of a Markdown file's headings."""
+    out = set()
+    with open(path, encoding="utf-8") as f:
+        text = re.sub(r"```.*?```", "", f.read(), flags=re.S)
+    for m in re.finditer(r"^#+\s+(.*)$", text, flags=re.M):
+        slug = re.sub(r"[^\w\- ]", "", m.group(1).strip().lower()).replace(" ", "-")
+        out.add(slug)
+    return out
+
+
 def check_links(path, rel, source):
     problems = []
     with open(path, encoding="utf-8") as f:
@@ -221,6 +232,10 @@ def check_links(path, rel, source):
         resolved = os.path.normpath(os.path.join(os.path.dirname(path), file_part))
         if not os.path.exists(resolved):
             problems.append(f"{rel}: link to {target}: {os.path.relpath(resolved, source)} does not exist")
+        elif "#" in target and resolved.endswith(".md"):
+            anchor = target.split("#", 1)[1]
+            if anchor not in anchors(resolved):
+                problems.append(f"{rel}: link to {target}: no heading with anchor #{anchor}")
     return problems
 
 
