@@ -239,6 +239,21 @@ def check_links(path, rel, source):
     return problems
 
 
+def self_check():
+    """The comparison rules above, checked on known cases before they are
+    trusted with the docs (a matcher that accepts everything would pass)."""
+    assert output_matches(["a", "..."], ["a", "b", "c"])
+    assert output_matches(["a", "...", "c"], ["a", "c"])
+    assert not output_matches(["a"], ["a", "b"])
+    assert not output_matches(["a", "b"], ["a"])
+    assert output_matches(["sha ... end"], ["sha 0f3a end"])
+    assert not output_matches(["sha ... end"], ["sha 0f3a stop"])
+    assert not output_matches(["x"], ["y"])
+    assert split_exit('riskbound a --b "c # d"   # exit 3') == ('riskbound a --b "c # d"', 3)
+    assert split_exit("riskbound a --b 1   # a note") == ("riskbound a --b 1", 0)
+    assert normalize("a  \nb\n\n") == ["a", "b"]
+
+
 def main():
     parser = argparse.ArgumentParser()
     parser.add_argument("--server", required=True, help="the riskbound-server binary")
@@ -248,6 +263,7 @@ def main():
     parser.add_argument("--only", nargs="*", help="documents to check, relative to --source")
     parser.add_argument("--verbose", action="store_true", help="print every command's output")
     args = parser.parse_args()
+    self_check()
     source = os.path.abspath(args.source)
 
     bindir = tempfile.mkdtemp(prefix="riskbound-docs-")
