@@ -29,7 +29,7 @@ constexpr double kMinGateDelta = 1e-300;
 
 // CPU time one REJECT plan may take (ordinary plans take well under a
 // millisecond; only rates within a hair of the threshold come near it).
-constexpr double kRejectionPlanCpuSeconds = 0.1;
+constexpr double kRejectionPlanCpuSeconds = 0.08;
 
 // Shares of one family in a K-way split are shrunk by this factor so that K
 // rounded shares never add up to more than the share they split.

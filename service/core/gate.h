@@ -160,7 +160,7 @@ const char* VerdictName(Verdict verdict);
 //        probability, k_min(n) being the fewest errors whose Clopper-Pearson
 //        lower limit exceeds epsilon (found by exponential search and
 //        bisection, so a small n, not always the very smallest; given up,
-//        with no plan, past a work budget of 100 ms of CPU);
+//        with no plan, past a work budget of 80 ms of CPU);
 //      - champion comparison unsettled (paired only): the smallest total n at
 //        which the difference limits, with the observed disagreement rates
 //        held fixed, settle the comparison (anticipated-rate plan, bounds.md

@@ -29,7 +29,7 @@ using Predicate = std::function<bool(std::uint64_t)>;
 // expected rate within a hair of the target (whose answer lies near or
 // beyond 2^53, with bound evaluations at huge n) comes near it. Past it the
 // plan is reported unreachable with kOverBudget.
-constexpr double kPlanCpuBudgetSeconds = 0.15;
+constexpr double kPlanCpuBudgetSeconds = 0.1;
 
 constexpr char kOverBudget[] =
     "the expected error rate is so close to the target risk that the plan would need "
@@ -69,6 +69,11 @@ class CountedBound {
     return ok_(n, k);
   }
   bool stopped() const { return stopped_; }
+  // True once stopped or over budget, checking both now.
+  bool spent() const {
+    if (!stopped_ && stop_.StopRequested()) stopped_ = true;
+    return stopped_ || budget_.Spent();
+  }
   // True when the work budget ran out (the searches' answers are then void).
   bool exhausted() const { return budget_.spent(); }
 
@@ -310,6 +315,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
       return s;
     };
     const Predicate passes = [&](std::uint64_t k) {
+      if (ok.spent()) return true;  // stopped or over budget: wind down at once
       const absl::StatusOr<std::uint64_t> s = first_feasible(k);
       // A count whose s_K lies beyond the range stops the search upward; the
       // final check below reports it as unreachable if it is the answer.

@@ -95,7 +95,7 @@ struct HoldoutPlan {
 // (HoldoutExactBinomial; formula sheet 9.4-9.6).
 // Returns OK with reachable = false and a reason when target_risk >= 1,
 // expected_risk >= target_risk, the answer exceeds kPlanMaxSamples, or the
-// searches would take more than a work budget of 150 ms of CPU (only an
+// searches would take more than a work budget of 100 ms of CPU (only an
 // expected rate within a hair of the target, whose answer lies near 2^53).
 // Errors: INVALID_ARGUMENT naming each bad field: target_risk (NaN, <= 0),
 // expected_risk (NaN, outside [0, 1]), failure_probability (outside (0, 1)),
@@ -152,7 +152,7 @@ struct TrainingPlan {
 // a Certify call at (ceil(r m) errors, m samples).
 // Returns OK with reachable = false and a reason when target_risk >= 1,
 // expected_empirical_risk >= target_risk, the answer exceeds
-// kPlanMaxSamples, or the search would exceed the 150 ms CPU work budget.
+// kPlanMaxSamples, or the search would exceed the 100 ms CPU work budget.
 // Errors: INVALID_ARGUMENT naming each bad field: family (unknown or not a
 // training-set family), capacity (missing the measure the family uses) /
 // capacity.log_hypothesis_count (not finite, < 0), expected_empirical_risk,

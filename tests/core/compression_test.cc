@@ -47,11 +47,13 @@ TEST(CompressionTest, FormulaSheetWorkedValues) {
   EXPECT_NEAR(c72.empirical_risk, 150.0 / 9700.0, 1e-15);
 }
 
-// Source: scipy fixture compression.csv. Exact answers agree to 1e-9
-// relative. Where the certificate says exact = false (kl-Chernoff
-// relaxation, m - d ~ 1e15 at levels below e^-700) it must not be below the
-// exact limit; Chernoff overstates the binomial tail by a polynomial factor
-// (order sqrt(k), a few nats out of ~700-10000), so it stays within 5e-3.
+// Source: scipy fixture compression.csv (brute-force log-sum-exp over all
+// k + 1 terms), including regression rows that once cost 0.3 s to seconds
+// of CPU each. Exact answers agree to 1e-9 relative. Where the certificate
+// says exact = false (a conservative limit at m - d ~ 1e15 below e^-700) it
+// must not be below the exact limit, and it never exceeds the kl-Chernoff
+// limit, which overstates the tail by a polynomial factor (order sqrt(k), a
+// few nats out of ~700-10000), so it stays within 5e-3.
 TEST(CompressionTest, MatchesScipyFixture) {
   int rows = 0, relaxed = 0;
   for (const auto& row : ReadFixture("compression.csv")) {
@@ -81,6 +83,28 @@ TEST(CompressionTest, MatchesScipyFixture) {
   }
   EXPECT_GE(rows, 400);
   RecordProperty("relaxed_rows", relaxed);
+}
+
+// Regression: 10^8 examples outside a compression set of 1 000 with 10^7
+// errors (about 30 bytes of request) once cost 13 s of CPU, summing all
+// 10^7 + 1 terms at every bisection step. It must now settle exactly and
+// lie between two outside brackets at the same level: above the point where
+// the single term P(X = k) alone reaches the level (P(X <= k) >= P(X = k);
+// ln P(X = k) from ln C(n, k), checked against exact integers in
+// numeric_test), and below the kl-Chernoff limit (Chernoff 1952).
+TEST(CompressionTest, TenMillionErrorsSettlesExactly) {
+  const std::uint64_t m = 100'001'000, d = 1'000, k = 10'000'000;
+  const Certificate c = SampleCompression(Make(m, d, k), 0.05);
+  EXPECT_TRUE(c.exact);
+  const double n = static_cast<double>(m - d);
+  const double kd = static_cast<double>(k);
+  const double level = std::log(0.05) - LogChoose(static_cast<double>(m), 1000.0) -
+                       std::log(static_cast<double>(m));
+  const double u = c.upper_bound;
+  EXPECT_LE(u, KlInverseUpper(kd / n, -level / n));
+  const double log_term = LogChoose(n, kd) + kd * std::log(u) + (n - kd) * std::log1p(-u);
+  EXPECT_LE(log_term, level + 1e-6);
+  EXPECT_GT(u, kd / n);
 }
 
 // Formula sheet 7 ("Why it holds"): d = 0 is the test-set bound at delta/m

@@ -333,6 +333,44 @@ TEST(GateTest, HoldPlansTowardReject) {
   EXPECT_THAT(Reasons(*d), HasSubstr("REJECT"));
 }
 
+// Regression: a hold-out rate exactly at the threshold (50 errors in 1000
+// against max_risk 0.05) once cost 2.6 s of CPU searching toward 2^53 for a
+// REJECT plan that cannot exist: at a true rate p <= epsilon the
+// Clopper-Pearson lower limit exceeds epsilon with probability at most its
+// delta (Clopper & Pearson 1934, coverage), so no size reaches the pass
+// probability. Checked here with Boost.Math at a large n: the chance of a
+// REJECT-sized error count at p = epsilon stays below the delta share.
+TEST(GateTest, RateAtThresholdHasNoRejectPlan) {
+  GatePolicy p = Policy(0.05, 0.05);
+  auto d = DecideGate(p, Candidate(50, 1000), std::nullopt);
+  ASSERT_TRUE(d.ok()) << d.status();
+  EXPECT_EQ(d->verdict, Verdict::kHold);
+  EXPECT_FALSE(d->additional_samples_to_settle.has_value());
+  EXPECT_THAT(Reasons(*d), HasSubstr("at the threshold"));
+  const std::uint64_t n = 100000;
+  std::uint64_t k_min = 5000;
+  while (BoostLower(n, k_min, 0.025) <= 0.05) ++k_min;
+  EXPECT_LE(boost::math::cdf(boost::math::complement(Binomial(static_cast<double>(n), 0.05),
+                                                     static_cast<double>(k_min - 1))),
+            0.025);
+}
+
+// Regression: a rate a hair above the threshold at n = 10^6 (50 001 errors)
+// once cost about 2 s of CPU; the REJECT plan now ends within its work
+// budget, either with a plan that the Boost.Math tail confirms or with a
+// reason saying the budget ran out.
+TEST(GateTest, RateAHairAboveThresholdEnds) {
+  GatePolicy p = Policy(0.05, 0.05);
+  auto d = DecideGate(p, Candidate(50'001, 1'000'000), std::nullopt);
+  ASSERT_TRUE(d.ok()) << d.status();
+  EXPECT_EQ(d->verdict, Verdict::kHold);
+  if (d->additional_samples_to_settle.has_value()) {
+    EXPECT_THAT(Reasons(*d), HasSubstr("REJECT"));
+  } else {
+    EXPECT_THAT(Reasons(*d), HasSubstr("work budget"));
+  }
+}
+
 // An unsettled paired comparison gets an anticipated-rate plan: at the
 // planned total the difference upper limit at the scaled counts (b rounded
 // up, c down) is within the tolerance. Source: Boost.Math limits at delta/8.

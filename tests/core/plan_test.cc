@@ -240,6 +240,33 @@ TEST(PlanHoldoutTest, HugeSampleSizesWithoutOverflow) {
   EXPECT_LE(plan->pass_probability_at_plan, 1.0);
 }
 
+// Regression: a pass-probability plan whose answer lies near 10^15 (p =
+// 0.01 - 1e-8 against eps = 0.01 at 80%: about (1.645 + 0.842)^2 p /
+// (eps - p)^2 ~ 6e14 by the normal approximation, common practice) once took
+// about 30 s of CPU in Boost inversions at huge n. It must now end, either
+// with a plan that passes the boundary check through Certify or, past the
+// planner's work budget, unreachable with a reason that says so; never
+// silently wrong.
+TEST(PlanHoldoutTest, PassProbabilityNearTenToTheFifteenEnds) {
+  HoldoutPlanRequest req;
+  req.target_risk = 0.01;
+  req.expected_risk = 0.01 - 1e-8;
+  req.delta = 0.05;
+  req.pass_probability = 0.8;
+  auto plan = PlanHoldout(req);
+  ASSERT_TRUE(plan.ok()) << plan.status();
+  if (plan->reachable) {
+    const std::uint64_t n = plan->samples;
+    const std::uint64_t k = plan->tolerated_errors;
+    EXPECT_GT(n, 1e14);
+    EXPECT_LE(HoldoutUpper(k, n, 0.05), 0.01);
+    EXPECT_GT(HoldoutUpper(k + 1, n, 0.05), 0.01);
+  } else {
+    EXPECT_THAT(plan->reason, HasSubstr("work budget"));
+    EXPECT_EQ(plan->samples, 0u);
+  }
+}
+
 // Pass-probability plan at n ~ 6e8 (p = 0.00999, eps = 0.01, 80%): the
 // planned n is a tooth start (the tolerated count certifies at n, not at
 // n - 1, through Certify), the pass probability reaches the request there, and
