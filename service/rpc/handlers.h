@@ -14,6 +14,7 @@
 #include "absl/status/statusor.h"
 #include "riskbound/v1/capacity.pb.h"
 #include "riskbound/v1/certify.pb.h"
+#include "riskbound/v1/families.pb.h"
 #include "riskbound/v1/gate.pb.h"
 #include "riskbound/v1/plan.pb.h"
 #include "riskbound/v1/select.pb.h"
@@ -31,6 +32,8 @@ absl::StatusOr<v1::SelectStructureResponse> HandleSelectStructure(
     const v1::SelectStructureRequest& request, const core::StopToken& stop);
 absl::StatusOr<v1::PlanSamplesResponse> HandlePlanSamples(const v1::PlanSamplesRequest& request,
                                                           const core::StopToken& stop);
+absl::StatusOr<v1::ListFamiliesResponse> HandleListFamilies(
+    const v1::ListFamiliesRequest& request, const core::StopToken& stop);
 
 }  // namespace riskbound::rpc
 

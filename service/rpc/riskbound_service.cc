@@ -238,4 +238,10 @@ grpc::ServerUnaryReactor* RiskBoundService::PlanSamples(grpc::CallbackServerCont
   return Dispatch("PlanSamples", context, request, response, &HandlePlanSamples);
 }
 
+grpc::ServerUnaryReactor* RiskBoundService::ListFamilies(grpc::CallbackServerContext* context,
+                                                         const grpc::ByteBuffer* request,
+                                                         grpc::ByteBuffer* response) {
+  return Dispatch("ListFamilies", context, request, response, &HandleListFamilies);
+}
+
 }  // namespace riskbound::rpc

@@ -43,7 +43,9 @@ using RawRiskBoundService = v1::RiskBound::WithRawCallbackMethod_Certify<
     v1::RiskBound::WithRawCallbackMethod_EstimateCapacity<
         v1::RiskBound::WithRawCallbackMethod_Gate<
             v1::RiskBound::WithRawCallbackMethod_SelectStructure<
-                v1::RiskBound::WithRawCallbackMethod_PlanSamples<v1::RiskBound::Service>>>>>;
+                v1::RiskBound::WithRawCallbackMethod_PlanSamples<
+                    v1::RiskBound::WithRawCallbackMethod_ListFamilies<
+                        v1::RiskBound::Service>>>>>>;
 class CallReactor;
 }  // namespace internal
 
@@ -70,6 +72,9 @@ class RiskBoundService final : public internal::RawRiskBoundService {
   grpc::ServerUnaryReactor* PlanSamples(grpc::CallbackServerContext* context,
                                         const grpc::ByteBuffer* request,
                                         grpc::ByteBuffer* response) override;
+  grpc::ServerUnaryReactor* ListFamilies(grpc::CallbackServerContext* context,
+                                         const grpc::ByteBuffer* request,
+                                         grpc::ByteBuffer* response) override;
 
   // StartDrain
   // New calls are refused with UNAVAILABLE from now on. Thread-safe.

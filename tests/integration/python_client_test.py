@@ -106,6 +106,24 @@ class ServerTest(unittest.TestCase):
         self.assertEqual([v.field for v in violations.field_violations],
                          ["failure_probability", "evidence.holdout.error_count"])
 
+    def test_list_families_names_every_enum_value(self):
+        # Every BoundFamily value but UNSPECIFIED (read from the generated
+        # descriptor) is described once, with the name certificates carry.
+        from riskbound.v1 import families_pb2
+        resp = self.stub.ListFamilies(families_pb2.ListFamiliesRequest(), timeout=10)
+        expected = {v.number for v in common_pb.BoundFamily.DESCRIPTOR.values
+                    if v.number != common_pb.BOUND_FAMILY_UNSPECIFIED}
+        self.assertEqual(sorted(f.family for f in resp.families), sorted(expected))
+        by_name = {f.family_name: f for f in resp.families}
+        self.assertEqual(len(by_name), len(expected))
+        kl = by_name["holdout-kl"]
+        self.assertEqual(kl.family, common_pb.BOUND_FAMILY_HOLDOUT_KL_CHERNOFF)
+        self.assertIn("Chernoff (1952)", kl.source)
+        self.assertEqual(kl.evidence_needed, "evidence.holdout")
+        for f in resp.families:
+            self.assertTrue(f.title and f.source and f.assumptions, f.family_name)
+        self.assertTrue(resp.engine_version)
+
     def test_missing_evidence_and_nan(self):
         req = pb.CertifyRequest(failure_probability=float("nan"))
         with self.assertRaises(grpc.RpcError) as ctx:

@@ -1,0 +1,15 @@
+// RiskBound.ListFamilies: the core's family registry -> convert. The request
+// has no fields, so there is nothing to validate.
+#include "service/core/families.h"
+#include "service/rpc/families_convert.h"
+#include "service/rpc/handlers.h"
+
+namespace riskbound::rpc {
+
+absl::StatusOr<v1::ListFamiliesResponse> HandleListFamilies(
+    const v1::ListFamiliesRequest& /*request*/, const core::StopToken& stop) {
+  if (stop.StopRequested()) return stop.Status();
+  return ListFamiliesResponseToProto(core::Families());
+}
+
+}  // namespace riskbound::rpc
