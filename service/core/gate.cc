@@ -30,6 +30,8 @@ constexpr double kMinGateDelta = 1e-300;
 // CPU time one REJECT plan may take (ordinary plans take well under a
 // millisecond; only rates within a hair of the threshold come near it).
 constexpr double kRejectionPlanCpuSeconds = 0.08;
+// The same for the paired champion-comparison plan (two limits per size).
+constexpr double kPairedPlanCpuSeconds = 0.06;
 
 // Shares of one family in a K-way split are shrunk by this factor so that K
 // rounded shares never add up to more than the share they split.
@@ -245,13 +247,21 @@ std::uint64_t ScaledFloor(std::uint64_t count, std::uint64_t samples, std::uint6
 // the answer, not with 2^53 (bound evaluations at huge n are slow).
 // Once `stop` stops, the predicate answers true without computing, so the
 // search ends in a few cheap steps, and the stop's status is returned.
+// With a `budget`, a spent budget does the same and returns
+// RESOURCE_EXHAUSTED.
 absl::StatusOr<std::uint64_t> SmallestFrom(std::uint64_t lo,
                                            const std::function<bool(std::uint64_t)>& ok,
-                                           const StopToken& stop) {
+                                           const StopToken& stop,
+                                           WorkBudget* budget = nullptr) {
   bool stopped = false;
+  bool exhausted = false;
   const std::function<bool(std::uint64_t)> checked = [&](std::uint64_t n) {
     if (stopped || stop.StopRequested()) {
       stopped = true;
+      return true;
+    }
+    if (exhausted || (budget != nullptr && budget->Spent())) {
+      exhausted = true;
       return true;
     }
     return ok(n);
@@ -263,8 +273,11 @@ absl::StatusOr<std::uint64_t> SmallestFrom(std::uint64_t lo,
     if (checked(hi)) {
       absl::StatusOr<std::uint64_t> n = SmallestSatisfying(lo, hi, checked);
       if (stopped) return stop.Status();
+      if (exhausted) return absl::ResourceExhaustedError("over the plan's work budget");
       return n;
     }
+    if (stopped) return stop.Status();
+    if (exhausted) return absl::ResourceExhaustedError("over the plan's work budget");
     if (hi == kMaxSampleCount) {
       return absl::NotFoundError("no sample size up to 2^53 settles it");
     }
@@ -354,7 +367,8 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
   } else {
     return absl::NotFoundError("the observed difference equals the tolerance");
   }
-  return SmallestFrom(p.samples, ok, stop);
+  WorkBudget budget(kPairedPlanCpuSeconds);
+  return SmallestFrom(p.samples, ok, stop, &budget);
 }
 
 }  // namespace
@@ -648,6 +662,12 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
               " more shared hold-out samples (", *n,
               " in all) settle the champion comparison (anticipated-rate plan, about "
               "even odds)"));
+        } else if (n.status().code() == absl::StatusCode::kResourceExhausted) {
+          plannable = false;
+          details.push_back(
+              "no plan for the champion comparison: the observed difference is so close "
+              "to the tolerated regression that a plan would take more than the per-call "
+              "work budget");
         } else {
           plannable = false;
           details.push_back(

@@ -164,7 +164,8 @@ const char* VerdictName(Verdict verdict);
 //      - champion comparison unsettled (paired only): the smallest total n at
 //        which the difference limits, with the observed disagreement rates
 //        held fixed, settle the comparison (anticipated-rate plan, bounds.md
-//        9.5 style: about even odds, no pass-probability margin);
+//        9.5 style: about even odds, no pass-probability margin; given up
+//        past a work budget of 60 ms of CPU);
 //      - below the minimum: at least the samples missing to reach it.
 //    The largest of these is reported.
 // Errors: INVALID_ARGUMENT naming every bad field by its API path
