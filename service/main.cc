@@ -56,6 +56,12 @@ ABSL_FLAG(double, drain_seconds, 10,
 ABSL_FLAG(std::string, log_format, "text", "log line format: text or json (one object a line)");
 ABSL_FLAG(std::string, log_level, "info",
           "log level: debug (adds one line per call), info, warn or error");
+ABSL_FLAG(std::string, http_listen, "",
+          "HOST:PORT of the HTTP port: Prometheus metrics at GET /metrics and the methods as "
+          "POST /v1/<Method> with the protobuf JSON mapping (same limits as gRPC). Empty: no "
+          "HTTP port. Port 0 picks a free port (see --http-port-file).");
+ABSL_FLAG(std::string, http_port_file, "",
+          "if set, write the bound HTTP port to this file once serving");
 ABSL_FLAG(std::string, port_file, "",
           "if set, write the bound port to this file once serving (for tests and scripts); "
           "a file that cannot be written stops the server with exit code 1");
@@ -86,6 +92,8 @@ constexpr FlagSpec kFlags[] = {
     {"log-format", "RISKBOUND_LOG_FORMAT", "text|json"},
     {"log-level", "RISKBOUND_LOG_LEVEL", "LEVEL"},
     {"port-file", "RISKBOUND_PORT_FILE", "PATH"},
+    {"http-listen", "RISKBOUND_HTTP_LISTEN", "HOST:PORT"},
+    {"http-port-file", "RISKBOUND_HTTP_PORT_FILE", "PATH"},
 };
 
 absl::CommandLineFlag* FlagOf(const FlagSpec& spec) {
@@ -210,6 +218,7 @@ struct Settings {
   riskbound::rpc::LogFormat log_format = riskbound::rpc::LogFormat::kText;
   std::string log_level;
   std::string port_file;
+  std::string http_port_file;
 };
 
 std::string SettingsProblem(Settings* s) {
@@ -257,6 +266,16 @@ std::string SettingsProblem(Settings* s) {
   }
   s->log_level = absl::GetFlag(FLAGS_log_level);
   s->port_file = absl::GetFlag(FLAGS_port_file);
+  s->server.http_listen_address = absl::GetFlag(FLAGS_http_listen);
+  if (!s->server.http_listen_address.empty()) {
+    if (std::string p = ListenAddressProblem(s->server.http_listen_address); !p.empty()) {
+      return absl::StrCat("--http-listen=\"", s->server.http_listen_address, "\": ", p);
+    }
+  }
+  s->http_port_file = absl::GetFlag(FLAGS_http_port_file);
+  if (!s->http_port_file.empty() && s->server.http_listen_address.empty()) {
+    return "--http-port-file needs --http-listen";
+  }
   return "";
 }
 
@@ -307,19 +326,24 @@ int main(int argc, char** argv) {
   }
   riskbound::rpc::RunningServer* running = server->get();
   const int port = running->port();
-  if (!settings.port_file.empty()) {
+  for (const auto& [flag, path, value] :
+       {std::tuple{"--http-port-file", settings.http_port_file, running->http_port()},
+        std::tuple{"--port-file", settings.port_file, port}}) {
+    if (path.empty()) continue;
     std::string error;
-    if (!WritePortFile(settings.port_file, port, &error)) {
-      spdlog::error("startup failed: --port-file: {}", error);
+    if (!WritePortFile(path, value, &error)) {
+      spdlog::error("startup failed: {}: {}", flag, error);
       running->Drain(absl::ZeroDuration());
       return kExitStartFailed;
     }
   }
   const auto& c = settings.server;
   spdlog::info(
-      "serving riskbound.v1 version={} listen={} port={} threads={} max_pending_calls={} "
-      "max_call_seconds={} max_request_bytes={} max_response_bytes={} drain_seconds={}",
-      RISKBOUND_ENGINE_VERSION, c.listen_address, port, c.threads, c.max_pending_calls,
+      "serving riskbound.v1 version={} listen={} port={} http_port={} threads={} "
+      "max_pending_calls={} max_call_seconds={} max_request_bytes={} max_response_bytes={} "
+      "drain_seconds={}",
+      RISKBOUND_ENGINE_VERSION, c.listen_address, port, running->http_port(), c.threads,
+      c.max_pending_calls,
       absl::ToDoubleSeconds(c.limits.max_call_time), c.limits.max_request_bytes,
       c.limits.max_response_bytes, absl::ToDoubleSeconds(settings.drain));
 

@@ -6,6 +6,7 @@
 
 #include "absl/random/random.h"
 #include "absl/strings/ascii.h"
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
 #include "absl/time/clock.h"
@@ -78,6 +79,17 @@ bool Decode(const grpc::ByteBuffer& bytes, google::protobuf::Message* out) {
   return out->ParseFromString(joined);
 }
 
+// What an answer said, for the metrics: gate verdicts, certificate families.
+template <class Response>
+void RecordAnswer(Metrics*, const Response&) {}
+void RecordAnswer(Metrics* metrics, const v1::GateResponse& answer) {
+  const std::string name = v1::Verdict_Name(answer.verdict());
+  metrics->RecordVerdict(absl::StartsWith(name, "VERDICT_") ? name.substr(8) : name);
+}
+void RecordAnswer(Metrics* metrics, const v1::CertifyResponse& answer) {
+  for (const v1::Certificate& c : answer.certificates()) metrics->RecordCertificate(c.family_name());
+}
+
 absl::Duration ToDuration(std::chrono::system_clock::time_point deadline) {
   const auto now = std::chrono::system_clock::now();
   if (deadline <= now) return absl::ZeroDuration();
@@ -87,8 +99,8 @@ absl::Duration ToDuration(std::chrono::system_clock::time_point deadline) {
 
 }  // namespace
 
-RiskBoundService::RiskBoundService(CallPool* pool, CallLimits limits)
-    : pool_(pool), limits_(limits) {}
+RiskBoundService::RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics)
+    : pool_(pool), limits_(limits), metrics_(metrics) {}
 
 void RiskBoundService::Register(CallReactor* call) {
   absl::MutexLock lock(&mu_);
@@ -128,6 +140,7 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
   // Finishes the call; the only place that does. REQUIRES: called once.
   auto finish = [this, method, context, reactor, request_id, start, request_bytes](
                     const absl::Status& status, std::int64_t response_bytes) {
+    if (metrics_ != nullptr) metrics_->RecordCall("grpc", method, status.code(), absl::Now() - start);
     const std::string peer = context->peer();
     LogCall({.rpc = method,
              .code = status.code(),
@@ -140,14 +153,18 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
     reactor->Finish(ToGrpcStatus(status));
   };
 
+  auto refused = [this](const char* reason) {
+    if (metrics_ != nullptr) metrics_->RecordRefusal(reason);
+  };
   if (draining_.load()) {
+    refused("draining");
     finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
     return reactor;
   }
-  auto work = [this, method, request, response, reactor, finish, handler, budget]() {
+  auto work = [this, method, request, response, reactor, finish, handler, budget, refused]() {
     const core::StopToken& stop = reactor->stop();
     // The reason a stopped call gives, when the caller can still read it.
-    auto stopped = [this, method, &stop, budget]() {
+    auto stopped = [this, method, &stop, budget, &refused]() {
       if (draining_.load()) {
         return absl::UnavailableError(
             "the server is shutting down and stopped this call; retry on another replica");
@@ -155,6 +172,7 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
       absl::Status why = stop.Status();
       if (why.code() == absl::StatusCode::kDeadlineExceeded &&
           budget == limits_.max_call_time) {
+        refused("deadline");
         return absl::DeadlineExceededError(absl::StrCat(
             method, " was stopped after the server's per-call limit of ",
             absl::FormatDuration(limits_.max_call_time), " (--max-call-seconds)"));
@@ -179,6 +197,7 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
     if (!answer.ok()) return finish(answer.status(), 0);
     const std::int64_t size = static_cast<std::int64_t>(answer->ByteSizeLong());
     if (size > limits_.max_response_bytes) {
+      refused("response_too_large");
       return finish(absl::ResourceExhaustedError(absl::StrCat(
                         "the answer would be ", size, " bytes, above the server's limit of ",
                         limits_.max_response_bytes,
@@ -186,6 +205,7 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
                         "limit on the server and the client's receive limit together")),
                     0);
     }
+    if (metrics_ != nullptr) RecordAnswer(metrics_, *answer);
     std::string bytes;
     answer->SerializeToString(&bytes);
     grpc::Slice slice(std::move(bytes));
@@ -196,12 +216,14 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
     case CallPool::Admission::kAdmitted:
       break;
     case CallPool::Admission::kFull:
+      refused("busy");
       finish(absl::ResourceExhaustedError(absl::StrCat(
                  "the server is busy: ", pool_->max_pending(),
                  " calls are already admitted (--max-pending-calls); retry with backoff")),
              0);
       break;
     case CallPool::Admission::kClosed:
+      refused("draining");
       finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
       break;
   }

@@ -22,6 +22,7 @@
 #include "riskbound/v1/riskbound.grpc.pb.h"
 #include "service/core/stop.h"
 #include "service/rpc/call_pool.h"
+#include "service/rpc/metrics.h"
 
 namespace riskbound::rpc {
 
@@ -54,8 +55,8 @@ class CallReactor;
 // Thread-safe.
 class RiskBoundService final : public internal::RawRiskBoundService {
  public:
-  // REQUIRES: `pool` outlives the service.
-  RiskBoundService(CallPool* pool, CallLimits limits);
+  // REQUIRES: `pool` and `metrics` (which may be null) outlive the service.
+  RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics = nullptr);
 
   grpc::ServerUnaryReactor* Certify(grpc::CallbackServerContext* context,
                                     const grpc::ByteBuffer* request,
@@ -101,6 +102,7 @@ class RiskBoundService final : public internal::RawRiskBoundService {
   // Constant after construction.
   CallPool* const pool_;
   const CallLimits limits_;
+  Metrics* const metrics_;
 
   std::atomic<bool> draining_{false};
   mutable absl::Mutex mu_;

@@ -4,6 +4,7 @@
 #include <thread>
 #include <utility>
 
+#include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/synchronization/notification.h"
 #include "absl/time/clock.h"
@@ -14,20 +15,25 @@
 
 namespace riskbound::rpc {
 
-RunningServer::RunningServer(std::unique_ptr<CallPool> pool,
+RunningServer::RunningServer(std::unique_ptr<CallPool> pool, std::unique_ptr<Metrics> metrics,
                              std::unique_ptr<RiskBoundService> service,
-                             std::unique_ptr<grpc::Server> server, int port)
+                             std::unique_ptr<grpc::Server> server,
+                             std::unique_ptr<HttpGateway> http, int port)
     : pool_(std::move(pool)),
+      metrics_(std::move(metrics)),
       service_(std::move(service)),
       server_(std::move(server)),
+      http_(std::move(http)),
       port_(port) {}
 
 RunningServer::~RunningServer() {
   if (Drain(absl::ZeroDuration()) == DrainOutcome::kAbandoned) {
     // A handler ignored its cancellation: joining the pool would hang.
     (void)pool_.release();
+    (void)metrics_.release();
     (void)service_.release();
     (void)server_.release();
+    (void)http_.release();
   }
 }
 
@@ -36,6 +42,7 @@ DrainOutcome RunningServer::Drain(absl::Duration grace) {
   if (outcome_.has_value()) return *outcome_;
   if (auto* health = server_->GetHealthCheckService()) health->Shutdown();
   service_->StartDrain();
+  if (http_ != nullptr) http_->StartDrain();
   pool_->StopAdmitting();
   // grpc::Server::Shutdown stops the listener at once, and at the deadline
   // cancels the calls still running; it returns once every call is done.
@@ -57,6 +64,7 @@ DrainOutcome RunningServer::Drain(absl::Duration grace) {
   }
   shutdown.join();
   server_->Wait();
+  if (http_ != nullptr) http_->Stop();
   outcome_ = clean ? DrainOutcome::kClean : DrainOutcome::kCancelled;
   return *outcome_;
 }
@@ -74,7 +82,32 @@ absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& c
   grpc::EnableDefaultHealthCheckService(true);
   grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   auto pool = std::make_unique<CallPool>(config.threads, config.max_pending_calls);
-  auto service = std::make_unique<RiskBoundService>(pool.get(), config.limits);
+  CallPool* pool_ptr = pool.get();
+  auto metrics = std::make_unique<Metrics>(RISKBOUND_ENGINE_VERSION, RISKBOUND_SOURCE_COMMIT,
+                                           [pool_ptr] { return pool_ptr->pending(); });
+  metrics->SetLimit("threads", config.threads);
+  metrics->SetLimit("max_pending_calls", config.max_pending_calls);
+  metrics->SetLimit("max_call_seconds", absl::ToDoubleSeconds(config.limits.max_call_time));
+  metrics->SetLimit("max_request_bytes", static_cast<double>(config.limits.max_request_bytes));
+  metrics->SetLimit("max_response_bytes", static_cast<double>(config.limits.max_response_bytes));
+  auto service = std::make_unique<RiskBoundService>(pool.get(), config.limits, metrics.get());
+  std::unique_ptr<HttpGateway> http;
+  if (!config.http_listen_address.empty()) {
+    const auto colon = config.http_listen_address.rfind(':');
+    int http_port = -1;
+    std::string host;
+    if (colon != std::string::npos && absl::SimpleAtoi(config.http_listen_address.substr(colon + 1), &http_port) &&
+        http_port >= 0 && http_port <= 65535) {
+      host = config.http_listen_address.substr(0, colon);
+      if (host.size() >= 2 && host.front() == '[' && host.back() == ']') host = host.substr(1, host.size() - 2);
+    }
+    if (host.empty()) {
+      return absl::InvalidArgumentError(absl::StrCat("http_listen_address: must be HOST:PORT, got \"",
+                                                     config.http_listen_address, "\""));
+    }
+    http = std::make_unique<HttpGateway>(pool.get(), config.limits, metrics.get());
+    if (absl::Status s = http->Start(host, http_port); !s.ok()) return s;
+  }
   grpc::ServerBuilder builder;
   int port = 0;
   // TLS, mTLS and token auth are planned; today the server listens in plaintext
@@ -98,8 +131,8 @@ absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& c
   grpc::HealthCheckServiceInterface* health = server->GetHealthCheckService();
   health->SetServingStatus(true);
   health->SetServingStatus(kHealthServiceName, true);
-  return std::make_unique<RunningServer>(std::move(pool), std::move(service), std::move(server),
-                                         port);
+  return std::make_unique<RunningServer>(std::move(pool), std::move(metrics), std::move(service),
+                                         std::move(server), std::move(http), port);
 }
 
 }  // namespace riskbound::rpc

@@ -13,6 +13,8 @@
 #include "absl/time/time.h"
 #include "grpcpp/server.h"
 #include "service/rpc/call_pool.h"
+#include "service/rpc/http_gateway.h"
+#include "service/rpc/metrics.h"
 #include "service/rpc/riskbound_service.h"
 
 namespace riskbound::rpc {
@@ -31,6 +33,10 @@ struct ServerConfig {
   int max_pending_calls = 64;
   // Per-call limits (request and response sizes, time budget).
   CallLimits limits;
+  // HOST:PORT of the HTTP port (Prometheus metrics at GET /metrics, the
+  // methods as POST /v1/<Method> in JSON); empty: no HTTP port. Port 0 picks
+  // a free port (RunningServer::http_port()).
+  std::string http_listen_address;
 };
 
 // How a drain ended.
@@ -48,14 +54,18 @@ enum class DrainOutcome {
 // A started server. Destroying it drains with no grace.
 class RunningServer {
  public:
-  RunningServer(std::unique_ptr<CallPool> pool, std::unique_ptr<RiskBoundService> service,
-                std::unique_ptr<grpc::Server> server, int port);
+  RunningServer(std::unique_ptr<CallPool> pool, std::unique_ptr<Metrics> metrics,
+                std::unique_ptr<RiskBoundService> service, std::unique_ptr<grpc::Server> server,
+                std::unique_ptr<HttpGateway> http, int port);
   ~RunningServer();
   RunningServer(const RunningServer&) = delete;
   RunningServer& operator=(const RunningServer&) = delete;
 
   // The port the server is bound to.
   int port() const { return port_; }
+  // The HTTP port, or 0 when there is none.
+  int http_port() const { return http_ == nullptr ? 0 : http_->port(); }
+  Metrics* metrics() { return metrics_.get(); }
   grpc::Server* server() { return server_.get(); }
   RiskBoundService* service() { return service_.get(); }
 
@@ -70,8 +80,10 @@ class RunningServer {
  private:
   // Constant after construction.
   std::unique_ptr<CallPool> pool_;
+  std::unique_ptr<Metrics> metrics_;
   std::unique_ptr<RiskBoundService> service_;
   std::unique_ptr<grpc::Server> server_;
+  std::unique_ptr<HttpGateway> http_;
   const int port_;
 
   absl::Mutex mu_;
@@ -81,7 +93,8 @@ class RunningServer {
 // StartServer
 // Builds and starts the server. Returns UNAVAILABLE when the address cannot be
 // bound (malformed, not local, or in use: the port is never shared with
-// another process), INVALID_ARGUMENT for a bad config value.
+// another process), the same for the HTTP address, INVALID_ARGUMENT for a bad
+// config value.
 absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& config);
 
 }  // namespace riskbound::rpc

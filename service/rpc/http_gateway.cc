@@ -1,0 +1,184 @@
+#include "service/rpc/http_gateway.h"
+
+#include <utility>
+
+#include "absl/strings/str_cat.h"
+#include "absl/synchronization/notification.h"
+#include "absl/time/clock.h"
+#include "google/protobuf/util/json_util.h"
+#include "httplib.h"
+#include "service/core/field_violation.h"
+#include "service/core/stop.h"
+#include "service/rpc/handlers.h"
+#include "service/rpc/logging.h"
+
+namespace riskbound::rpc {
+namespace {
+
+constexpr char kJson[] = "application/json";
+
+// The outcome of one JSON call.
+struct JsonAnswer {
+  absl::StatusCode code = absl::StatusCode::kOk;
+  std::string body;
+};
+
+JsonAnswer Error(const absl::Status& status) { return {status.code(), ErrorJson(status)}; }
+
+// Runs `handler` on the pool for a JSON body.
+template <class Request, class Response>
+JsonAnswer RunJson(
+    CallPool* pool, const CallLimits& limits, const std::string& body,
+    absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&)) {
+  Request request;
+  google::protobuf::util::JsonParseOptions parse;
+  parse.ignore_unknown_fields = false;
+  if (auto parsed = google::protobuf::util::JsonStringToMessage(body, &request, parse);
+      !parsed.ok()) {
+    return Error(absl::InvalidArgumentError(
+        absl::StrCat("the request body could not be decoded as ",
+                     Request::descriptor()->full_name(),
+                     " in the protobuf JSON mapping: ", std::string(parsed.message()))));
+  }
+  core::StopToken stop(absl::Now() + limits.max_call_time);
+  absl::Notification done;
+  absl::StatusOr<Response> answer = absl::UnknownError("not run");
+  const CallPool::Admission admission = pool->TrySubmit([&] {
+    answer = stop.StopRequested() ? absl::StatusOr<Response>(stop.Status())
+                                  : handler(request, stop);
+    done.Notify();
+  });
+  if (admission == CallPool::Admission::kFull) {
+    return Error(absl::ResourceExhaustedError(absl::StrCat(
+        "the server is busy: ", pool->max_pending(),
+        " calls are already admitted (--max-pending-calls); retry with backoff")));
+  }
+  if (admission == CallPool::Admission::kClosed) {
+    return Error(absl::UnavailableError("the server is shutting down; retry on another replica"));
+  }
+  done.WaitForNotification();  // the work holds references to this frame
+  if (!answer.ok()) {
+    if (answer.status().code() == absl::StatusCode::kDeadlineExceeded) {
+      return Error(absl::DeadlineExceededError(
+          absl::StrCat(Request::descriptor()->name(), " was stopped after the server's per-call limit of ",
+                       absl::FormatDuration(limits.max_call_time), " (--max-call-seconds)")));
+    }
+    return Error(answer.status());
+  }
+  if (static_cast<std::int64_t>(answer->ByteSizeLong()) > limits.max_response_bytes) {
+    return Error(absl::ResourceExhaustedError(absl::StrCat(
+        "the answer would be ", answer->ByteSizeLong(), " bytes, above the server's limit of ",
+        limits.max_response_bytes, " bytes (--max-response-bytes)")));
+  }
+  std::string out;
+  google::protobuf::util::JsonPrintOptions print;
+  (void)google::protobuf::util::MessageToJsonString(*answer, &out, print);
+  return {absl::StatusCode::kOk, out};
+}
+
+}  // namespace
+
+int HttpStatusFor(absl::StatusCode code) {
+  switch (code) {
+    case absl::StatusCode::kOk: return 200;
+    case absl::StatusCode::kInvalidArgument:
+    case absl::StatusCode::kFailedPrecondition:
+    case absl::StatusCode::kOutOfRange: return 400;
+    case absl::StatusCode::kUnauthenticated: return 401;
+    case absl::StatusCode::kPermissionDenied: return 403;
+    case absl::StatusCode::kNotFound: return 404;
+    case absl::StatusCode::kAlreadyExists:
+    case absl::StatusCode::kAborted: return 409;
+    case absl::StatusCode::kResourceExhausted: return 429;
+    case absl::StatusCode::kCancelled: return 499;
+    case absl::StatusCode::kUnimplemented: return 501;
+    case absl::StatusCode::kUnavailable: return 503;
+    case absl::StatusCode::kDeadlineExceeded: return 504;
+    default: return 500;
+  }
+}
+
+std::string ErrorJson(const absl::Status& status) {
+  std::string out = absl::StrCat("{\"code\":", static_cast<int>(status.code()),
+                                 ",\"message\":\"", JsonEscape(status.message()), "\"");
+  const std::vector<core::FieldViolation> violations = core::FieldViolationsOf(status);
+  if (!violations.empty()) {
+    absl::StrAppend(&out, ",\"details\":[{\"@type\":\"type.googleapis.com/google.rpc.BadRequest\","
+                          "\"fieldViolations\":[");
+    for (std::size_t i = 0; i < violations.size(); ++i) {
+      absl::StrAppend(&out, i == 0 ? "" : ",", "{\"field\":\"", JsonEscape(violations[i].field),
+                      "\",\"description\":\"", JsonEscape(violations[i].description), "\"}");
+    }
+    absl::StrAppend(&out, "]}]");
+  }
+  absl::StrAppend(&out, "}");
+  return out;
+}
+
+HttpGateway::HttpGateway(CallPool* pool, CallLimits limits, Metrics* metrics)
+    : pool_(pool), limits_(limits), metrics_(metrics), server_(std::make_unique<httplib::Server>()) {}
+
+HttpGateway::~HttpGateway() { Stop(); }
+
+void HttpGateway::Route() {
+  server_->set_payload_max_length(static_cast<std::size_t>(limits_.max_request_bytes));
+  server_->Get("/metrics", [this](const httplib::Request&, httplib::Response& res) {
+    res.set_content(metrics_->Render(), "text/plain; version=0.0.4; charset=utf-8");
+  });
+  auto method = [this](const char* name, auto handler) {
+    server_->Post(absl::StrCat("/v1/", name),
+                  [this, name, handler](const httplib::Request& req, httplib::Response& res) {
+                    const absl::Time start = absl::Now();
+                    const JsonAnswer answer =
+                        draining_.load()
+                            ? Error(absl::UnavailableError(
+                                  "the server is shutting down; retry on another replica"))
+                            : RunJson(pool_, limits_, req.body, handler);
+                    res.status = HttpStatusFor(answer.code);
+                    res.set_content(answer.body, kJson);
+                    metrics_->RecordCall("http", name, answer.code, absl::Now() - start);
+                  });
+  };
+  method("Certify", &HandleCertify);
+  method("EstimateCapacity", &HandleEstimateCapacity);
+  method("Gate", &HandleGate);
+  method("SelectStructure", &HandleSelectStructure);
+  method("PlanSamples", &HandlePlanSamples);
+  server_->set_error_handler([](const httplib::Request& req, httplib::Response& res) {
+    if (!res.body.empty()) return;
+    absl::Status s = res.status == 404
+                         ? absl::NotFoundError(absl::StrCat(
+                               "no such path: ", req.path,
+                               " (POST /v1/<Method> with a JSON body, or GET /metrics)"))
+                     : res.status == 413
+                         ? absl::ResourceExhaustedError(
+                               "the request body is above the server's limit "
+                               "(--max-request-bytes)")
+                         : absl::InvalidArgumentError(absl::StrCat("HTTP ", res.status));
+    res.set_content(ErrorJson(s), kJson);
+  });
+}
+
+absl::Status HttpGateway::Start(const std::string& host, int port) {
+  Route();
+  if (port == 0) {
+    port_ = server_->bind_to_any_port(host);
+    if (port_ <= 0) port_ = 0;
+  } else if (server_->bind_to_port(host, port)) {
+    port_ = port;
+  }
+  if (port_ == 0) {
+    return absl::UnavailableError(absl::StrCat("cannot listen for HTTP on ", host, ":", port,
+                                               " (address in use, malformed, or not local)"));
+  }
+  thread_ = std::thread([this] { server_->listen_after_bind(); });
+  return absl::OkStatus();
+}
+
+void HttpGateway::Stop() {
+  if (!thread_.joinable()) return;
+  server_->stop();
+  thread_.join();
+}
+
+}  // namespace riskbound::rpc

@@ -1,0 +1,85 @@
+// The HTTP port: Prometheus metrics, and the RiskBound methods as
+// POST /v1/<Method> with the protobuf JSON mapping in and out, for pipeline
+// steps that have curl but no gRPC client.
+//
+// The JSON methods run the same handlers (handlers.h) on the same CallPool,
+// under the same limits (request size, per-call time budget, admission) as
+// the gRPC methods. Errors are JSON in the shape of google.rpc.Status in the
+// protobuf JSON mapping: {"code": 3, "message": "...", "details": [
+// {"@type": "type.googleapis.com/google.rpc.BadRequest", "fieldViolations":
+// [{"field": "...", "description": "..."}]}]}, with the HTTP status mapped
+// from the gRPC code in the usual way (400, 429, 503, 504, ...).
+#ifndef RISKBOUND_SERVICE_RPC_HTTP_GATEWAY_H_
+#define RISKBOUND_SERVICE_RPC_HTTP_GATEWAY_H_
+
+#include <atomic>
+#include <memory>
+#include <string>
+#include <thread>
+
+#include "absl/status/status.h"
+#include "service/rpc/call_pool.h"
+#include "service/rpc/metrics.h"
+#include "service/rpc/riskbound_service.h"
+
+namespace httplib {
+class Server;
+}
+
+namespace riskbound::rpc {
+
+// HttpStatusFor
+// The HTTP status for a gRPC/absl status code (the mapping of
+// google.rpc.Code's documentation, common practice): OK 200,
+// INVALID_ARGUMENT / FAILED_PRECONDITION / OUT_OF_RANGE 400, UNAUTHENTICATED
+// 401, PERMISSION_DENIED 403, NOT_FOUND 404, ALREADY_EXISTS / ABORTED 409,
+// RESOURCE_EXHAUSTED 429, CANCELLED 499, UNIMPLEMENTED 501, UNAVAILABLE 503,
+// DEADLINE_EXCEEDED 504, others 500.
+int HttpStatusFor(absl::StatusCode code);
+
+// ErrorJson
+// The JSON error body for a non-OK status, with its field violations (if
+// any) as a google.rpc.BadRequest detail.
+std::string ErrorJson(const absl::Status& status);
+
+class HttpGateway {
+ public:
+  // REQUIRES: pool and metrics outlive the gateway.
+  HttpGateway(CallPool* pool, CallLimits limits, Metrics* metrics);
+  ~HttpGateway();
+  HttpGateway(const HttpGateway&) = delete;
+  HttpGateway& operator=(const HttpGateway&) = delete;
+
+  // Start
+  // Binds HOST:PORT (port 0 picks one; read it back from port()) and serves
+  // on a thread of its own. UNAVAILABLE when the address cannot be bound.
+  absl::Status Start(const std::string& host, int port);
+
+  int port() const { return port_; }
+
+  // Stop
+  // Stops accepting and waits for the requests being answered. Idempotent.
+  void Stop();
+
+  // StartDrain
+  // JSON calls are answered UNAVAILABLE from now on; /metrics stays up until
+  // Stop. Thread-safe.
+  void StartDrain() { draining_.store(true); }
+
+ private:
+  void Route();
+
+  // Constant after construction.
+  CallPool* const pool_;
+  const CallLimits limits_;
+  Metrics* const metrics_;
+
+  std::unique_ptr<httplib::Server> server_;
+  std::thread thread_;
+  int port_ = 0;
+  std::atomic<bool> draining_{false};
+};
+
+}  // namespace riskbound::rpc
+
+#endif  // RISKBOUND_SERVICE_RPC_HTTP_GATEWAY_H_
