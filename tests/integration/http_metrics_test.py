@@ -9,7 +9,6 @@ exposition format written here (the format is an open standard: Prometheus
 "Exposition formats", text format 0.0.4), since Debian's Python has no
 Prometheus client library.
 """
-import argparse
 import concurrent.futures
 import http.client
 import json
@@ -23,7 +22,7 @@ import unittest
 import grpc
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from server_harness import ServerProcess, load_stubs  # noqa: E402
+from server_harness import ServerProcess, load_stubs, run_module_tests  # noqa: E402
 
 ARGS = None
 
@@ -246,14 +245,5 @@ class BusyHttpTest(unittest.TestCase):
             self.assertEqual(server.stop(), 0)
 
 
-def main():
-    global ARGS
-    parser = argparse.ArgumentParser()
-    parser.add_argument("--server", required=True)
-    parser.add_argument("--stubs", required=True)
-    ARGS, rest = parser.parse_known_args()
-    unittest.main(argv=[sys.argv[0]] + rest, verbosity=2)
-
-
 if __name__ == "__main__":
-    main()
+    run_module_tests()

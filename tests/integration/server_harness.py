@@ -2,12 +2,28 @@
 process on an ephemeral loopback port (--listen 127.0.0.1:0, port read back
 from --port-file), with its logs, memory and thread figures from /proc.
 Tests never use a fixed port."""
+import argparse
 import os
 import signal
 import subprocess
 import sys
 import tempfile
 import time
+import unittest
+
+
+def run_module_tests(*extra_arguments):
+    """Parses --server, --stubs and each name in extra_arguments (all
+    required), then runs the calling module's unittest cases with the rest of
+    the command line. Returns the parsed arguments through the module's ARGS
+    before the tests run."""
+    parser = argparse.ArgumentParser()
+    for name in ("--server", "--stubs") + extra_arguments:
+        parser.add_argument(name, required=True)
+    args, rest = parser.parse_known_args()
+    main_module = sys.modules["__main__"]
+    main_module.ARGS = args
+    unittest.main(module=main_module, argv=[sys.argv[0]] + rest, verbosity=2)
 
 
 def load_stubs(stubs_dir):
