@@ -29,9 +29,9 @@ constexpr double kMinGateDelta = 1e-300;
 
 // CPU time one REJECT plan may take (ordinary plans take well under a
 // millisecond; only rates within a hair of the threshold come near it).
-constexpr double kRejectionPlanCpuSeconds = 0.08;
+constexpr double kRejectionPlanCpuSeconds = 0.15;
 // The same for the paired champion-comparison plan (two limits per size).
-constexpr double kPairedPlanCpuSeconds = 0.06;
+constexpr double kPairedPlanCpuSeconds = 0.05;
 
 // Shares of one family in a K-way split are shrunk by this factor so that K
 // rounded shares never add up to more than the share they split.
@@ -296,6 +296,20 @@ double UpperTail(std::uint64_t n, std::uint64_t k, double p) {
 // exponential search and bisection) with P(Bin(n, p) >= k_min(n)) >= pass,
 // where k_min(n) is the fewest errors whose Clopper-Pearson lower limit at
 // `delta` exceeds epsilon. NOT_FOUND when no n up to 2^53 does it.
+// The rate q > p with kl(q || p) = c (Bernoulli kl, increasing in q above
+// p), by bisection to 1e-12, rounded up; 1 when even q = 1 falls short.
+double KlRateAbove(double p, double c) {
+  if (BernoulliKl(1.0, p) <= c) return 1.0;
+  double lo = p;
+  double hi = 1.0;
+  while (hi - lo > 1e-12 * hi) {
+    const double mid = lo + (hi - lo) / 2.0;
+    if (mid <= lo || mid >= hi) break;
+    (BernoulliKl(mid, p) <= c ? lo : hi) = mid;
+  }
+  return hi;
+}
+
 // Each "lower limit > epsilon" is decided from one binomial tail where it
 // can be (numeric.h LowerLimitAbove); k_min > epsilon n, so its search
 // starts there.
@@ -324,10 +338,23 @@ absl::StatusOr<std::uint64_t> PlanRejection(double epsilon, double p, double del
   };
   auto ok = [&](std::uint64_t n) {
     if (!above(n, n)) return false;
-    const double floor_k = std::floor(epsilon * static_cast<double>(n));
+    const double nd = static_cast<double>(n);
+    const double floor_k = std::floor(epsilon * nd);
     const std::uint64_t from = std::min<std::uint64_t>(n, static_cast<std::uint64_t>(floor_k));
-    absl::StatusOr<std::uint64_t> k_min =
-        SmallestSatisfying(from, n, [&](std::uint64_t k) { return above(n, k); });
+    // Upper end of k_min's bracket from Chernoff (1952): the Clopper-Pearson
+    // lower limit is at least the kl limit, which exceeds epsilon once
+    // kl(k/n || epsilon) > ln(1/delta)/n.
+    std::uint64_t to = n;
+    const double q = KlRateAbove(epsilon, -std::log(delta) / nd);
+    if (q < 1.0) {
+      const double k_kl = std::ceil(q * nd) + 1.0;
+      if (k_kl < nd && above(n, static_cast<std::uint64_t>(k_kl))) {
+        to = static_cast<std::uint64_t>(k_kl);
+      }
+    }
+    absl::StatusOr<std::uint64_t> k_min = to <= from ? absl::StatusOr<std::uint64_t>(to)
+                                                     : SmallestSatisfying(
+        from, to, [&](std::uint64_t k) { return above(n, k); });
     return k_min.ok() && (exhausted || UpperTail(n, *k_min, p) >= pass);
   };
   absl::StatusOr<std::uint64_t> n = SmallestFrom(held, ok, stop);

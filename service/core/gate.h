@@ -160,12 +160,12 @@ const char* VerdictName(Verdict verdict);
 //        probability, k_min(n) being the fewest errors whose Clopper-Pearson
 //        lower limit exceeds epsilon (found by exponential search and
 //        bisection, so a small n, not always the very smallest; given up,
-//        with no plan, past a work budget of 80 ms of CPU);
+//        with no plan, past a work budget of 150 ms of CPU);
 //      - champion comparison unsettled (paired only): the smallest total n at
 //        which the difference limits, with the observed disagreement rates
 //        held fixed, settle the comparison (anticipated-rate plan, bounds.md
 //        9.5 style: about even odds, no pass-probability margin; given up
-//        past a work budget of 60 ms of CPU);
+//        past a work budget of 50 ms of CPU);
 //      - below the minimum: at least the samples missing to reach it.
 //    The largest of these is reported.
 // Errors: INVALID_ARGUMENT naming every bad field by its API path

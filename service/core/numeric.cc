@@ -210,6 +210,10 @@ LogBounds LogTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
   return {log_first + s.lower, log_first + s.upper};
 }
 
+// ln 1/2: below a failure probability of 1/2 the limits lie on their own
+// side of k/n (the median of Bin(n, k/n) is k; Kaas & Buhrman 1980).
+constexpr double kLogHalf = -0.69314718055994531;
+
 // Bounds on ln P(Bin(n, p) <= k) (upper_tail false) or ln P(Bin(n, p) >= k)
 // (upper_tail true) at any p: the tail itself where its terms fall away from
 // k, else one minus the complementary tail (which then has that property).
@@ -219,6 +223,23 @@ LogBounds AnyTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
   if (upper_tail ? k == 0 : k >= n) return {0.0, 0.0};
   const double s = p * (static_cast<double>(n) + 1.0);
   const double kd = static_cast<double>(k);
+  if (log_enough < kLogHalf + 0.5 && p > 0.0 && p < 1.0) {
+    // Near the mode a tail falls slowly (millions of terms at huge n), but a
+    // question "does it reach delta?" with delta well below 1/2 is settled by
+    // the median: a median of Bin(n, p) lies in [floor(np), ceil(np)] (Kaas &
+    // Buhrman 1980), so P(X >= k) >= 1/2 - (k - floor(np)) t_max and
+    // P(X <= k) >= 1/2 - (ceil(np) - k) t_max, t_max the largest term (at
+    // floor((n+1)p)).
+    const double nd = static_cast<double>(n);
+    const double mean = p * nd;
+    const double gap = upper_tail ? kd - std::floor(mean) : std::ceil(mean) - kd;
+    double lower = 0.5;
+    if (gap > 0.0) {
+      const double mode = std::min(std::floor(s), nd);
+      lower = 0.5 - gap * std::exp(LogPmf(nd, mode, p));
+    }
+    if (lower > 0.0 && std::log(lower) >= log_enough) return {std::log(lower), 0.0};
+  }
   if (upper_tail ? s < kd + 1.0 : s > kd) {
     return LogTailBounds(n, k, p, upper_tail, log_enough);
   }
@@ -243,9 +264,6 @@ Answer TailAtLeast(std::uint64_t n, std::uint64_t k, double p, bool upper_tail,
   return Answer::kUnsure;
 }
 
-// ln 2: below a failure probability of 1/2 the limits lie on their own side
-// of k/n (the median of Bin(n, k/n) is k; Kaas & Buhrman 1980).
-constexpr double kLogHalf = -0.69314718055994531;
 
 // The Clopper-Pearson upper limit by bisection: the largest p with
 // P(Bin(n, p) <= k) >= delta. Bracket: the Chernoff bound P(Bin(n, p) <= k)
