@@ -348,7 +348,7 @@ def main():
           f"were not riskbound calls and were not run:")
     for doc, line, text in all_skipped:
         print(f"  skip {doc}:{line}: {text}")
-    if not all_commands:
+    if not all_commands and not args.only:
         failures.append("no riskbound command found in the docs")
     if failures:
         print(f"\n{len(failures)} problem(s):")
