@@ -41,22 +41,12 @@ constexpr double kBoostInverseMaxSamples = 4294967296.0;  // 2^32
 
 // Terms a tail sum adds one by one before it either converged or reports
 // bounds: the cheap first try, and the most it ever adds.
-constexpr std::uint64_t kTailTermsFirst = 4096;
+constexpr std::uint64_t kTailTermsFirst = 1024;
 constexpr std::uint64_t kTailTermsMax = 16384;
 
 // A tail sum has converged when the bound on what is left is below this
 // fraction of the partial sum (below half an ulp of a double).
 constexpr double kTailNegligible = 0x1p-56;
-
-// A decision "is the limit beyond eps?" taken from one tail evaluation at
-// eps is trusted when the tail is this far (in ln) from ln delta; closer, the
-// limit itself is computed, so the answer agrees with the reported limit.
-// The margin covers what the limit's own bisection tolerance (1e-12
-// relative) moves the tail by: d ln P / d ln p is at most about
-// sqrt(2 n ln(1/delta)), so 4e-11 sqrt(n) (for ln(1/delta) up to ~800).
-double DecideMargin(std::uint64_t n) {
-  return 1e-9 + 4e-11 * std::sqrt(static_cast<double>(n));
-}
 
 // Below this, exp() of a log probability is not a normal double.
 constexpr double kLogNormalMin = -700.0;
@@ -251,6 +241,21 @@ LogBounds AnyTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
   const LogBounds c =
       LogTailBounds(n, upper_tail ? k - 1 : k + 1, p, !upper_tail, complement_enough);
   return {std::log(-std::expm1(c.upper)), std::log(-std::expm1(c.lower))};
+}
+
+// A decision "is the limit beyond eps?" taken from one tail evaluation at
+// eps is trusted when ln of the tail is further from ln delta than the
+// limit's own bisection tolerance (1e-12 relative in p) can move it: the
+// slope d ln P / dp at eps times 1e-12 eps, doubled. The slope is exact:
+// d/dp P(X <= k) = -(n - k)/(1 - p) P(X = k), d/dp P(X >= k) = (k/p) P(X = k),
+// divided by the lower bound on P (the larger slope).
+double DecideMargin(std::uint64_t n, std::uint64_t k, double eps, bool upper_tail,
+                    double log_tail_lower) {
+  const double nd = static_cast<double>(n);
+  const double kd = static_cast<double>(k);
+  const double factor = upper_tail ? kd / eps : (nd - kd) / (1.0 - eps);
+  const double log_slope = std::log(factor) + LogPmf(nd, kd, eps) - log_tail_lower;
+  return 1e-13 + 2.0 * kBisectionTolerance * eps * std::exp(std::min(log_slope, 700.0));
 }
 
 // Is ln P(tail) >= log_delta? Yes, no, or unsure (the bounds straddle it).
@@ -458,8 +463,8 @@ bool UpperLimitAtMost(std::uint64_t n, std::uint64_t k, double delta, double eps
   if (static_cast<double>(k) >= eps * static_cast<double>(n)) return false;
   // u <= eps  <=>  P(Bin(n, eps) <= k) <= delta (the tail falls in p).
   const double log_delta = std::log(delta);
-  const double margin = DecideMargin(n);
-  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/false, log_delta + margin);
+  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/false, log_delta + 1e-6);
+  const double margin = DecideMargin(n, k, eps, /*upper_tail=*/false, b.lower);
   if (b.upper < log_delta - margin) return true;
   if (b.lower > log_delta + margin) return false;
   return BinomialUpperLimit(n, k, delta).value <= eps;
@@ -475,8 +480,8 @@ bool LowerLimitAbove(std::uint64_t n, std::uint64_t k, double delta, double eps)
   if (eps <= 0.0) return true;  // the limit is positive for k >= 1
   // l > eps  <=>  P(Bin(n, eps) >= k) < delta (the tail grows in p).
   const double log_delta = std::log(delta);
-  const double margin = DecideMargin(n);
-  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/true, log_delta + margin);
+  const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/true, log_delta + 1e-6);
+  const double margin = DecideMargin(n, k, eps, /*upper_tail=*/true, b.lower);
   if (b.upper < log_delta - margin) return true;
   if (b.lower > log_delta + margin) return false;
   return BinomialLowerLimit(n, k, delta).value > eps;

@@ -109,9 +109,9 @@ double BinomialUpperTailLowerBound(std::uint64_t n, std::uint64_t k, double p, b
 // Returns BinomialUpperLimit(n, k, delta).value <= eps, decided from one
 // binomial tail at eps (the limit is at most eps iff P(Bin(n, eps) <= k) <=
 // delta) where the tail is clearly on one side of delta (by more than the
-// limit's own bisection tolerance moves it, at every n up to 2^53), else by
-// computing the limit; so it agrees with the reported limit at a fraction
-// of the cost. For the planners' searches. REQUIRES: n >= 1, k <= n, 0 < delta < 1.
+// limit's own bisection tolerance moves it, from the exact slope of the tail
+// in p), else by computing the limit; so it agrees with the reported limit
+// at a fraction of the cost. For the planners' searches. REQUIRES: n >= 1, k <= n, 0 < delta < 1.
 bool UpperLimitAtMost(std::uint64_t n, std::uint64_t k, double delta, double eps);
 
 // LowerLimitAbove
