@@ -7,6 +7,7 @@
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
+#include "absl/strings/str_join.h"
 #include "absl/strings/str_split.h"
 #include "absl/strings/strip.h"
 
@@ -57,6 +58,10 @@ absl::StatusOr<ParsedArgs> ParseArgs(const std::vector<OptionSpec>& specs,
   ParsedArgs out;
   for (std::size_t i = 0; i < args.size(); ++i) {
     const std::string& word = args[i];
+    if (word == "-h") {
+      out.Add("help", "");
+      continue;
+    }
     if (!absl::StartsWith(word, "--") || word.size() == 2) {
       return absl::InvalidArgumentError(absl::StrCat("unexpected argument '", word, "'"));
     }
@@ -66,17 +71,24 @@ absl::StatusOr<ParsedArgs> ParseArgs(const std::vector<OptionSpec>& specs,
       inline_value = name.substr(eq + 1);
       name = name.substr(0, eq);
     }
-    if (name == "help") {
-      out.Add("help", "");
+    if (name == "help" || name == "version") {
+      out.Add(name, "");
       continue;
     }
-    auto spec = std::find_if(specs.begin(), specs.end(),
-                             [&](const OptionSpec& s) { return s.name == name; });
+    const std::string typed = name;
+    auto spec = std::find_if(specs.begin(), specs.end(), [&](const OptionSpec& s) {
+      return s.name == name ||
+             std::find(s.aliases.begin(), s.aliases.end(), name) != s.aliases.end();
+    });
     if (spec == specs.end()) {
       return absl::InvalidArgumentError(absl::StrCat("unknown flag --", name));
     }
+    name = spec->name;
     if (out.Has(name) && !spec->repeatable) {
-      return absl::InvalidArgumentError(absl::StrCat("--", name, " given twice"));
+      return absl::InvalidArgumentError(
+          typed == name ? absl::StrCat("--", name, " given twice")
+                        : absl::StrCat("--", typed, " given twice (--", typed, " is --", name,
+                                       ")"));
     }
     if (spec->value_name.empty()) {
       if (inline_value) {
@@ -98,15 +110,29 @@ absl::StatusOr<ParsedArgs> ParseArgs(const std::vector<OptionSpec>& specs,
 }
 
 std::string FormatHelp(const std::string& usage, const std::string& summary,
-                       const std::vector<OptionSpec>& specs) {
+                       const std::vector<OptionSpec>& specs, const std::string& terms) {
   std::string out = absl::StrCat("usage: ", usage, "\n\n", summary, "\n\noptions:\n");
   for (const OptionSpec& s : specs) {
     const std::string left =
         s.value_name.empty() ? absl::StrCat("--", s.name) : absl::StrCat("--", s.name, " ", s.value_name);
-    absl::StrAppendFormat(&out, "  %-28s %s\n", left, s.help);
+    std::string help = s.help;
+    if (!s.aliases.empty()) {
+      std::vector<std::string> also;
+      for (const std::string& a : s.aliases) also.push_back(absl::StrCat("--", a));
+      absl::StrAppend(&help, " (also ", absl::StrJoin(also, ", "), ")");
+    }
+    if (left.size() >= 28) {
+      absl::StrAppendFormat(&out, "  %s\n  %-28s %s\n", left, "", help);
+    } else {
+      absl::StrAppendFormat(&out, "  %-28s %s\n", left, help);
+    }
   }
-  absl::StrAppendFormat(&out, "  %-28s %s\n", "--help", "show this help");
+  absl::StrAppendFormat(&out, "  %-28s %s\n", "-h, --help", "show this help");
+  absl::StrAppendFormat(&out, "  %-28s %s\n", "--version", "print the engine version");
+  if (!terms.empty()) absl::StrAppend(&out, "\nterms:\n", terms);
   return out;
 }
+
+const char* EngineVersion() { return RISKBOUND_ENGINE_VERSION; }
 
 }  // namespace riskbound::cli

@@ -21,6 +21,9 @@ struct OptionSpec {
   std::string value_name;  // empty for a switch that takes no value
   std::string help;
   bool repeatable = false;
+  // Older or shorter spellings (without "--"), accepted as the same flag and
+  // listed in --help. Values given under an alias are stored under `name`.
+  std::vector<std::string> aliases = {};
 };
 
 class ParsedArgs {
@@ -44,15 +47,22 @@ class ParsedArgs {
 
 // ParseArgs
 // Parses `args` (the words after the command name) against `specs` plus the
-// implicit --help switch. Returns INVALID_ARGUMENT for an unknown flag, a
+// implicit --help (also -h) and --version switches, stored as "help" and
+// "version". An alias is stored under its flag's name. Returns INVALID_ARGUMENT for an unknown flag, a
 // missing value, a repeated non-repeatable flag, or a positional word.
 absl::StatusOr<ParsedArgs> ParseArgs(const std::vector<OptionSpec>& specs,
                                      const std::vector<std::string>& args);
 
 // FormatHelp
-// Returns the usage text of one command: usage line, summary, option table.
+// Returns the usage text of one command: usage line, summary, option table
+// (each flag with its aliases), then `terms` (the glossary of the command's
+// output) when not empty.
 std::string FormatHelp(const std::string& usage, const std::string& summary,
-                       const std::vector<OptionSpec>& specs);
+                       const std::vector<OptionSpec>& specs, const std::string& terms = "");
+
+// EngineVersion
+// The engine version this CLI was built with (RISKBOUND_ENGINE_VERSION).
+const char* EngineVersion();
 
 }  // namespace riskbound::cli
 

@@ -11,6 +11,7 @@
 #include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
+#include "client_cli/format.h"
 #include "client_cli/json_io.h"
 #include "client_cli/model_flags.h"
 
@@ -28,11 +29,23 @@ std::string Summary() {
       "known, the formula and its published source. Use the value as --vc-dimension in\n"
       "`riskbound certify`, or give the same description there with --model KIND.\n"
       "--input reads a riskbound.v1.EstimateCapacityRequest in the protobuf JSON mapping\n"
-      "(- for stdin). Example: riskbound capacity relu --widths 784,300,100,1\n"
+      "(- for stdin). KIND is a CLI word below or the enum name (MODEL_KIND_RELU_NETWORK,\n"
+      "relu_network). Each parameter flag is named after its ModelDescription field; the older\n"
+      "spellings (listed as \"also\") still work.\n"
+      "Example: riskbound capacity relu --layer-widths 784,300,100,1\n"
       "(network widths end in 1: one thresholded output, a binary classifier).\n\n"
       "kinds (KIND, what it is, the flags it uses):\n",
       ModelKindHelp());
 }
+
+constexpr char kTerms[] =
+    "  capacity       how rich a model class is; here its VC dimension: the largest number of\n"
+    "                 points the class can label in every possible way\n"
+    "  exact          the VC dimension is known exactly for this description\n"
+    "  upper bound    the true VC dimension is at most this value (using it is safe)\n"
+    "  lower bound    the true VC dimension is at least this value\n"
+    "  infinite       no finite VC dimension: no VC bound applies\n"
+    "  ln |H|         natural log of the number of hypotheses of a finite class\n";
 
 std::vector<OptionSpec> Specs() {
   std::vector<OptionSpec> specs = ModelParameterOptions();
@@ -48,13 +61,13 @@ int Usage(std::ostream& err, const std::string& message) {
 
 std::string Value(const v1::CapacityEstimate& e) {
   if (e.has_vc_dimension_uint64()) return absl::StrCat(e.vc_dimension_uint64());
-  return absl::StrFormat("%.6g", e.vc_dimension());
+  return FormatSignificant(e.vc_dimension(), 6, Rounding::kUp);
 }
 
-void PrintTable(const v1::ModelDescription& model, const v1::EstimateCapacityResponse& r,
-                std::ostream& out) {
+void PrintTable(const v1::ModelDescription& model, const std::string& kind_word,
+                const v1::EstimateCapacityResponse& r, std::ostream& out) {
   const v1::CapacityEstimate& e = r.estimate();
-  out << "Capacity of " << DescribeModel(model) << "\n\n";
+  out << "Capacity of " << DescribeModel(model, kind_word) << "\n\n";
   auto row = [&](const std::string& label, const std::string& value) {
     out << absl::StrFormat("  %-14s %s\n", label, value);
   };
@@ -72,10 +85,11 @@ void PrintTable(const v1::ModelDescription& model, const v1::EstimateCapacityRes
       row("VC dimension", absl::StrCat(Value(e), " (status not given)"));
   }
   if (e.has_vc_dimension_lower_bound() && e.status() != v1::CAPACITY_STATUS_EXACT) {
-    row("lower bound", absl::StrFormat("%.6g", e.vc_dimension_lower_bound()));
+    row("lower bound", FormatSignificant(e.vc_dimension_lower_bound(), 6, Rounding::kDown));
   }
   if (e.has_log_hypothesis_count()) {
-    row("ln |H|", absl::StrFormat("%.6g (for the Occam families)", e.log_hypothesis_count()));
+    row("ln |H|", absl::StrCat(FormatSignificant(e.log_hypothesis_count(), 6, Rounding::kUp),
+                             " (for the Occam families; rounded up)"));
   }
   if (e.exceeds_uint64() && e.status() != v1::CAPACITY_STATUS_INFINITE) {
     row("64-bit", "does not fit: every VC certificate with it is vacuous");
@@ -100,7 +114,7 @@ int RunCapacity(const std::vector<std::string>& args, std::ostream& out, std::os
     rest.erase(rest.begin());
   }
   CommandStart start;
-  if (auto code = StartCommand("capacity", kUsage, Summary(), specs, rest, out, err, &start)) {
+  if (auto code = StartCommand("capacity", kUsage, Summary(), specs, rest, out, err, &start, kTerms)) {
     return *code;
   }
 
@@ -132,7 +146,7 @@ int RunCapacity(const std::vector<std::string>& args, std::ostream& out, std::os
   if (start.json) {
     out << ToJson(response);
   } else {
-    PrintTable(request.model(), response, out);
+    PrintTable(request.model(), kind_word, response, out);
   }
   return kExitOk;
 }

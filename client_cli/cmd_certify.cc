@@ -5,6 +5,7 @@
 #include <string>
 #include <vector>
 
+#include "absl/strings/ascii.h"
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
@@ -16,53 +17,116 @@
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
 #include "client_cli/model_flags.h"
+#include "client_cli/names.h"
+#include "client_cli/format.h"
 #include "client_cli/table.h"
-#include "service/core/families.h"
 
 namespace riskbound::cli {
 namespace {
 
 constexpr char kUsage[] =
-    "riskbound certify --errors K --samples N [--delta D] [--family NAME|all] [options]\n"
+    "riskbound certify --holdout-error-count K --holdout-sample-count N\n"
+    "                  [--failure-probability D] [--families NAME[,NAME]|all] [options]\n"
+    "       riskbound certify --errors K --samples N [--delta D] [--family NAME]   (short aliases)\n"
     "       riskbound certify --input request.json [options]";
 constexpr char kSummary[] =
-    "Asks the server for certificates: upper bounds on the model's true error that hold with\n"
-    "probability >= 1 - delta. Give hold-out counts (--errors/--samples); training counts\n"
-    "(--train-errors/--train-samples) with a capacity (--vc-dimension, --hypothesis-count,\n"
-    "--log-hypothesis-count, or --model KIND with its parameter flags) or with --rademacher;\n"
-    "a bounded loss (--mean-loss ...); a PAC-Bayes posterior (--kl-divergence ...); a\n"
-    "compression scheme (--compression-size ...); any combination of them; or a whole\n"
-    "riskbound.v1.CertifyRequest in the protobuf JSON mapping with --input (- for stdin).\n"
-    "Without --family, one recommended family gets the whole delta; with several families\n"
-    "(or 'all') each gets its share (union bound) and the tightest is reported.";
+    "Asks the server for certificates: upper bounds on the model's true error (or, for a\n"
+    "bounded loss, on its expected loss in the loss's units) that hold with probability\n"
+    ">= 1 - failure_probability. Give hold-out counts (--holdout-error-count/\n"
+    "--holdout-sample-count); training counts (--training-error-count/--training-sample-count)\n"
+    "with a capacity (--vc-dimension, --hypothesis-count, --log-hypothesis-count, or --model\n"
+    "KIND with its parameter flags) or with --empirical-rademacher; a bounded loss (--mean-loss\n"
+    "...); a PAC-Bayes posterior (--kl-divergence ...); a compression scheme\n"
+    "(--compression-size ...); any combination of them; or a whole riskbound.v1.CertifyRequest\n"
+    "in the protobuf JSON mapping with --input (- for stdin). Each flag is named after its\n"
+    "field of the request (evidence.holdout.error_count -> --holdout-error-count); the older\n"
+    "spellings (listed as \"also\") still work. Families are named by their CLI word (holdout-kl) or\n"
+    "their enum name (BOUND_FAMILY_HOLDOUT_KL_CHERNOFF, holdout_kl_chernoff). Without\n"
+    "--families, one recommended family gets the whole failure probability; with several (or\n"
+    "'all') each gets its share (union bound) and the tightest is reported.\n"
+    "\n"
+    "Printed numbers round outward: upper bounds up, lower bounds and confidence levels down,\n"
+    "failure probabilities up (the JSON output carries the exact values).\n"
+    "\n"
+    "exit codes: 0 answered; 2 usage; 3 invalid input (field named); 4 server unreachable;\n"
+    "7 refused for the server's limits; 1 other failure.";
+
+constexpr char kTerms[] =
+    "  upper            upper bound on the true error (expected loss for a bounded loss) that\n"
+    "                   holds with probability >= 1 - delta used; rounded up\n"
+    "  lower            lower bound, where the family gives one; rounded down\n"
+    "  empirical        the observed error rate (or mean loss) the bound starts from\n"
+    "  penalty          upper minus empirical: what the bound adds for finite samples and\n"
+    "                   capacity\n"
+    "  delta used       the failure probability this family spent: its bound may be wrong\n"
+    "                   with at most this probability (rounded up)\n"
+    "  delta, failure probability\n"
+    "                   the probability, over the draw of the samples, that a bound is wrong;\n"
+    "                   the confidence is 1 - delta\n"
+    "  union bound      several bounds hold together with probability >= 1 - (sum of their\n"
+    "                   deltas), so the requested delta is split between the families\n"
+    "  vacuous          the bound is at or above the baseline error rate (or 1): it says nothing\n"
+    "  tightest         the family with the smallest upper bound; every bound in the table\n"
+    "                   holds at once, so reporting the smallest costs nothing extra\n"
+    "  capacity         how rich the model class is (VC dimension, ln |H|): more capacity,\n"
+    "                   larger penalty\n";
 
 std::vector<OptionSpec> Specs() {
   std::vector<OptionSpec> specs = {
-      {"errors", "K", "hold-out errors"},
-      {"samples", "N", "hold-out examples"},
-      {"train-errors", "K", "training errors"},
-      {"train-samples", "M", "training examples"},
+      {"holdout-error-count", "K", "hold-out errors (evidence.holdout.error_count)", false,
+       {"errors"}},
+      {"holdout-sample-count", "N", "hold-out examples (evidence.holdout.sample_count)", false,
+       {"samples"}},
+      {"training-error-count", "K", "training errors (evidence.training.error_count)", false,
+       {"train-errors"}},
+      {"training-sample-count", "M", "training examples (evidence.training.sample_count)", false,
+       {"train-samples"}},
   };
   for (OptionSpec& s : CapacityOptions()) specs.push_back(s);
   for (OptionSpec& s : std::vector<OptionSpec>{
-      {"baseline-error-rate", "P", "error rate of a trivial classifier; bounds at or above it are vacuous"},
-      {"mean-loss", "X", "bounded loss: mean per-example loss on a hold-out set"},
-      {"loss-variance", "V", "bounded loss: unbiased sample variance of the losses"},
-      {"loss-samples", "N", "bounded loss: hold-out examples"},
-      {"loss-range", "A,B", "bounded loss: range of every per-example loss (default 0,1)"},
-      {"kl-divergence", "KL", "PAC-Bayes: KL(posterior || prior) in nats"},
-      {"gibbs-risk", "R", "PAC-Bayes: empirical Gibbs risk of the posterior"},
-      {"pac-samples", "M", "PAC-Bayes: training examples (not those the prior was fit on)"},
-      {"bound-target", "gibbs|majority-vote", "PAC-Bayes: the classifier bounded (default gibbs)"},
-      {"rademacher", "R", "empirical Rademacher complexity of the class (with --train-errors/--train-samples)"},
-      {"sigma-draws", "N", "Rademacher: sigma draws the estimate averaged (default exact)"},
-      {"compression-size", "D", "sample compression: size of the compression set"},
-      {"compression-samples", "M", "sample compression: training examples"},
-      {"outside-errors", "K", "sample compression: errors outside the compression set"},
-      {"size-fixed", "", "sample compression: the set size was fixed before seeing the data"},
-      {"delta", "D", "failure probability in (0,1) (default 0.05: 95% confidence)"},
-      {"family", "NAME[,NAME]", "bound families (see `riskbound families`), or 'all'", true},
-      {"weights", "W[,W]", "delta weights of the listed families, summing to <= 1"},
+      {"baseline-error-rate", "P", "error rate of a trivial classifier; bounds at or above it are "
+                                   "vacuous (evidence.baseline_error_rate)"},
+      {"mean-loss", "X", "bounded loss: mean per-example loss on a hold-out set "
+                         "(evidence.bounded_loss.mean_loss)"},
+      {"sample-variance", "V", "bounded loss: unbiased sample variance of the losses "
+                               "(evidence.bounded_loss.sample_variance)", false, {"loss-variance"}},
+      {"loss-sample-count", "N", "bounded loss: hold-out examples "
+                                 "(evidence.bounded_loss.sample_count)", false, {"loss-samples"}},
+      {"loss-range", "A,B", "bounded loss: range of every per-example loss, default 0,1 "
+                            "(evidence.bounded_loss.loss_min, loss_max)"},
+      {"kl-divergence", "KL", "PAC-Bayes: KL(posterior || prior) in nats "
+                              "(evidence.pac_bayes.kl_divergence)"},
+      {"gibbs-empirical-risk", "R", "PAC-Bayes: empirical Gibbs risk of the posterior "
+                                    "(evidence.pac_bayes.gibbs_empirical_risk)", false,
+       {"gibbs-risk"}},
+      {"pac-bayes-sample-count", "M", "PAC-Bayes: training examples, not those the prior was fit "
+                                      "on (evidence.pac_bayes.sample_count)", false,
+       {"pac-samples"}},
+      {"pac-bayes-target", "gibbs|majority-vote", "PAC-Bayes: the classifier bounded, default "
+                                                  "gibbs (evidence.pac_bayes.target)", false,
+       {"bound-target"}},
+      {"empirical-rademacher", "R", "empirical Rademacher complexity of the class, with the "
+                                    "training counts (evidence.rademacher.empirical_rademacher)",
+       false, {"rademacher"}},
+      {"sigma-draw-count", "N", "Rademacher: sigma draws the estimate averaged, default exact "
+                                "(evidence.rademacher.sigma_draw_count)", false, {"sigma-draws"}},
+      {"compression-size", "D", "sample compression: size of the compression set "
+                                "(evidence.compression.compression_size)"},
+      {"compression-sample-count", "M", "sample compression: training examples "
+                                        "(evidence.compression.sample_count)", false,
+       {"compression-samples"}},
+      {"outside-error-count", "K", "sample compression: errors outside the compression set "
+                                   "(evidence.compression.outside_error_count)", false,
+       {"outside-errors"}},
+      {"size-fixed-in-advance", "", "sample compression: the set size was fixed before seeing "
+                                    "the data (evidence.compression.size_fixed_in_advance)",
+       false, {"size-fixed"}},
+      {"failure-probability", "D", "delta: failure probability in (0,1), default 0.05, i.e. "
+                                   "confidence 0.95 (failure_probability)", false, {"delta"}},
+      {"families", "NAME[,NAME]", "bound families (see `riskbound families`), or 'all' "
+                                  "(listed.families, all_applicable)", true, {"family"}},
+      {"delta-weights", "W[,W]", "shares of delta of the listed families, summing to <= 1 "
+                                 "(listed.delta_weights)", false, {"weights"}},
       {"input", "FILE", "read the request from a JSON file (- for stdin)"},
       {"output", "table|json", "output format (default table)"},
   }) {
@@ -84,13 +148,13 @@ struct Flags {
   bool Has(const std::string& name) const { return counts.count(name) || reals.count(name); }
 };
 
-constexpr const char* kCountFlags[] = {"errors", "samples", "train-errors", "train-samples",
-                                       "vc-dimension", "hypothesis-count", "loss-samples",
-                                       "pac-samples", "sigma-draws", "compression-size",
-                                       "compression-samples", "outside-errors"};
-constexpr const char* kRealFlags[] = {"log-hypothesis-count", "baseline-error-rate", "delta",
-                                      "mean-loss", "loss-variance", "kl-divergence",
-                                      "gibbs-risk", "rademacher"};
+constexpr const char* kCountFlags[] = {"holdout-error-count", "holdout-sample-count", "training-error-count", "training-sample-count",
+                                       "vc-dimension", "hypothesis-count", "loss-sample-count",
+                                       "pac-bayes-sample-count", "sigma-draw-count", "compression-size",
+                                       "compression-sample-count", "outside-error-count"};
+constexpr const char* kRealFlags[] = {"log-hypothesis-count", "baseline-error-rate", "failure-probability",
+                                      "mean-loss", "sample-variance", "kl-divergence",
+                                      "gibbs-empirical-risk", "empirical-rademacher"};
 
 std::optional<std::string> ReadFlags(const ParsedArgs& args, Flags* flags) {
   for (const char* name : kCountFlags) {
@@ -121,11 +185,11 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
   Flags f;
   if (auto problem = ReadFlags(args, &f)) return problem;
   for (auto problem :
-       {Together(f, args, {"errors", "samples"}, "hold-out evidence"),
-        Together(f, args, {"train-errors", "train-samples"}, "training evidence"),
-        Together(f, args, {"mean-loss", "loss-samples"}, "bounded-loss evidence"),
-        Together(f, args, {"kl-divergence", "gibbs-risk", "pac-samples"}, "PAC-Bayes evidence"),
-        Together(f, args, {"compression-size", "compression-samples", "outside-errors"},
+       {Together(f, args, {"holdout-error-count", "holdout-sample-count"}, "hold-out evidence"),
+        Together(f, args, {"training-error-count", "training-sample-count"}, "training evidence"),
+        Together(f, args, {"mean-loss", "loss-sample-count"}, "bounded-loss evidence"),
+        Together(f, args, {"kl-divergence", "gibbs-empirical-risk", "pac-bayes-sample-count"}, "PAC-Bayes evidence"),
+        Together(f, args, {"compression-size", "compression-sample-count", "outside-error-count"},
                  "sample-compression evidence")}) {
     if (problem) return problem;
   }
@@ -138,41 +202,41 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
   if (AnyModelParameter(args) && !args.Has("model")) {
     return std::string("the model parameter flags (--dimension, --widths, ...) go with --model KIND");
   }
-  const bool training = f.Has("train-errors");
-  if ((capacities == 1 || f.Has("rademacher")) && !training) {
-    return std::string("a capacity or --rademacher needs --train-errors/--train-samples");
+  const bool training = f.Has("training-error-count");
+  if ((capacities == 1 || f.Has("empirical-rademacher")) && !training) {
+    return std::string("a capacity or --empirical-rademacher needs --training-error-count/--training-sample-count");
   }
-  if (training && capacities == 0 && !f.Has("rademacher")) {
+  if (training && capacities == 0 && !f.Has("empirical-rademacher")) {
     return std::string("training evidence needs a capacity (--vc-dimension, --hypothesis-count, "
-                       "--log-hypothesis-count, --model) or --rademacher");
+                       "--log-hypothesis-count, --model) or --empirical-rademacher");
   }
-  if ((f.Has("loss-variance") || args.Has("loss-range")) && !f.Has("mean-loss")) {
-    return std::string("--loss-variance and --loss-range need --mean-loss/--loss-samples");
+  if ((f.Has("sample-variance") || args.Has("loss-range")) && !f.Has("mean-loss")) {
+    return std::string("--sample-variance and --loss-range need --mean-loss/--loss-sample-count");
   }
-  if (f.Has("sigma-draws") && !f.Has("rademacher")) return std::string("--sigma-draws needs --rademacher");
-  if (args.Has("bound-target") && !f.Has("kl-divergence")) {
-    return std::string("--bound-target needs PAC-Bayes evidence (--kl-divergence ...)");
+  if (f.Has("sigma-draw-count") && !f.Has("empirical-rademacher")) return std::string("--sigma-draw-count needs --empirical-rademacher");
+  if (args.Has("pac-bayes-target") && !f.Has("kl-divergence")) {
+    return std::string("--pac-bayes-target needs PAC-Bayes evidence (--kl-divergence ...)");
   }
-  if (args.Has("size-fixed") && !f.Has("compression-size")) {
-    return std::string("--size-fixed needs --compression-size");
+  if (args.Has("size-fixed-in-advance") && !f.Has("compression-size")) {
+    return std::string("--size-fixed-in-advance needs --compression-size");
   }
-  if (!f.Has("errors") && !training && !f.Has("mean-loss") && !f.Has("kl-divergence") &&
+  if (!f.Has("holdout-error-count") && !training && !f.Has("mean-loss") && !f.Has("kl-divergence") &&
       !f.Has("compression-size")) {
-    return std::string("give evidence: --errors/--samples, --train-errors/--train-samples with a "
-                       "capacity or --rademacher, --mean-loss/--loss-samples, --kl-divergence/"
-                       "--gibbs-risk/--pac-samples, --compression-size/--compression-samples/"
-                       "--outside-errors, or --input FILE");
+    return std::string("give evidence: --holdout-error-count/--holdout-sample-count, --training-error-count/--training-sample-count with a "
+                       "capacity or --empirical-rademacher, --mean-loss/--loss-sample-count, --kl-divergence/"
+                       "--gibbs-empirical-risk/--pac-bayes-sample-count, --compression-size/--compression-sample-count/"
+                       "--outside-error-count, or --input FILE");
   }
 
   v1::Evidence* e = req->mutable_evidence();
-  if (f.Has("errors")) {
-    e->mutable_holdout()->set_error_count(f.counts["errors"]);
-    e->mutable_holdout()->set_sample_count(f.counts["samples"]);
+  if (f.Has("holdout-error-count")) {
+    e->mutable_holdout()->set_error_count(f.counts["holdout-error-count"]);
+    e->mutable_holdout()->set_sample_count(f.counts["holdout-sample-count"]);
   }
   if (training && capacities == 1) {
     v1::TrainingEvidence* t = e->mutable_training();
-    t->set_error_count(f.counts["train-errors"]);
-    t->set_sample_count(f.counts["train-samples"]);
+    t->set_error_count(f.counts["training-error-count"]);
+    t->set_sample_count(f.counts["training-sample-count"]);
     if (f.Has("vc-dimension")) t->mutable_capacity()->set_vc_dimension(f.counts["vc-dimension"]);
     if (f.Has("hypothesis-count")) {
       t->mutable_capacity()->set_hypothesis_count(f.counts["hypothesis-count"]);
@@ -191,18 +255,18 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
       }
     }
   }
-  if (f.Has("rademacher")) {
+  if (f.Has("empirical-rademacher")) {
     v1::RademacherEvidence* r = e->mutable_rademacher();
-    r->set_error_count(f.counts["train-errors"]);
-    r->set_sample_count(f.counts["train-samples"]);
-    r->set_empirical_rademacher(f.reals["rademacher"]);
-    if (f.Has("sigma-draws")) r->set_sigma_draw_count(f.counts["sigma-draws"]);
+    r->set_error_count(f.counts["training-error-count"]);
+    r->set_sample_count(f.counts["training-sample-count"]);
+    r->set_empirical_rademacher(f.reals["empirical-rademacher"]);
+    if (f.Has("sigma-draw-count")) r->set_sigma_draw_count(f.counts["sigma-draw-count"]);
   }
   if (f.Has("mean-loss")) {
     v1::BoundedLossEvidence* b = e->mutable_bounded_loss();
     b->set_mean_loss(f.reals["mean-loss"]);
-    b->set_sample_count(f.counts["loss-samples"]);
-    if (f.Has("loss-variance")) b->set_sample_variance(f.reals["loss-variance"]);
+    b->set_sample_count(f.counts["loss-sample-count"]);
+    if (f.Has("sample-variance")) b->set_sample_variance(f.reals["sample-variance"]);
     if (args.Has("loss-range")) {
       const std::vector<std::string> range = args.GetList("loss-range");
       double lo = 0, hi = 0;
@@ -216,56 +280,54 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
   if (f.Has("kl-divergence")) {
     v1::PacBayesEvidence* p = e->mutable_pac_bayes();
     p->set_kl_divergence(f.reals["kl-divergence"]);
-    p->set_gibbs_empirical_risk(f.reals["gibbs-risk"]);
-    p->set_sample_count(f.counts["pac-samples"]);
-    const std::string target = args.Get("bound-target").value_or("gibbs");
+    p->set_gibbs_empirical_risk(f.reals["gibbs-empirical-risk"]);
+    p->set_sample_count(f.counts["pac-bayes-sample-count"]);
+    // The CLI word or the enum name (PAC_BAYES_TARGET_MAJORITY_VOTE).
+    const std::string target =
+        EnumWord(absl::AsciiStrToUpper(args.Get("pac-bayes-target").value_or("gibbs")),
+                 "PAC_BAYES_TARGET_");
     if (target == "gibbs") {
       p->set_target(v1::PAC_BAYES_TARGET_GIBBS);
     } else if (target == "majority-vote") {
       p->set_target(v1::PAC_BAYES_TARGET_MAJORITY_VOTE);
     } else {
-      return std::string("--bound-target must be gibbs or majority-vote");
+      return std::string("--pac-bayes-target must be gibbs or majority-vote");
     }
   }
   if (f.Has("compression-size")) {
     v1::CompressionEvidence* k = e->mutable_compression();
     k->set_compression_size(f.counts["compression-size"]);
-    k->set_sample_count(f.counts["compression-samples"]);
-    k->set_outside_error_count(f.counts["outside-errors"]);
-    k->set_size_fixed_in_advance(args.Has("size-fixed"));
+    k->set_sample_count(f.counts["compression-sample-count"]);
+    k->set_outside_error_count(f.counts["outside-error-count"]);
+    k->set_size_fixed_in_advance(args.Has("size-fixed-in-advance"));
   }
   if (f.Has("baseline-error-rate")) e->set_baseline_error_rate(f.reals["baseline-error-rate"]);
-  req->set_failure_probability(f.Has("delta") ? f.reals["delta"] : 0.05);
+  req->set_failure_probability(f.Has("failure-probability") ? f.reals["failure-probability"] : 0.05);
   return std::nullopt;
 }
 
-// Applies --family and --weights. Returns a usage message on error.
+// Applies --families and --delta-weights. Returns a usage message on error.
 std::optional<std::string> ApplyFamilies(const ParsedArgs& args, v1::CertifyRequest* req) {
-  const std::vector<std::string> names = args.GetList("family");
-  const std::vector<std::string> weights = args.GetList("weights");
+  const std::vector<std::string> names = args.GetList("families");
+  const std::vector<std::string> weights = args.GetList("delta-weights");
   if (names.size() == 1 && names[0] == "all") {
-    if (!weights.empty()) return std::string("--weights go with a list of families, not 'all'");
+    if (!weights.empty()) return std::string("--delta-weights go with a list of families, not 'all'");
     req->mutable_all_applicable();
     return std::nullopt;
   }
   if (names.empty()) {
-    if (!weights.empty()) return std::string("--weights need --family");
+    if (!weights.empty()) return std::string("--delta-weights need --families");
     return std::nullopt;
   }
   v1::FamilyList* list = req->mutable_listed();
   for (const std::string& name : names) {
-    const core::FamilySpec* spec = core::FindFamilyBySlug(name);
-    if (spec == nullptr) {
-      std::vector<std::string> known;
-      for (const core::FamilySpec& f : core::Families()) known.emplace_back(f.slug);
-      return absl::StrCat("unknown family '", name, "'; known: ", absl::StrJoin(known, ", "),
-                          ", or all");
-    }
-    list->add_families(static_cast<v1::BoundFamily>(spec->family));
+    const std::optional<v1::BoundFamily> family = FamilyFromName(name);
+    if (!family.has_value()) return absl::StrCat(UnknownFamilyMessage(name), ", or all");
+    list->add_families(*family);
   }
   for (const std::string& w : weights) {
     double v = 0;
-    if (!absl::SimpleAtod(w, &v)) return absl::StrCat("--weights: '", w, "' is not a number");
+    if (!absl::SimpleAtod(w, &v)) return absl::StrCat("--delta-weights: '", w, "' is not a number");
     list->add_delta_weights(v);
   }
   return std::nullopt;
@@ -273,27 +335,38 @@ std::optional<std::string> ApplyFamilies(const ParsedArgs& args, v1::CertifyRequ
 
 void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
   const double requested = r.delta_accounting().requested_failure_probability();
-  out << absl::StrFormat("Certificates on the true error (requested confidence %g%%, delta = %g)\n\n",
-                         100.0 * (1.0 - requested), requested);
+  int loss_count = 0;
+  for (const v1::Certificate& c : r.certificates()) loss_count += c.has_loss_range() ? 1 : 0;
+  std::string what = "Upper bounds on the true error rate";
+  if (loss_count == r.certificates_size() && loss_count > 0) {
+    what = "Upper bounds on the expected loss, in the loss's units";
+  } else if (loss_count > 0) {
+    what = "Upper bounds on the true error rate, and on the expected loss in the loss's units "
+           "for the bounded-loss families";
+  }
+  out << absl::StrFormat("%s (requested: confidence >= %s, delta = %s)\n\n", what,
+                         FormatConfidence(requested), FormatInput(requested));
   Table table({"family", "upper", "lower", "empirical", "penalty", "delta used", "vacuous"});
   for (const v1::Certificate& c : r.certificates()) {
-    table.AddRow({c.family_name(), FormatProbability(c.risk_upper_bound()),
-                  c.has_risk_lower_bound() ? FormatProbability(c.risk_lower_bound()) : "-",
-                  FormatProbability(c.empirical_risk()), FormatProbability(c.penalty()),
-                  absl::StrFormat("%.4g", c.failure_probability()), c.vacuous() ? "yes" : "no"});
+    table.AddRow({c.family_name(), FormatUpper(c.risk_upper_bound()),
+                  c.has_risk_lower_bound() ? FormatLower(c.risk_lower_bound()) : "-",
+                  FormatObserved(c.empirical_risk()), FormatUpper(c.penalty()),
+                  FormatFailureProbability(c.failure_probability()), c.vacuous() ? "yes" : "no"});
   }
   out << table.Render() << "\n";
   const v1::Certificate& t = r.tightest();
-  out << absl::StrFormat("Tightest: %s: %s <= %s with probability >= %g%s\n", t.family_name(),
+  out << absl::StrFormat("Tightest: %s: %s <= %s with probability >= %s%s\n", t.family_name(),
                          t.has_loss_range() ? "expected loss" : "true error",
-                         FormatProbability(t.risk_upper_bound()),
-                         1.0 - r.delta_accounting().spent_failure_probability(),
+                         FormatUpper(t.risk_upper_bound()),
+                         FormatConfidence(r.delta_accounting().spent_failure_probability()),
                          t.vacuous() ? " (vacuous: says nothing)" : "");
   out << "Delta accounting: " << r.delta_accounting().rule() << "\n";
   for (const v1::Certificate& c : r.certificates()) {
     if (c.has_loss_range()) {
-      out << absl::StrFormat("Note (%s): bounds on the expected loss, in the loss's units [%g, %g]\n",
-                             c.family_name(), c.loss_range().loss_min(), c.loss_range().loss_max());
+      out << absl::StrFormat(
+          "Note (%s): bounds on the expected loss, in the loss's units [%s, %s]\n",
+          c.family_name(), FormatInput(c.loss_range().loss_min()),
+          FormatInput(c.loss_range().loss_max()));
     }
     for (const std::string& note : c.notes()) out << "Note (" << c.family_name() << "): " << note << "\n";
   }
@@ -305,7 +378,8 @@ void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
 int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
   const std::vector<OptionSpec> specs = Specs();
   CommandStart start;
-  if (auto code = StartCommand("certify", kUsage, kSummary, specs, args, out, err, &start)) {
+  if (auto code =
+          StartCommand("certify", kUsage, kSummary, specs, args, out, err, &start, kTerms)) {
     return *code;
   }
 

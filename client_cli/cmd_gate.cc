@@ -16,12 +16,13 @@
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
+#include "client_cli/names.h"
+#include "client_cli/format.h"
 #include "client_cli/table.h"
 #include "google/protobuf/descriptor.h"
 #include "google/protobuf/struct.pb.h"
 #include "google/protobuf/util/json_util.h"
 #include "riskbound/v1/gate.pb.h"
-#include "service/core/families.h"
 
 namespace riskbound::cli {
 namespace {
@@ -30,11 +31,18 @@ using google::protobuf::Descriptor;
 using google::protobuf::FieldDescriptor;
 
 constexpr char kUsage[] =
-    "riskbound gate --policy policy.json --candidate model.json [--champion champion.json]\n"
-    "                      [--output table|json] [options]";
+    "riskbound gate --max-risk E --failure-probability D --candidate-id ID\n"
+    "               --holdout-error-count K --holdout-sample-count N [policy and champion flags]\n"
+    "       riskbound gate --policy policy.json --candidate model.json [--champion champion.json]\n"
+    "               [the same flags, each overriding its field of the files] [--output table|json]";
 constexpr char kSummary[] =
-    "Asks the server whether a candidate model may be promoted. The three files are, in the\n"
-    "protobuf JSON mapping (snake_case or lowerCamelCase names; - reads one of them from stdin):\n"
+    "Asks the server whether a candidate model may be promoted. A CI step gives everything as\n"
+    "flags; files give the same fields, and a flag overrides the same field of a file. Each flag\n"
+    "is named after its field of riskbound.v1.GateRequest (policy.max_risk -> --max-risk,\n"
+    "candidate.evidence.holdout.error_count -> --holdout-error-count, as in certify); the older\n"
+    "or shorter spellings (listed as \"also\") work too.\n"
+    "The files are in the protobuf JSON mapping (snake_case or lowerCamelCase names; - reads one\n"
+    "of them from stdin):\n"
     "  --policy     riskbound.v1.GatePolicy: max_risk (epsilon, in (0,1)), failure_probability\n"
     "               (delta, in (0,1)), allowed_families, min_holdout_sample_count,\n"
     "               max_regression (tolerated candidate-minus-champion error, in [-1,1]),\n"
@@ -43,6 +51,7 @@ constexpr char kSummary[] =
     "  --champion   riskbound.v1.ChampionComparison: champion_id and either paired counts on\n"
     "               the candidate's hold-out set (both_wrong_count, only_champion_wrong_count,\n"
     "               only_challenger_wrong_count, sample_count) or champion_holdout\n"
+    "With the paired-count flags, paired.sample_count is the candidate's hold-out sample count.\n"
     "Verdicts: PROMOTE when the upper bound on the true error is <= max_risk (and the candidate\n"
     "is at most max_regression worse than the champion, with confidence); REJECT when the lower\n"
     "bound is > max_risk or the candidate is worse than the champion beyond max_regression with\n"
@@ -50,15 +59,61 @@ constexpr char kSummary[] =
     "labelled hold-out samples expected to settle it. All bounds hold together with\n"
     "probability >= 1 - failure_probability (the split is printed). Every answer carries an\n"
     "audit record: SHA-256 of the canonical request, families and delta spent, time, cautions.\n"
+    "Printed bounds round outward (upper up, lower down, deltas up); the reasons are the\n"
+    "server's sentences.\n"
     "\n"
     "exit codes: 0 PROMOTE, 10 HOLD, 11 REJECT; 3 invalid input (an unknown or bad field is\n"
-    "named by its path, e.g. policy.max_risk), 2 usage, 4 server unreachable, 1 other failure.";
+    "named by its path, e.g. policy.max_risk), 2 usage, 4 server unreachable, 7 refused for the\n"
+    "server's limits, 1 other failure.";
+
+constexpr char kTerms[] =
+    "  upper bound    the candidate's true error is at most this, with the confidence of the\n"
+    "                 whole verdict; rounded up\n"
+    "  lower bound    the candidate's true error is at least this (Clopper-Pearson); rounded down\n"
+    "  observed error rate\n"
+    "                 the candidate's empirical error rate on its hold-out set\n"
+    "  candidate - champion error\n"
+    "                 bounds on the difference of the two true error rates (positive: the\n"
+    "                 candidate is worse); upper rounded up, lower rounded down\n"
+    "  McNemar p      if the two models were equally good, the probability of a split of the\n"
+    "                 disagreements at least this favourable to the candidate; small values are\n"
+    "                 evidence that the candidate is better. It is not the probability that the\n"
+    "                 candidate is better. Informational: it spends no delta.\n"
+    "  delta, failure probability\n"
+    "                 the probability that a bound is wrong; the confidence is 1 - delta\n"
+    "  union bound    the bounds hold together with probability >= 1 - (sum of the deltas in the\n"
+    "                 ledger), so the policy's delta is split between the tests\n"
+    "  delta spent    the sum of the ledger (rounded up); never more than the policy's\n";
 
 std::vector<OptionSpec> Specs() {
   std::vector<OptionSpec> specs = {
       {"policy", "FILE", "the gate policy (riskbound.v1.GatePolicy JSON)"},
       {"candidate", "FILE", "the candidate model (riskbound.v1.GateCandidate JSON)"},
       {"champion", "FILE", "optional: the model in service (riskbound.v1.ChampionComparison JSON)"},
+      {"max-risk", "E", "highest tolerated true error, in (0,1) (policy.max_risk)"},
+      {"failure-probability", "D", "delta of the whole verdict, in (0,1) "
+                                   "(policy.failure_probability)", false, {"delta"}},
+      {"max-regression", "T", "tolerated candidate-minus-champion error, in [-1,1], default 0 "
+                              "(policy.max_regression)"},
+      {"min-holdout-sample-count", "N", "fewer hold-out samples: HOLD (policy."
+                                        "min_holdout_sample_count)"},
+      {"plan-pass-probability", "Q", "for a HOLD, the probability the extra samples settle it, "
+                                     "default 0.8 (policy.plan_pass_probability)"},
+      {"allowed-families", "NAME[,NAME]", "families the risk bound may use, CLI words or enum "
+                                          "names (policy.allowed_families)", true},
+      {"candidate-id", "ID", "the candidate's name (candidate.id)"},
+      {"holdout-error-count", "K", "the candidate's hold-out errors "
+                                   "(candidate.evidence.holdout.error_count)", false,
+       {"error-count", "errors"}},
+      {"holdout-sample-count", "N", "the candidate's hold-out examples "
+                                    "(candidate.evidence.holdout.sample_count)", false,
+       {"sample-count", "samples"}},
+      {"champion-id", "ID", "the model in service (champion.champion_id)"},
+      {"both-wrong-count", "K", "examples both models get wrong (champion.paired.both_wrong_count)"},
+      {"only-champion-wrong-count", "K", "examples only the champion gets wrong "
+                                         "(champion.paired.only_champion_wrong_count)"},
+      {"only-challenger-wrong-count", "K", "examples only the candidate gets wrong "
+                                           "(champion.paired.only_challenger_wrong_count)"},
       {"output", "table|json", "output format (default table)"},
   };
   for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
@@ -139,6 +194,7 @@ bool ReadMessage(const std::string& file, const std::string& root,
     err << "riskbound gate: --" << root << ": " << text.status().message() << "\n";
     return false;
   }
+  *text = NormalizeEnumWords(*text, message->GetDescriptor());
   google::protobuf::Struct object;
   if (!google::protobuf::util::JsonStringToMessage(*text, &object).ok()) {
     err << "riskbound gate: " << file << " (--" << root
@@ -172,6 +228,89 @@ bool ReadMessage(const std::string& file, const std::string& root,
   return true;
 }
 
+// Applies the inline flags to `req`, each overriding its field (files were
+// read first). Returns a usage message on error.
+std::optional<std::string> ApplyFlags(const ParsedArgs& args, v1::GateRequest* req) {
+  v1::GatePolicy* policy = req->mutable_policy();
+  for (const char* name : {"max-risk", "failure-probability", "max-regression",
+                           "plan-pass-probability"}) {
+    auto v = args.GetDouble(name);
+    if (!v.ok()) return std::string(v.status().message());
+    if (!v->has_value()) continue;
+    const std::string n = name;
+    if (n == "max-risk") policy->set_max_risk(**v);
+    if (n == "failure-probability") policy->set_failure_probability(**v);
+    if (n == "max-regression") policy->set_max_regression(**v);
+    if (n == "plan-pass-probability") policy->set_plan_pass_probability(**v);
+  }
+  auto min_count = args.GetUint64("min-holdout-sample-count");
+  if (!min_count.ok()) return std::string(min_count.status().message());
+  if (min_count->has_value()) policy->set_min_holdout_sample_count(**min_count);
+  if (args.Has("allowed-families")) {
+    policy->clear_allowed_families();
+    for (const std::string& name : args.GetList("allowed-families")) {
+      const std::optional<v1::BoundFamily> family = FamilyFromName(name);
+      if (!family.has_value()) {
+        return absl::StrCat("--allowed-families: ", UnknownFamilyMessage(name));
+      }
+      policy->add_allowed_families(*family);
+    }
+  }
+
+  v1::GateCandidate* candidate = req->mutable_candidate();
+  if (auto id = args.Get("candidate-id")) candidate->set_id(*id);
+  auto errors = args.GetUint64("holdout-error-count");
+  if (!errors.ok()) return std::string(errors.status().message());
+  auto samples = args.GetUint64("holdout-sample-count");
+  if (!samples.ok()) return std::string(samples.status().message());
+  if (errors->has_value()) {
+    candidate->mutable_evidence()->mutable_holdout()->set_error_count(**errors);
+  }
+  if (samples->has_value()) {
+    candidate->mutable_evidence()->mutable_holdout()->set_sample_count(**samples);
+  }
+
+  const char* paired_flags[] = {"both-wrong-count", "only-champion-wrong-count",
+                                "only-challenger-wrong-count"};
+  int paired_given = 0;
+  for (const char* name : paired_flags) paired_given += args.Has(name) ? 1 : 0;
+  if (args.Has("champion-id")) req->mutable_champion()->set_champion_id(*args.Get("champion-id"));
+  if (paired_given > 0) {
+    v1::ChampionComparison* champion = req->mutable_champion();
+    if (paired_given < 3 && !champion->has_paired()) {
+      return std::string("--both-wrong-count, --only-champion-wrong-count and "
+                         "--only-challenger-wrong-count go together (paired counts)");
+    }
+    v1::PairedCounts* paired = champion->mutable_paired();  // replaces champion_holdout
+    for (const char* name : paired_flags) {
+      auto v = args.GetUint64(name);
+      if (!v.ok()) return std::string(v.status().message());
+      if (!v->has_value()) continue;
+      const std::string n = name;
+      if (n == "both-wrong-count") paired->set_both_wrong_count(**v);
+      if (n == "only-champion-wrong-count") paired->set_only_champion_wrong_count(**v);
+      if (n == "only-challenger-wrong-count") paired->set_only_challenger_wrong_count(**v);
+    }
+    // The pairs are counted on the candidate's hold-out set.
+    if (paired->sample_count() == 0 || samples->has_value()) {
+      paired->set_sample_count(candidate->evidence().holdout().sample_count());
+    }
+  }
+  if (req->has_champion() && req->champion().champion_id().empty() && args.Has("champion-id")) {
+    return std::string("--champion-id: must not be empty");
+  }
+  if (req->has_champion() && req->champion().champion_id().empty()) {
+    return std::string("the champion needs --champion-id ID (or champion_id in --champion FILE)");
+  }
+  if (req->has_champion() && req->champion().comparison_case() ==
+                                 v1::ChampionComparison::COMPARISON_NOT_SET) {
+    return std::string("--champion-id needs the paired counts (--both-wrong-count, "
+                       "--only-champion-wrong-count, --only-challenger-wrong-count) or "
+                       "--champion FILE");
+  }
+  return std::nullopt;
+}
+
 const char* VerdictWord(v1::Verdict v) {
   switch (v) {
     case v1::VERDICT_PROMOTE:
@@ -184,13 +323,6 @@ const char* VerdictWord(v1::Verdict v) {
       return "UNSPECIFIED";
   }
 }
-
-std::string FamilyName(int family) {
-  const core::FamilySpec* spec = core::FindFamily(static_cast<core::Family>(family));
-  return spec != nullptr ? std::string(spec->slug) : absl::StrCat("family ", family);
-}
-
-std::string Signed(double v) { return absl::StrFormat("%+.6f", v); }
 
 // The table's lines, each indented by two spaces.
 std::string Indented(const Table& table) {
@@ -205,8 +337,10 @@ void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostr
   const v1::GatePolicy& policy = req.policy();
   const double epsilon = policy.max_risk();
   out << VerdictWord(r.verdict()) << "\n";
-  out << absl::StrFormat("candidate '%s', max_risk %g at confidence %g%%", req.candidate().id(),
-                         epsilon, 100.0 * (1.0 - policy.failure_probability()));
+  out << absl::StrFormat("candidate '%s', max_risk %s at confidence >= %s (delta = %s)",
+                         req.candidate().id(), FormatInput(epsilon),
+                         FormatConfidence(policy.failure_probability()),
+                         FormatInput(policy.failure_probability()));
   if (req.has_champion()) {
     out << absl::StrFormat(", against champion '%s' (%s)", req.champion().champion_id(),
                            req.champion().has_paired() ? "paired, same hold-out set"
@@ -219,39 +353,45 @@ void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostr
   Table numbers({"quantity", "value", "compared with", "outcome"});
   const v1::Certificate& c = r.risk_certificate();
   numbers.AddRow({absl::StrCat("true error, upper bound (", c.family_name(), ")"),
-                  FormatProbability(c.risk_upper_bound()),
-                  absl::StrFormat("max_risk %g", epsilon),
+                  FormatUpper(c.risk_upper_bound()),
+                  absl::StrCat("max_risk ", FormatInput(epsilon)),
                   c.risk_upper_bound() <= epsilon ? "at or below: passes" : "above"});
   if (r.has_risk_lower_bound()) {
     numbers.AddRow({"true error, lower bound (Clopper-Pearson)",
-                    FormatProbability(r.risk_lower_bound()),
-                    absl::StrFormat("max_risk %g", epsilon),
+                    FormatLower(r.risk_lower_bound()),
+                    absl::StrCat("max_risk ", FormatInput(epsilon)),
                     r.risk_lower_bound() > epsilon ? "above: fails" : "not above"});
   }
-  numbers.AddRow({"observed error rate", FormatProbability(c.empirical_risk()), "-", "-"});
+  numbers.AddRow({"observed error rate", FormatObserved(c.empirical_risk()), "-", "-"});
   if (r.has_difference_upper_bound()) {
     const double t = policy.has_max_regression() ? policy.max_regression() : 0.0;
-    const std::string tolerance = absl::StrFormat("max_regression %g", t);
-    numbers.AddRow({"candidate - champion error, upper bound", Signed(r.difference_upper_bound()),
+    const std::string tolerance = absl::StrCat("max_regression ", FormatInput(t));
+    numbers.AddRow({"candidate - champion error, upper bound", FormatSignedUpper(r.difference_upper_bound()),
                     tolerance,
                     r.difference_upper_bound() <= t ? "within: passes" : "beyond"});
-    numbers.AddRow({"candidate - champion error, lower bound", Signed(r.difference_lower_bound()),
+    numbers.AddRow({"candidate - champion error, lower bound", FormatSignedLower(r.difference_lower_bound()),
                     tolerance, r.difference_lower_bound() > t ? "beyond: fails" : "not beyond"});
   }
   if (r.has_mcnemar_p_value()) {
-    numbers.AddRow({"McNemar exact one-sided p (candidate better)",
-                    absl::StrFormat("%.4g", r.mcnemar_p_value()), "-",
+    numbers.AddRow({"McNemar exact one-sided p-value (see below)",
+                    FormatSignificant(r.mcnemar_p_value(), 4, Rounding::kUp), "-",
                     "informational, spends no delta"});
   }
   out << Indented(numbers);
+  if (r.has_mcnemar_p_value()) {
+    out << "  McNemar p-value: if the two models were equally good, the probability of a split of\n"
+           "  their disagreements at least this favourable to the candidate. Small values are\n"
+           "  evidence that the candidate is better; it is not the probability that it is better.\n";
+  }
 
   out << "\nFailure probability ledger (union bound: all bounds above hold together):\n";
   Table ledger({"test", "failure probability"});
   for (const v1::DeltaSpend& d : r.delta_ledger()) {
-    ledger.AddRow({d.test(), absl::StrFormat("%.6g", d.failure_probability())});
+    ledger.AddRow({d.test(), FormatFailureProbability(d.failure_probability())});
   }
-  ledger.AddRow({"total spent", absl::StrFormat("%.6g of %g", r.audit().spent_failure_probability(),
-                                                policy.failure_probability())});
+  ledger.AddRow({"total spent",
+                 absl::StrCat(FormatFailureProbability(r.audit().spent_failure_probability()),
+                              " of ", FormatInput(policy.failure_probability()))});
   out << Indented(ledger);
 
   if (r.verdict() == v1::VERDICT_HOLD) {
@@ -265,12 +405,13 @@ void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostr
 
   const v1::AuditRecord& a = r.audit();
   std::vector<std::string> families;
-  for (int f : a.families_used()) families.push_back(FamilyName(f));
+  for (int f : a.families_used()) families.push_back(FamilyWord(f));
   out << "\nAudit record:\n";
   out << "  request sha256:   " << a.request_sha256() << "\n";
   out << "  engine version:   " << a.engine_version() << "\n";
   out << "  families used:    " << absl::StrJoin(families, ", ") << "\n";
-  out << "  delta spent:      " << absl::StrFormat("%.6g", a.spent_failure_probability()) << "\n";
+  out << "  delta spent:      " << FormatFailureProbability(a.spent_failure_probability())
+      << "\n";
   out << "  decided at:       " << a.timestamp() << "\n";
   PrintCautions(a.cautions(), out);
 }
@@ -280,11 +421,23 @@ void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostr
 int RunGate(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
   const std::vector<OptionSpec> specs = Specs();
   CommandStart start;
-  if (auto code = StartCommand("gate", kUsage, kSummary, specs, args, out, err, &start)) {
+  if (auto code = StartCommand("gate", kUsage, kSummary, specs, args, out, err, &start, kTerms)) {
     return *code;
   }
-  if (!start.args.Has("policy")) return Usage(err, "--policy FILE is required");
-  if (!start.args.Has("candidate")) return Usage(err, "--candidate FILE is required");
+  if (!start.args.Has("policy") &&
+      (!start.args.Has("max-risk") || !start.args.Has("failure-probability"))) {
+    return Usage(err, "give the policy: --max-risk E and --failure-probability D (or --policy "
+                      "FILE)");
+  }
+  if (!start.args.Has("candidate") && !start.args.Has("candidate-id")) {
+    return Usage(err, "give the candidate: --candidate-id ID with --holdout-error-count K and "
+                      "--holdout-sample-count N (or --candidate FILE)");
+  }
+  if (!start.args.Has("candidate") &&
+      start.args.Has("holdout-error-count") != start.args.Has("holdout-sample-count")) {
+    return Usage(err, "--holdout-error-count and --holdout-sample-count go together (hold-out "
+                      "evidence)");
+  }
   int from_stdin = 0;
   for (const char* name : {"policy", "candidate", "champion"}) {
     from_stdin += start.args.Get(name).value_or("") == "-" ? 1 : 0;
@@ -292,12 +445,18 @@ int RunGate(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   if (from_stdin > 1) return Usage(err, "only one of the files can be read from stdin (-)");
 
   v1::GateRequest request;
-  bool ok = ReadMessage(*start.args.Get("policy"), "policy", request.mutable_policy(), err);
-  ok = ReadMessage(*start.args.Get("candidate"), "candidate", request.mutable_candidate(), err) && ok;
+  bool ok = true;
+  if (auto policy = start.args.Get("policy")) {
+    ok = ReadMessage(*policy, "policy", request.mutable_policy(), err) && ok;
+  }
+  if (auto candidate = start.args.Get("candidate")) {
+    ok = ReadMessage(*candidate, "candidate", request.mutable_candidate(), err) && ok;
+  }
   if (auto champion = start.args.Get("champion")) {
     ok = ReadMessage(*champion, "champion", request.mutable_champion(), err) && ok;
   }
   if (!ok) return kExitInvalidInput;
+  if (auto problem = ApplyFlags(start.args, &request)) return Usage(err, *problem);
 
   RiskBoundClient client(start.client);
   v1::GateResponse response;

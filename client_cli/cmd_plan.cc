@@ -14,8 +14,9 @@
 #include "client_cli/exit_codes.h"
 #include "client_cli/json_io.h"
 #include "client_cli/model_flags.h"
+#include "client_cli/names.h"
+#include "client_cli/format.h"
 #include "client_cli/table.h"
-#include "service/core/families.h"
 
 namespace riskbound::cli {
 namespace {
@@ -26,16 +27,16 @@ constexpr char kExitText[] =
     "stderr); 2 usage; 3 invalid input (field named); 4 server unreachable.";
 
 constexpr char kPlanUsage[] =
-    "riskbound plan holdout --target-risk E --expected-risk P [--delta D]\n"
-    "                       [--pass-probability Q] [--samples-held N] [--output table|json]\n"
-    "       riskbound plan training --expected-risk R --target-risk E\n"
+    "riskbound plan holdout --target-risk E --expected-risk P [--failure-probability D]\n"
+    "                       [--pass-probability Q] [--held-sample-count N] [--output table|json]\n"
+    "       riskbound plan training --expected-empirical-risk R --target-risk E\n"
     "                       (--vc-dimension H | --hypothesis-count N | --log-hypothesis-count X |\n"
-    "                        --model KIND ...) [--family NAME] [--delta D] [--samples-held M]\n"
-    "                       [--output table|json]";
+    "                        --model KIND ...) [--family NAME] [--failure-probability D]\n"
+    "                       [--held-sample-count M] [--output table|json]";
 
 constexpr char kHoldoutUsage[] =
-    "riskbound plan holdout --target-risk E --expected-risk P [--delta D] [--pass-probability Q]\n"
-    "                       [--samples-held N] [--output table|json]";
+    "riskbound plan holdout --target-risk E --expected-risk P [--failure-probability D]\n"
+    "                       [--pass-probability Q] [--held-sample-count N] [--output table|json]";
 constexpr char kHoldoutSummary[] =
     "How many hold-out examples make the exact binomial (Clopper-Pearson) certificate reach the\n"
     "target risk E at failure probability D, for a model whose true error rate is expected to be\n"
@@ -43,13 +44,14 @@ constexpr char kHoldoutSummary[] =
     "keep doing so for ceil(2/P) more samples). With --pass-probability Q: the smallest n at which\n"
     "such a model passes with probability >= Q (a power calculation; recommended, since the\n"
     "observed error count scatters around P n). Also printed: the errors the set may show and\n"
-    "still certify, the zero-failure size ceil(ln D / ln(1 - E)), and with --samples-held how\n"
+    "still certify, the zero-failure size ceil(ln D / ln(1 - E)), and with --held-sample-count how\n"
     "many more examples to collect.";
 
 constexpr char kTrainingUsage[] =
-    "riskbound plan training --expected-risk R --target-risk E (--vc-dimension H |\n"
+    "riskbound plan training --expected-empirical-risk R --target-risk E (--vc-dimension H |\n"
     "                        --hypothesis-count N | --log-hypothesis-count X | --model KIND ...)\n"
-    "                        [--family NAME] [--delta D] [--samples-held M] [--output table|json]";
+    "                        [--family NAME] [--failure-probability D] [--held-sample-count M]\n"
+    "                        [--output table|json]";
 constexpr char kTrainingSummary[] =
     "How many training examples make a training-set bound (vc-additive, vc-relative,\n"
     "occam-hoeffding, occam-kl) reach the target risk E at failure probability D, if the model\n"
@@ -59,13 +61,40 @@ constexpr char kTrainingSummary[] =
     "ONLY, the classical realizable (Blumer et al. 1989) and agnostic sample complexities: they\n"
     "answer different questions and are not plans for this bound.";
 
+constexpr char kHoldoutTerms[] =
+    "  delta, failure probability\n"
+    "                     the probability, over the draw of the hold-out set, that the\n"
+    "                     certificate is wrong; the confidence is 1 - delta\n"
+    "  errors tolerated   the most errors the planned set may show and still certify the target\n"
+    "  P(pass)            the probability that a model whose true error is the expected rate\n"
+    "                     passes at the planned size (exact binomial sum; rounded down)\n"
+    "  size if no error at all occurs\n"
+    "                     the size at which zero errors certify the target\n"
+    "  additional         planned size minus --held-sample-count\n";
+
+constexpr char kTrainingTerms[] =
+    "  delta, failure probability\n"
+    "                     the probability, over the draw of the training set, that the bound\n"
+    "                     is wrong; the confidence is 1 - delta\n"
+    "  capacity           how rich the model class is (VC dimension, ln |H|): more capacity,\n"
+    "                     more examples needed\n"
+    "  for comparison only\n"
+    "                     classical sample complexities that answer other questions; not plans\n"
+    "                     for this bound\n"
+    "  additional         planned size minus --held-sample-count\n";
+
 std::vector<OptionSpec> HoldoutSpecs() {
   std::vector<OptionSpec> specs = {
-      {"target-risk", "E", "the risk the certificate must reach, in (0,1); required"},
-      {"expected-risk", "P", "the error rate you expect the model to show, in [0,1]; required"},
-      {"delta", "D", "failure probability in (0,1) (default 0.05)"},
-      {"pass-probability", "Q", "plan for this probability of passing, in (0,1)"},
-      {"samples-held", "N", "hold-out examples you already have"},
+      {"target-risk", "E", "the risk the certificate must reach, in (0,1); required "
+                           "(holdout.target_risk)"},
+      {"expected-risk", "P", "the error rate you expect the model to show, in [0,1]; required "
+                             "(holdout.expected_risk)"},
+      {"failure-probability", "D", "delta: failure probability in (0,1), default 0.05 "
+                                   "(holdout.failure_probability)", false, {"delta"}},
+      {"pass-probability", "Q", "plan for this probability of passing, in (0,1) "
+                                "(holdout.pass_probability)"},
+      {"held-sample-count", "N", "hold-out examples you already have (holdout.held_sample_count)",
+       false, {"samples-held"}},
       {"output", "table|json", "output format (default table)"},
   };
   for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
@@ -74,14 +103,20 @@ std::vector<OptionSpec> HoldoutSpecs() {
 
 std::vector<OptionSpec> TrainingSpecs() {
   std::vector<OptionSpec> specs = {
-      {"expected-risk", "R", "the training error rate you expect, in [0,1]; required"},
-      {"target-risk", "E", "the risk the bound must reach, in (0,1); required"},
-      {"family", "NAME", "vc-additive, vc-relative, occam-hoeffding or occam-kl"},
+      {"expected-empirical-risk", "R", "the training error rate you expect, in [0,1]; required "
+                                       "(training.expected_empirical_risk)", false,
+       {"expected-risk"}},
+      {"target-risk", "E", "the risk the bound must reach, in (0,1); required "
+                           "(training.target_risk)"},
+      {"family", "NAME", "vc-additive, vc-relative, occam-hoeffding or occam-kl, or the enum "
+                         "name (training.family)"},
   };
   for (OptionSpec& s : CapacityOptions()) specs.push_back(s);
   for (OptionSpec& s : std::vector<OptionSpec>{
-      {"delta", "D", "failure probability in (0,1) (default 0.05)"},
-      {"samples-held", "M", "training examples you already have"},
+      {"failure-probability", "D", "delta: failure probability in (0,1), default 0.05 "
+                                   "(training.failure_probability)", false, {"delta"}},
+      {"held-sample-count", "M", "training examples you already have "
+                                 "(training.held_sample_count)", false, {"samples-held"}},
       {"output", "table|json", "output format (default table)"},
   }) {
     specs.push_back(s);
@@ -108,11 +143,11 @@ std::optional<std::string> HoldoutFromFlags(const ParsedArgs& args, v1::HoldoutP
   std::optional<double> target, expected, delta, pass;
   for (auto problem : {Real(args, "target-risk", true, &target),
                        Real(args, "expected-risk", true, &expected),
-                       Real(args, "delta", false, &delta),
+                       Real(args, "failure-probability", false, &delta),
                        Real(args, "pass-probability", false, &pass)}) {
     if (problem) return problem;
   }
-  auto held = args.GetUint64("samples-held");
+  auto held = args.GetUint64("held-sample-count");
   if (!held.ok()) return std::string(held.status().message());
   r->set_target_risk(*target);
   r->set_expected_risk(*expected);
@@ -125,12 +160,12 @@ std::optional<std::string> HoldoutFromFlags(const ParsedArgs& args, v1::HoldoutP
 std::optional<std::string> TrainingFromFlags(const ParsedArgs& args, v1::TrainingPlanRequest* r) {
   std::optional<double> target, expected, delta, log_count;
   for (auto problem : {Real(args, "target-risk", true, &target),
-                       Real(args, "expected-risk", true, &expected),
-                       Real(args, "delta", false, &delta),
+                       Real(args, "expected-empirical-risk", true, &expected),
+                       Real(args, "failure-probability", false, &delta),
                        Real(args, "log-hypothesis-count", false, &log_count)}) {
     if (problem) return problem;
   }
-  auto held = args.GetUint64("samples-held");
+  auto held = args.GetUint64("held-sample-count");
   if (!held.ok()) return std::string(held.status().message());
   auto vc = args.GetUint64("vc-dimension");
   if (!vc.ok()) return std::string(vc.status().message());
@@ -143,7 +178,7 @@ std::optional<std::string> TrainingFromFlags(const ParsedArgs& args, v1::Trainin
                        "--log-hypothesis-count or --model KIND");
   }
   if (AnyModelParameter(args) && !args.Has("model")) {
-    return std::string("the model parameter flags (--dimension, --widths, ...) go with --model KIND");
+    return std::string("the model parameter flags (--dimension, --layer-widths, ...) go with --model KIND");
   }
   v1::Capacity* cap = r->mutable_capacity();
   if (vc->has_value()) cap->set_vc_dimension(**vc);
@@ -159,13 +194,13 @@ std::optional<std::string> TrainingFromFlags(const ParsedArgs& args, v1::Trainin
   }
   const bool finite = count->has_value() || log_count.has_value();
   const std::string family = args.Get("family").value_or(finite ? "occam-kl" : "vc-additive");
-  const core::FamilySpec* spec = core::FindFamilyBySlug(family);
-  if (spec == nullptr) {
+  const std::optional<v1::BoundFamily> spec = FamilyFromName(family);
+  if (!spec.has_value()) {
     return absl::StrCat("unknown family '", family,
                         "'; training plans use vc-additive, vc-relative, occam-hoeffding or "
                         "occam-kl");
   }
-  r->set_family(static_cast<v1::BoundFamily>(spec->family));
+  r->set_family(*spec);
   r->set_target_risk(*target);
   r->set_expected_empirical_risk(*expected);
   r->set_failure_probability(delta.value_or(0.05));
@@ -184,10 +219,11 @@ void PrintNotesAndCautions(const v1::PlanSamplesResponse& r, std::ostream& out) 
 void PrintHoldout(const v1::HoldoutPlanRequest& q, const v1::PlanSamplesResponse& r,
                   std::ostream& out) {
   out << absl::StrFormat(
-      "Hold-out plan: exact binomial certificate <= %g at delta = %g, expected error rate %g%s\n\n",
-      q.target_risk(), q.failure_probability(), q.expected_risk(),
+      "Hold-out plan: exact binomial certificate <= %s at delta = %s, expected error rate %s%s\n\n",
+      FormatInput(q.target_risk()), FormatInput(q.failure_probability()),
+      FormatInput(q.expected_risk()),
       q.has_pass_probability()
-          ? absl::StrFormat(", pass probability >= %g", q.pass_probability())
+          ? absl::StrFormat(", pass probability >= %s", FormatInput(q.pass_probability()))
           : "");
   const v1::HoldoutPlanDetail& d = r.holdout();
   Table t({"figure", "value"});
@@ -195,7 +231,7 @@ void PrintHoldout(const v1::HoldoutPlanRequest& q, const v1::PlanSamplesResponse
     t.AddRow({"hold-out examples needed", Count(r.sample_count())});
     t.AddRow({"errors tolerated at that size", Count(d.tolerated_error_count())});
     t.AddRow({"P(pass) at that size, true error = expected",
-              absl::StrFormat("%.4f", d.pass_probability_at_plan())});
+              FormatFixed(d.pass_probability_at_plan(), 4, Rounding::kDown)});
     t.AddRow({"size at the expected error count", Count(d.expected_rate_sample_count())});
     if (d.has_pass_probability_sample_count()) {
       t.AddRow({"size for the pass probability", Count(d.pass_probability_sample_count())});
@@ -219,8 +255,9 @@ void PrintTraining(const v1::TrainingPlanRequest& q, const v1::PlanSamplesRespon
                    std::ostream& out) {
   const v1::TrainingPlanDetail& d = r.training();
   out << absl::StrFormat(
-      "Training-sample plan: %s bound <= %g at delta = %g, expected training error rate %g\n\n",
-      d.family_name(), q.target_risk(), q.failure_probability(), q.expected_empirical_risk());
+      "Training-sample plan: %s bound <= %s at delta = %s, expected training error rate %s\n\n",
+      d.family_name(), FormatInput(q.target_risk()), FormatInput(q.failure_probability()),
+      FormatInput(q.expected_empirical_risk()));
   Table t({"figure", "value"});
   if (r.reachable()) {
     t.AddRow({"training examples needed", Count(r.sample_count())});
@@ -254,6 +291,10 @@ void PrintTraining(const v1::TrainingPlanRequest& q, const v1::PlanSamplesRespon
 int RunPlan(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
   if (args.empty()) return Usage(err, "", "say what to plan: holdout or training");
   const std::string sub = args[0];
+  if (sub == "--version") {
+    out << "riskbound " << EngineVersion() << "\n";
+    return kExitOk;
+  }
   if (sub == "--help" || sub == "-h" || sub == "help") {
     out << "usage: " << kPlanUsage << "\n\n"
         << "Sample-size planning: how many hold-out examples (plan holdout) or training examples\n"
@@ -271,7 +312,8 @@ int RunPlan(const std::vector<std::string>& args, std::ostream& out, std::ostrea
   if (auto code = StartCommand(
           absl::StrCat("plan ", sub), holdout ? kHoldoutUsage : kTrainingUsage,
           absl::StrCat(holdout ? kHoldoutSummary : kTrainingSummary, "\n\n", kExitText), specs,
-          std::vector<std::string>(args.begin() + 1, args.end()), out, err, &start)) {
+          std::vector<std::string>(args.begin() + 1, args.end()), out, err, &start,
+          holdout ? kHoldoutTerms : kTrainingTerms)) {
     return *code;
   }
 

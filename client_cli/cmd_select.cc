@@ -11,6 +11,7 @@
 #include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
+#include "client_cli/format.h"
 #include "client_cli/json_io.h"
 #include "client_cli/svg_plot.h"
 #include "client_cli/table.h"
@@ -40,6 +41,27 @@ constexpr char kSummary[] =
     "exit codes: 0 answered; 1 the plot file could not be written; 2 usage; 3 invalid input\n"
     "(field named); 4 server unreachable.";
 
+constexpr char kTerms[] =
+    "  *              the chosen candidate: the smallest bound (ties: the smaller capacity)\n"
+    "  field          the candidate's place in the request, structure[i], counted from 0 as\n"
+    "                 in the server's error messages and chosen_index\n"
+    "  VC dim h, ln|H|\n"
+    "                 the capacity of the candidate's class: how rich it is (VC dimension, or\n"
+    "                 natural log of the number of hypotheses)\n"
+    "  empirical      the candidate's training error rate\n"
+    "  penalty        bound minus empirical: what the bound adds for the capacity and the\n"
+    "                 sample size; rounded up\n"
+    "  bound          upper bound on the candidate's true error; rounded up\n"
+    "  delta used     the candidate's share of the failure probability (rounded up)\n"
+    "  weight         the candidate's fraction of delta, fixed before the data were seen\n"
+    "  delta          the probability that a bound is wrong; the confidence is 1 - delta\n"
+    "  union bound    all the candidates' bounds hold together with probability >= 1 - (sum\n"
+    "                 of their deltas), so the chosen one holds although it was picked by the\n"
+    "                 data\n"
+    "  vacuous        the bound is 1 or more: it says nothing\n"
+    "  fragile        another candidate's bound is within the fragility tolerance of the\n"
+    "                 chosen one: the data do not clearly separate them\n";
+
 std::vector<OptionSpec> Specs() {
   std::vector<OptionSpec> specs = {
       {"input", "FILE", "the SelectStructureRequest as JSON (- for stdin); required"},
@@ -60,38 +82,41 @@ std::string CapacityHeader(const v1::SelectStructureResponse& r) {
 
 std::string CapacityText(const v1::SelectStructureResponse& r, double capacity) {
   return r.capacity_measure() == "vc_dimension" ? absl::StrFormat("%.0f", capacity)
-                                                : absl::StrFormat("%.4g", capacity);
+                                                : FormatSignificant(capacity, 4, Rounding::kUp);
 }
 
 void PrintTable(const v1::SelectStructureResponse& r, std::ostream& out) {
   out << absl::StrFormat(
-      "Structural risk minimization with %s over %d candidates (delta = %g spread over them)\n\n",
-      r.family_name(), r.candidates_size(), r.requested_failure_probability());
-  Table table({"", "candidate", CapacityHeader(r), "empirical", "penalty", "bound", "delta used",
+      "Structural risk minimization with %s over %d candidates (delta = %s spread over them)\n\n",
+      r.family_name(), r.candidates_size(), FormatInput(r.requested_failure_probability()));
+  Table table({"", "field", "candidate", CapacityHeader(r), "empirical", "penalty", "bound", "delta used",
                "weight", "vacuous"});
   for (int i = 0; i < r.candidates_size(); ++i) {
     const v1::CandidateBound& c = r.candidates(i);
-    table.AddRow({static_cast<std::uint32_t>(i) == r.chosen_index() ? "*" : "", c.id(),
-                  CapacityText(r, c.capacity()), FormatProbability(c.empirical_risk()),
-                  FormatProbability(c.penalty()), FormatProbability(c.risk_upper_bound()),
-                  absl::StrFormat("%.4g", c.failure_probability()),
-                  absl::StrFormat("%.4f", c.delta_weight()), c.vacuous() ? "yes" : "no"});
+    table.AddRow({static_cast<std::uint32_t>(i) == r.chosen_index() ? "*" : "",
+                  absl::StrCat("structure[", i, "]"), c.id(),
+                  CapacityText(r, c.capacity()), FormatObserved(c.empirical_risk()),
+                  FormatUpper(c.penalty()), FormatUpper(c.risk_upper_bound()),
+                  FormatFailureProbability(c.failure_probability()),
+                  FormatSignificant(c.delta_weight(), 4, Rounding::kUp),
+                  c.vacuous() ? "yes" : "no"});
   }
   out << table.Render() << "\n";
   const v1::CandidateBound& chosen = r.candidates(static_cast<int>(r.chosen_index()));
   out << absl::StrFormat(
-      "Chosen (*): %s: true error <= %s with probability >= %g%s\n", r.chosen_id(),
-      FormatProbability(chosen.risk_upper_bound()), 1.0 - r.spent_failure_probability(),
+      "Chosen (*): %s (structure[%d]): true error <= %s with probability >= %s%s\n",
+      r.chosen_id(), r.chosen_index(),
+      FormatUpper(chosen.risk_upper_bound()), FormatConfidence(r.spent_failure_probability()),
       chosen.vacuous() ? " (vacuous: says nothing)" : "");
   if (r.fragile()) {
     out << absl::StrFormat(
-        "WARNING: fragile choice: %s within %g of the chosen bound; the data do not clearly "
+        "WARNING: fragile choice: %s within %s of the chosen bound; the data do not clearly "
         "separate them. Prefer the simpler candidate, or gather more data before relying on "
         "the choice.\n",
-        absl::StrJoin(r.within_tolerance_ids(), ", "), r.fragility_tolerance());
+        absl::StrJoin(r.within_tolerance_ids(), ", "), FormatInput(r.fragility_tolerance()));
   } else {
-    out << absl::StrFormat("Not fragile: no other candidate's bound is within %g.\n",
-                           r.fragility_tolerance());
+    out << absl::StrFormat("Not fragile: no other candidate's bound is within %s.\n",
+                           FormatInput(r.fragility_tolerance()));
   }
   out << "Delta accounting: " << r.delta_rule() << "\n";
   for (const std::string& note : r.notes()) out << "Note: " << note << "\n";
@@ -109,13 +134,14 @@ SrmPlot PlotOf(const v1::SelectStructureResponse& r) {
   if (r.delta_spread() == v1::DELTA_SPREAD_UNIFORM) weights = "equal weights 1/K";
   if (r.delta_spread() == v1::DELTA_SPREAD_INVERSE_SQUARE) weights = "weights 6/(pi^2 k^2)";
   plot.subtitle = absl::StrFormat(
-      "Chosen: %s, true error <= %.4f with probability >= %.4g%s.\n"
-      "Bound = empirical risk + capacity penalty, each at its share of delta = %g (%s).",
-      r.chosen_id(), chosen.risk_upper_bound(), 1.0 - r.spent_failure_probability(),
+      "Chosen: %s, true error <= %s with probability >= %s%s.\n"
+      "Bound = empirical risk + capacity penalty, each at its share of delta = %s (%s).",
+      r.chosen_id(), FormatUpper(chosen.risk_upper_bound()),
+      FormatConfidence(r.spent_failure_probability()),
       r.fragile() ? absl::StrCat("; FRAGILE: ", absl::StrJoin(r.within_tolerance_ids(), ", "),
-                                 " within ", absl::StrFormat("%g", r.fragility_tolerance()))
+                                 " within ", FormatInput(r.fragility_tolerance()))
                   : "",
-      r.requested_failure_probability(), weights);
+      FormatInput(r.requested_failure_probability()), weights);
   plot.capacity_label = r.capacity_measure() == "vc_dimension"
                             ? "capacity: VC dimension h of the class"
                             : "capacity: ln |H| of the class";
@@ -133,7 +159,7 @@ SrmPlot PlotOf(const v1::SelectStructureResponse& r) {
 int RunSelect(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
   const std::vector<OptionSpec> specs = Specs();
   CommandStart start;
-  if (auto code = StartCommand("select", kUsage, kSummary, specs, args, out, err, &start)) {
+  if (auto code = StartCommand("select", kUsage, kSummary, specs, args, out, err, &start, kTerms)) {
     return *code;
   }
   const std::optional<std::string> input = start.args.Get("input");

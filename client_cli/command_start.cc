@@ -13,11 +13,16 @@ int UsageError(std::ostream& err, const std::string& name, const std::string& me
 std::optional<int> StartCommand(const std::string& name, const std::string& usage,
                                 const std::string& summary, const std::vector<OptionSpec>& specs,
                                 const std::vector<std::string>& args, std::ostream& out,
-                                std::ostream& err, CommandStart* start) {
+                                std::ostream& err, CommandStart* start,
+                                const std::string& terms) {
   auto parsed = ParseArgs(specs, args);
   if (!parsed.ok()) return UsageError(err, name, std::string(parsed.status().message()));
   if (parsed->Has("help")) {
-    out << FormatHelp(usage, summary, specs);
+    out << FormatHelp(usage, summary, specs, terms);
+    return kExitOk;
+  }
+  if (parsed->Has("version")) {
+    out << "riskbound " << EngineVersion() << "\n";
     return kExitOk;
   }
   const std::string output = parsed->Get("output").value_or("table");

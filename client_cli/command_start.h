@@ -29,13 +29,15 @@ struct CommandStart {
 
 // StartCommand
 // Parses `args` against `specs` (which must include --output and the
-// ConnectionOptions()). Returns kExitOk after printing the help for --help,
+// ConnectionOptions()). Returns kExitOk after printing the help (with the
+// glossary `terms`) for --help or -h, or the engine version for --version,
 // kExitUsage after a usage error (bad flag, --output other than table|json,
 // bad --server/--timeout), or nullopt with *start filled to go on.
 std::optional<int> StartCommand(const std::string& name, const std::string& usage,
                                 const std::string& summary, const std::vector<OptionSpec>& specs,
                                 const std::vector<std::string>& args, std::ostream& out,
-                                std::ostream& err, CommandStart* start);
+                                std::ostream& err, CommandStart* start,
+                                const std::string& terms = "");
 
 // LoadJsonInput
 // Reads `path` (- for stdin) into `message` (protobuf JSON mapping, unknown

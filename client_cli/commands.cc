@@ -1,6 +1,7 @@
 #include "client_cli/commands.h"
 
 #include "absl/strings/str_format.h"
+#include "client_cli/args.h"
 #include "client_cli/exit_codes.h"
 
 namespace riskbound::cli {
@@ -14,6 +15,7 @@ constexpr char kOverview[] =
     "riskbound: certified upper bounds on a classifier's true error, from a riskbound-server.\n"
     "\n"
     "usage: riskbound <command> [options]      riskbound <command> --help\n"
+    "       riskbound --version                (the engine version)\n"
     "\n"
     "commands:\n";
 
@@ -26,6 +28,7 @@ constexpr char kExitCodes[] =
     "  4  server unreachable (unavailable, or no answer within --timeout)\n"
     "  5  plan: the target risk is unreachable (the reason is printed)\n"
     "  6  health: the server answered, but not SERVING\n"
+    "  7  the server refused the call for its limits (busy, or a request or answer too large)\n"
     "  10 gate: verdict HOLD (0 is PROMOTE)\n"
     "  11 gate: verdict REJECT\n"
     "\n"
@@ -60,6 +63,10 @@ int RunCli(const std::vector<std::string>& argv, std::ostream& out, std::ostream
   const std::string& name = argv[1];
   if (name == "--help" || name == "-h" || name == "help") {
     overview(out);
+    return kExitOk;
+  }
+  if (name == "--version") {
+    out << "riskbound " << EngineVersion() << "\n";
     return kExitOk;
   }
   for (const Command& c : Commands()) {

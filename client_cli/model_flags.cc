@@ -8,6 +8,8 @@
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
 #include "absl/strings/str_replace.h"
+#include "client_cli/format.h"
+#include "client_cli/names.h"
 
 namespace riskbound::cli {
 namespace {
@@ -27,20 +29,20 @@ constexpr KindWord kKindWords[] = {
      "--radius --margin [--dimension]"},
     {"boxes", v1::MODEL_KIND_AXIS_ALIGNED_BOXES, "axis-aligned boxes in R^d", "--dimension"},
     {"interval", v1::MODEL_KIND_INTERVAL, "one interval on the line", "(none)"},
-    {"intervals", v1::MODEL_KIND_UNION_OF_INTERVALS, "union of k intervals", "--intervals"},
-    {"stump", v1::MODEL_KIND_DECISION_STUMP, "decision stumps over d features", "--features"},
+    {"intervals", v1::MODEL_KIND_UNION_OF_INTERVALS, "union of k intervals", "--interval-count"},
+    {"stump", v1::MODEL_KIND_DECISION_STUMP, "decision stumps over d features", "--feature-count"},
     {"tree", v1::MODEL_KIND_DECISION_TREE, "decision tree, at most L leaves",
-     "--leaves --features"},
+     "--leaf-count --feature-count"},
     {"voted-ensemble", v1::MODEL_KIND_VOTED_ENSEMBLE, "weighted vote of T base classifiers",
-     "--members --member-vc"},
+     "--member-count --member-vc-dimension"},
     {"threshold-net", v1::MODEL_KIND_THRESHOLD_NETWORK, "net of linear threshold units",
-     "--widths | --parameters --units"},
+     "--layer-widths | --weight-count --unit-count"},
     {"relu", v1::MODEL_KIND_RELU_NETWORK, "net of ReLU units",
-     "--widths | --parameters --units --layers"},
+     "--layer-widths | --weight-count --unit-count --layer-count"},
     {"sigmoid-net", v1::MODEL_KIND_SIGMOID_NETWORK, "net of sigmoid units",
-     "--widths | --parameters --units"},
+     "--layer-widths | --weight-count --unit-count"},
     {"finite-class", v1::MODEL_KIND_FINITE_CLASS, "finite class fixed in advance",
-     "--hypotheses | --bits"},
+     "--model-hypothesis-count | --description-bits"},
     {"nearest-neighbour", v1::MODEL_KIND_NEAREST_NEIGHBOUR, "1-NN / k-NN (infinite VC)",
      "[--dimension]"},
     {"rbf-kernel", v1::MODEL_KIND_RBF_KERNEL_NO_MARGIN,
@@ -55,15 +57,15 @@ struct CountFlag {
 constexpr CountFlag kCountFlags[] = {
     {"dimension", &v1::ModelDescription::set_dimension},
     {"degree", &v1::ModelDescription::set_degree},
-    {"intervals", &v1::ModelDescription::set_interval_count},
-    {"features", &v1::ModelDescription::set_feature_count},
-    {"leaves", &v1::ModelDescription::set_leaf_count},
-    {"members", &v1::ModelDescription::set_member_count},
-    {"member-vc", &v1::ModelDescription::set_member_vc_dimension},
-    {"parameters", &v1::ModelDescription::set_weight_count},
-    {"units", &v1::ModelDescription::set_unit_count},
-    {"layers", &v1::ModelDescription::set_layer_count},
-    {"hypotheses", &v1::ModelDescription::set_hypothesis_count},
+    {"interval-count", &v1::ModelDescription::set_interval_count},
+    {"feature-count", &v1::ModelDescription::set_feature_count},
+    {"leaf-count", &v1::ModelDescription::set_leaf_count},
+    {"member-count", &v1::ModelDescription::set_member_count},
+    {"member-vc-dimension", &v1::ModelDescription::set_member_vc_dimension},
+    {"weight-count", &v1::ModelDescription::set_weight_count},
+    {"unit-count", &v1::ModelDescription::set_unit_count},
+    {"layer-count", &v1::ModelDescription::set_layer_count},
+    {"model-hypothesis-count", &v1::ModelDescription::set_hypothesis_count},
 };
 
 struct RealFlag {
@@ -73,7 +75,7 @@ struct RealFlag {
 constexpr RealFlag kRealFlags[] = {
     {"radius", &v1::ModelDescription::set_radius},
     {"margin", &v1::ModelDescription::set_margin},
-    {"bits", &v1::ModelDescription::set_description_bits},
+    {"description-bits", &v1::ModelDescription::set_description_bits},
 };
 
 std::string Normalize(absl::string_view name) {
@@ -88,11 +90,7 @@ std::optional<v1::ModelKind> ModelKindFromName(absl::string_view name) {
     if (n == k.word) return k.kind;
   }
   // The API spelling: MODEL_KIND_RELU_NETWORK, relu_network, relu-network.
-  for (const KindWord& k : kKindWords) {
-    const std::string api = Normalize(v1::ModelKind_Name(k.kind));  // model-kind-relu-network
-    if (n == api || absl::StrCat("model-kind-", n) == api) return k.kind;
-  }
-  return std::nullopt;
+  return ModelKindFromEnumName(name);
 }
 
 std::string ModelKindWord(v1::ModelKind kind) {
@@ -122,7 +120,9 @@ std::vector<OptionSpec> CapacityOptions() {
       {"hypothesis-count", "N", "capacity: number of hypotheses of a finite class"},
       {"log-hypothesis-count", "X", "capacity: ln of the number of hypotheses"},
       {"model", "KIND", "capacity: a model family with its parameter flags below, turned into a "
-                        "capacity by the server (kinds: `riskbound capacity --help`)"},
+                        "capacity by the server (capacity.model.kind; a CLI word such as relu or "
+                        "the enum name MODEL_KIND_RELU_NETWORK; kinds: `riskbound capacity --help`)",
+       false, {"model-kind"}},
   };
   for (OptionSpec& s : ModelParameterOptions()) {
     s.help = "with --model: " + s.help;
@@ -138,17 +138,17 @@ std::vector<OptionSpec> ModelParameterOptions() {
       {"degree", "P", "polynomial: total degree p (model.degree)"},
       {"radius", "R", "margin-linear: ||x|| <= R on the whole input distribution (model.radius)"},
       {"margin", "G", "margin-linear: margin half-width gamma, fixed in advance (model.margin)"},
-      {"intervals", "K", "intervals: number of intervals k (model.interval_count)"},
-      {"features", "D", "stump/tree: number of real features (model.feature_count)"},
-      {"leaves", "L", "tree: at most L leaves (model.leaf_count)"},
-      {"members", "T", "voted-ensemble: number of members T (model.member_count)"},
-      {"member-vc", "D", "voted-ensemble: VC dimension of the base class (model.member_vc_dimension)"},
-      {"widths", "W0,W1,..,1", "nets: layer widths, input first, output 1 (model.layer_widths)"},
-      {"parameters", "W", "nets: weights and biases W (model.weight_count)"},
-      {"units", "N", "nets: computation units, output included (model.unit_count)"},
-      {"layers", "L", "nets: computation layers, output included (model.layer_count)"},
-      {"hypotheses", "N", "finite-class: number of hypotheses |H| (model.hypothesis_count)"},
-      {"bits", "B", "finite-class: description length in bits, |H| <= 2^B (model.description_bits)"},
+      {"interval-count", "K", "intervals: number of intervals k (model.interval_count)", false, {"intervals"}},
+      {"feature-count", "D", "stump/tree: number of real features (model.feature_count)", false, {"features"}},
+      {"leaf-count", "L", "tree: at most L leaves (model.leaf_count)", false, {"leaves"}},
+      {"member-count", "T", "voted-ensemble: number of members T (model.member_count)", false, {"members"}},
+      {"member-vc-dimension", "D", "voted-ensemble: VC dimension of the base class (model.member_vc_dimension)", false, {"member-vc"}},
+      {"layer-widths", "W0,W1,..,1", "nets: layer widths, input first, output 1 (model.layer_widths)", false, {"widths"}},
+      {"weight-count", "W", "nets: weights and biases W (model.weight_count)", false, {"parameters"}},
+      {"unit-count", "N", "nets: computation units, output included (model.unit_count)", false, {"units"}},
+      {"layer-count", "L", "nets: computation layers, output included (model.layer_count)", false, {"layers"}},
+      {"model-hypothesis-count", "N", "finite-class: number of hypotheses |H| (model.hypothesis_count)", false, {"hypotheses"}},
+      {"description-bits", "B", "finite-class: description length in bits, |H| <= 2^B (model.description_bits)", false, {"bits"}},
   };
 }
 
@@ -173,17 +173,17 @@ std::optional<std::string> ModelFromFlags(v1::ModelKind kind, const ParsedArgs& 
     if (v->has_value()) (model->*f.set)(**v);
   }
   if (args.Has("no-bias")) model->set_with_bias(false);
-  if (args.Has("widths")) {
-    const std::vector<std::string> widths = args.GetList("widths");
+  if (args.Has("layer-widths")) {
+    const std::vector<std::string> widths = args.GetList("layer-widths");
     if (widths.empty()) {
-      return std::string("--widths: give the layer widths, input first and output 1 last, "
+      return std::string("--layer-widths: give the layer widths, input first and output 1 last, "
                          "e.g. 784,300,100,1");
     }
     for (std::size_t i = 0; i < widths.size(); ++i) {
       std::uint64_t w = 0;
       if (widths[i].empty() || widths[i][0] == '-' || !absl::SimpleAtoi(widths[i], &w)) {
-        return absl::StrCat("--widths: width ", i + 1, " is '", widths[i],
-                            "'; expected whole numbers >= 0 separated by commas");
+        return absl::StrCat("--layer-widths: model.layer_widths[", i, "] (counted from 0) is '",
+                            widths[i], "'; expected whole numbers >= 0 separated by commas");
       }
       model->add_layer_widths(w);
     }
@@ -191,13 +191,13 @@ std::optional<std::string> ModelFromFlags(v1::ModelKind kind, const ParsedArgs& 
   return std::nullopt;
 }
 
-std::string DescribeModel(const v1::ModelDescription& m) {
+std::string DescribeModel(const v1::ModelDescription& m, const std::string& kind_text) {
   std::vector<std::string> parts;
   if (m.has_dimension()) parts.push_back(absl::StrCat("d = ", m.dimension()));
   if (m.has_with_bias()) parts.push_back(m.with_bias() ? "with bias" : "no bias");
   if (m.has_degree()) parts.push_back(absl::StrCat("degree ", m.degree()));
-  if (m.has_radius()) parts.push_back(absl::StrFormat("R = %g", m.radius()));
-  if (m.has_margin()) parts.push_back(absl::StrFormat("gamma = %g", m.margin()));
+  if (m.has_radius()) parts.push_back(absl::StrCat("R = ", FormatInput(m.radius())));
+  if (m.has_margin()) parts.push_back(absl::StrCat("gamma = ", FormatInput(m.margin())));
   if (m.has_interval_count()) parts.push_back(absl::StrCat(m.interval_count(), " intervals"));
   if (m.has_feature_count()) parts.push_back(absl::StrCat(m.feature_count(), " features"));
   if (m.has_leaf_count()) parts.push_back(absl::StrCat(m.leaf_count(), " leaves"));
@@ -213,9 +213,9 @@ std::string DescribeModel(const v1::ModelDescription& m) {
   if (m.has_layer_count()) parts.push_back(absl::StrCat(m.layer_count(), " layers"));
   if (m.has_hypothesis_count()) parts.push_back(absl::StrCat("|H| = ", m.hypothesis_count()));
   if (m.has_description_bits()) {
-    parts.push_back(absl::StrFormat("%g description bits", m.description_bits()));
+    parts.push_back(absl::StrCat(FormatInput(m.description_bits()), " description bits"));
   }
-  std::string out = ModelKindWord(m.kind());
+  std::string out = kind_text.empty() ? ModelKindWord(m.kind()) : kind_text;
   if (!parts.empty()) absl::StrAppend(&out, " (", absl::StrJoin(parts, ", "), ")");
   return out;
 }

@@ -20,8 +20,8 @@
 namespace riskbound::cli {
 
 // ModelKindFromName
-// Returns the kind named by `name` (a CLI word or the API spelling, with '-'
-// or '_'), or nullopt.
+// Returns the kind named by `name` (a CLI word, or the enum name with or
+// without MODEL_KIND_, any case, '-' or '_'), or nullopt.
 std::optional<v1::ModelKind> ModelKindFromName(absl::string_view name);
 
 // ModelKindWord
@@ -59,8 +59,9 @@ std::optional<std::string> ModelFromFlags(v1::ModelKind kind, const ParsedArgs& 
 
 // DescribeModel
 // Returns the model in a few words for people: "relu (layer widths
-// 784,300,100,1)".
-std::string DescribeModel(const v1::ModelDescription& model);
+// 784,300,100,1)", the kind as `kind_text` (what the user typed) when not
+// empty, else as its CLI word.
+std::string DescribeModel(const v1::ModelDescription& model, const std::string& kind_text = "");
 
 }  // namespace riskbound::cli
 

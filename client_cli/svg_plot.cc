@@ -9,6 +9,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_split.h"
+#include "client_cli/format.h"
 
 namespace riskbound::cli {
 namespace {
@@ -245,12 +246,17 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
     const char* dash;
     double width;
     double (*value)(const SrmPoint&);
+    // The point's label: observed values to nearest, penalty and bound
+    // rounded up (format.h).
+    std::string (*label)(double);
   };
   const Curve curves[] = {
       {"curve-empirical", kEmpiricalColor, "", 2.0,
-       [](const SrmPoint& p) { return p.empirical_risk; }},
-      {"curve-penalty", kPenaltyColor, "7 4", 2.0, [](const SrmPoint& p) { return p.penalty; }},
-      {"curve-bound", kBoundColor, "", 2.8, [](const SrmPoint& p) { return p.upper_bound; }},
+       [](const SrmPoint& p) { return p.empirical_risk; }, FormatObserved},
+      {"curve-penalty", kPenaltyColor, "7 4", 2.0, [](const SrmPoint& p) { return p.penalty; },
+       FormatUpper},
+      {"curve-bound", kBoundColor, "", 2.8, [](const SrmPoint& p) { return p.upper_bound; },
+       FormatUpper},
   };
   for (const Curve& c : curves) {
     std::string pts;
@@ -267,7 +273,7 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
     for (const SrmPoint& p : plot.points) {
       absl::StrAppendFormat(&s, "    <circle cx=\"%s\" cy=\"%s\" r=\"3.2\"><title>%s: %s</title></circle>\n",
                             Num(x.to_pixel(p.capacity)), Num(y.to_pixel(c.value(p))),
-                            Escape(p.id), TickLabel(c.value(p)));
+                            Escape(p.id), c.label(c.value(p)));
     }
     absl::StrAppend(&s, "  </g>\n");
   }

@@ -32,9 +32,5 @@ std::string Table::Render() const {
   return out;
 }
 
-std::string FormatProbability(double p) {
-  if (p > 0 && p < 1e-6) return absl::StrFormat("%.3e", p);
-  return absl::StrFormat("%.6f", p);
-}
 
 }  // namespace riskbound::cli

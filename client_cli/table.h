@@ -1,4 +1,5 @@
 // Plain-text tables for people: left-aligned columns separated by two spaces.
+// Numbers in them come from format.h (outward rounding).
 #ifndef RISKBOUND_CLIENT_CLI_TABLE_H_
 #define RISKBOUND_CLIENT_CLI_TABLE_H_
 
@@ -20,10 +21,6 @@ class Table {
   std::vector<std::vector<std::string>> rows_;
 };
 
-// FormatProbability
-// Six decimals ("0.009936"); values below 1e-6 but above 0 in scientific
-// notation so they do not print as zero.
-std::string FormatProbability(double p);
 
 }  // namespace riskbound::cli
 

@@ -157,9 +157,40 @@ class CapacityCommandTest(unittest.TestCase):
     def test_help(self):
         code, out, _ = cli("capacity", "--help")
         self.assertEqual(code, 0)
-        for word in ("relu", "margin-linear", "nearest-neighbour", "--widths", "--leaves",
-                     "model.layer_widths"):
+        for word in ("relu", "margin-linear", "nearest-neighbour", "--layer-widths",
+                     "--leaf-count", "(also --widths)", "(also --leaves)", "model.layer_widths",
+                     "MODEL_KIND_RELU_NETWORK"):
             self.assertIn(word, out)
+        self.assertIn("upper bound", out.split("terms:")[1])
+
+    def test_kinds_by_word_and_enum_name_and_wire_flag_names(self):
+        # Source: bounds.md row 10.7 worked value: widths 10-32-32-1 -> 46111
+        # (relu_bound above evaluates the formula in Python).
+        self.assertEqual(relu_bound([10, 32, 32, 1])[1], 46111)
+        for kind in ("relu", "MODEL_KIND_RELU_NETWORK", "RELU_NETWORK", "relu_network",
+                     "relu-network"):
+            for flag in ("--layer-widths", "--widths"):
+                code, out, err = cli("capacity", kind, flag, "10,32,32,1", "--output", "json")
+                self.assertEqual(code, 0, (kind, flag, err))
+                self.assertEqual(int(json.loads(out)["estimate"]["vcDimensionUint64"]), 46111)
+        # The table names the kind as the user typed it, never an internal name.
+        code, out, err = cli("capacity", "relu", "--layer-widths", "10,32,32,1")
+        self.assertEqual(code, 0, err)
+        self.assertTrue(out.startswith("Capacity of relu ("), out)
+        self.assertNotIn("relu_network", out)
+        code, out, err = cli("capacity", "MODEL_KIND_RELU_NETWORK", "--layer-widths", "10,32,32,1")
+        self.assertTrue(out.startswith("Capacity of MODEL_KIND_RELU_NETWORK ("), out)
+        # A bad width is named by its 0-based wire path only.
+        code, _, err = cli("capacity", "relu", "--layer-widths", "10,x,1")
+        self.assertEqual(code, 2)
+        self.assertIn("model.layer_widths[1]", err)
+        self.assertNotIn("width 2", err)
+        # A tree by the wire names of its fields and by the old spellings:
+        # the same request, the same answer.
+        a = cli("capacity", "tree", "--leaf-count", "8", "--feature-count", "5", "--output", "json")
+        b = cli("capacity", "DECISION_TREE", "--leaves", "8", "--features", "5", "--output", "json")
+        self.assertEqual(a[0], 0, a[2])
+        self.assertEqual(json.loads(a[1])["estimate"], json.loads(b[1])["estimate"])
         code, out, _ = cli("--help")
         self.assertIn("capacity", out)
 

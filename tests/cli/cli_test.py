@@ -13,9 +13,10 @@ import harness
 
 
 def cli(*args, stdin=None):
-    # `riskbound families` and --help need no server.
+    # --help, -h and --version need no server.
     return harness.run_cli(*args, stdin=stdin,
-                           server=bool(args) and args[0] not in ("--help", "families"))
+                           server=bool(args) and args[0] not in ("--help", "-h", "--version")
+                           and "-h" not in args and "--version" not in args)
 
 
 class NewEvidenceKindsTest(unittest.TestCase):
@@ -173,10 +174,188 @@ class CertifyCommandTest(unittest.TestCase):
         self.assertIn("exit codes", out)
         code, out, _ = cli("certify", "--help")
         self.assertEqual(code, 0)
-        self.assertIn("--delta", out)
-        code, out, _ = cli("families")
+        self.assertIn("--failure-probability D", out)
+        self.assertIn("(also --delta)", out)
+        code, short, _ = cli("certify", "-h")
         self.assertEqual(code, 0)
+        self.assertEqual(short, out)
+        code, out, err = cli("families")
+        self.assertEqual(code, 0, err)
         self.assertIn("Clopper & Pearson (1934)", out)
+        self.assertIn("holdout-kl  (BOUND_FAMILY_HOLDOUT_KL_CHERNOFF)", out)
+
+
+class OutwardRoundingTest(unittest.TestCase):
+    """Issue 12 item 1: what the table prints claims no more than was proven."""
+
+    def test_zero_errors_in_1500_prints_0_001996(self):
+        # Source: Clopper & Pearson 1934, closed form for k = 0:
+        # 1 - 0.05^(1/1500) = 0.0019951618622789857; scipy.stats.beta.ppf(0.95, 1, 1500)
+        # through /usr/bin/python3 gives the same to 15 digits.
+        from scipy.stats import beta
+        exact = beta.ppf(0.95, 1, 1500)
+        self.assertEqual(harness.up6(exact), "0.001996")
+        code, out, err = cli("certify", "--errors", "0", "--samples", "1500")
+        self.assertEqual(code, 0, err)
+        self.assertIn("Tightest: holdout-binomial: true error <= 0.001996 with probability >= 0.95",
+                      out)
+        self.assertNotIn("0.001995 ", out.split("Tightest")[1].splitlines()[0])
+        row = [l for l in out.splitlines() if l.startswith("holdout-binomial")][0].split()
+        self.assertEqual(row[1], "0.001996")
+
+    def test_every_table_cell_is_rounded_outward(self):
+        args = ("certify", "--errors", "37", "--samples", "1300", "--family", "all")
+        code, out, err = cli(*args, "--output", "json")
+        self.assertEqual(code, 0, err)
+        doc = json.loads(out)
+        code, table, err = cli(*args)
+        self.assertEqual(code, 0, err)
+        rows = {l.split()[0]: l.split() for l in table.splitlines()
+                if l.split() and l.split()[0] in {c["familyName"] for c in doc["certificates"]}}
+        self.assertEqual(len(rows), len(doc["certificates"]))
+        for c in doc["certificates"]:
+            row = rows[c["familyName"]]
+            self.assertEqual(row[1], harness.up6(c["riskUpperBound"]), row)
+            if "riskLowerBound" in c:
+                self.assertEqual(row[2], harness.down6(c["riskLowerBound"]), row)
+            self.assertEqual(row[4], harness.up6(c["penalty"]), row)
+            self.assertEqual(row[5], harness.up_sig(c["failureProbability"]), row)
+
+    def test_tiny_delta_never_reads_as_certainty(self):
+        code, out, err = cli("certify", "--errors", "0", "--samples", "100000",
+                             "--failure-probability", "1e-9")
+        self.assertEqual(code, 0, err)
+        self.assertIn("with probability >= 0.999999999", out)
+        self.assertIn("confidence >= 0.999999999, delta = 1e-09", out)
+        self.assertNotIn(">= 1 ", out)
+        self.assertNotIn("100%", out)
+        # Many families at 1e-9: whatever the server spends, the confidence
+        # printed is below 1 - spent (rounded down), never 1.
+        code, out, err = cli("certify", "--errors", "0", "--samples", "100000",
+                             "--failure-probability", "1e-9", "--family", "all")
+        self.assertEqual(code, 0, err)
+        line = [l for l in out.splitlines() if l.startswith("Tightest")][0]
+        printed = line.split("probability >= ")[1].split()[0]
+        self.assertTrue(printed.startswith("0.99999999"), line)
+        self.assertLessEqual(float(printed), 1 - 1e-9)
+
+
+class OneSpellingTest(unittest.TestCase):
+    """Issue 11: each flag named after its wire field; old spellings are aliases;
+    families and model kinds by CLI word or enum name."""
+
+    def json_of(self, *args):
+        code, out, err = cli("certify", *args, "--output", "json")
+        self.assertEqual(code, 0, (args, err))
+        return json.loads(out)
+
+    def test_wire_names_and_aliases_give_the_same_answer(self):
+        new = self.json_of("--holdout-error-count", "7", "--holdout-sample-count", "900",
+                           "--failure-probability", "0.01", "--families", "holdout-kl")
+        old = self.json_of("--errors", "7", "--samples", "900", "--delta", "0.01",
+                           "--family", "holdout-kl")
+        self.assertEqual(new["tightest"]["riskUpperBound"], old["tightest"]["riskUpperBound"])
+        self.assertEqual(new["deltaAccounting"]["requestedFailureProbability"], 0.01)
+        # Source: kl (Chernoff) inversion, Langford 2005: independently by
+        # bisection of n kl(7/900 || p) = ln(1/0.01) (brute force, Python).
+        import math
+        def kl(q, p):
+            return q * math.log(q / p) + (1 - q) * math.log((1 - q) / (1 - p))
+        lo, hi = 7 / 900, 1.0 - 1e-15
+        for _ in range(200):
+            mid = (lo + hi) / 2
+            lo, hi = (mid, hi) if 900 * kl(7 / 900, mid) <= math.log(1 / 0.01) else (lo, mid)
+        self.assertAlmostEqual(new["tightest"]["riskUpperBound"], hi, places=9)
+
+    def test_alias_and_name_together_is_a_usage_error(self):
+        code, _, err = cli("certify", "--errors", "1", "--holdout-error-count", "1",
+                           "--samples", "10")
+        self.assertEqual(code, 2)
+        self.assertIn("--holdout-error-count given twice", err)
+
+    def test_families_by_word_and_enum_name(self):
+        for name in ("holdout-kl", "BOUND_FAMILY_HOLDOUT_KL_CHERNOFF", "HOLDOUT_KL_CHERNOFF",
+                     "holdout_kl_chernoff", "holdout-kl-chernoff"):
+            doc = self.json_of("--errors", "3", "--samples", "400", "--families", name)
+            self.assertEqual([c["family"] for c in doc["certificates"]],
+                             ["BOUND_FAMILY_HOLDOUT_KL_CHERNOFF"], name)
+        code, _, err = cli("certify", "--errors", "3", "--samples", "400", "--family", "kl")
+        self.assertEqual(code, 2)
+        self.assertIn("unknown family 'kl'", err)
+        self.assertIn("holdout-binomial", err)
+
+    def test_json_files_take_every_spelling(self):
+        for name in ("holdout-kl", "BOUND_FAMILY_HOLDOUT_KL_CHERNOFF", "holdout_kl_chernoff",
+                     "HOLDOUT_KL_CHERNOFF"):
+            request = {"evidence": {"holdout": {"errorCount": "20", "sampleCount": "1000"}},
+                       "failureProbability": 0.05, "listed": {"families": [name]}}
+            code, out, err = cli("certify", "--input", "-", "--output", "json",
+                                 stdin=json.dumps(request))
+            self.assertEqual(code, 0, (name, err))
+            doc = json.loads(out)
+            self.assertEqual(doc["certificates"][0]["family"], "BOUND_FAMILY_HOLDOUT_KL_CHERNOFF")
+            # Source: formula sheet row 4.3: n = 1000, k = 20 -> kl 0.032813.
+            self.assertAlmostEqual(doc["tightest"]["riskUpperBound"], 0.032813, places=6)
+        # A model kind by its CLI word inside a file; an id that happens to be a
+        # family word is left alone.
+        request = {"failureProbability": 0.05,
+                   "evidence": {"training": {"errorCount": "10", "sampleCount": "5000",
+                                             "capacity": {"model": {"kind": "halfspace",
+                                                                    "dimension": "9"}}}}}
+        code, out, err = cli("certify", "--input", "-", "--output", "json",
+                             stdin=json.dumps(request))
+        self.assertEqual(code, 0, err)
+        self.assertIn("vc-additive", {c["familyName"] for c in json.loads(out)["certificates"]})
+        code, _, err = cli("certify", "--input", "-",
+                           stdin=json.dumps({"evidence": {"holdout": {"errorCount": 1,
+                                                                      "sampleCount": 10}},
+                                             "listed": {"families": ["no-such"]}}))
+        self.assertEqual(code, 3)
+        self.assertIn("no-such", err)
+
+    def test_bounded_loss_heading_names_the_loss(self):
+        code, out, err = cli("certify", "--mean-loss", "0.3", "--loss-sample-count", "800",
+                             "--loss-range", "0,2", "--families", "bounded-hoeffding")
+        self.assertEqual(code, 0, err)
+        self.assertNotIn("Certificates on the true error", out)
+        self.assertTrue(out.startswith("Upper bounds on the expected loss, in the loss's units"), out)
+        self.assertIn("expected loss <=", out)
+
+    def test_version_everywhere(self):
+        code, families, err = cli("families", "--output", "json")
+        self.assertEqual(code, 0, err)
+        doc = json.loads(families)
+        version = doc["engineVersion"]
+        self.assertTrue(version)
+        for args in (("--version",), ("certify", "--version"), ("gate", "--version"),
+                     ("plan", "--version"), ("health", "--version")):
+            code, out, err = cli(*args)
+            self.assertEqual(code, 0, (args, err))
+            self.assertEqual(out, f"riskbound {version}\n", args)
+
+    def test_families_json(self):
+        code, out, err = cli("families", "--output", "json")
+        self.assertEqual(code, 0, err)
+        doc = json.loads(out)
+        by_name = {f["familyName"]: f for f in doc["families"]}
+        self.assertEqual(by_name["holdout-kl"]["family"], "BOUND_FAMILY_HOLDOUT_KL_CHERNOFF")
+        self.assertIn("Clopper", by_name["holdout-binomial"]["source"])
+        # Every value of the enum but UNSPECIFIED, each once: the family
+        # table is riskbound.v1.BoundFamily (proto/riskbound/v1/common.proto).
+        import re
+        with open(harness.PROTO_COMMON) as f:
+            values = set(re.findall(r"^\s*(BOUND_FAMILY_\w+) = ", f.read(), re.M))
+        values.discard("BOUND_FAMILY_UNSPECIFIED")
+        self.assertEqual({f["family"] for f in doc["families"]}, values)
+        self.assertEqual(len(doc["families"]), len(values))
+
+    def test_terms_are_explained_in_help(self):
+        code, out, _ = cli("certify", "--help")
+        self.assertEqual(code, 0)
+        terms = out.split("terms:")[1]
+        for word in ("upper", "lower", "empirical", "penalty", "delta used", "union bound",
+                     "vacuous", "tightest", "capacity", "failure probability"):
+            self.assertIn(word, terms)
 
 
 if __name__ == "__main__":

@@ -113,8 +113,24 @@ class GateVerdictTest(unittest.TestCase):
         # Same counts, no tolerance: the upper difference limit is above 0.
         code, out, err = gate(policy(), candidate(15, 1000), paired(5, 25, 10, 1000))
         self.assertEqual(code, 10, err)
-        self.assertIn("McNemar exact one-sided p", out)
+        self.assertIn("McNemar exact one-sided p-value", out)
         self.assertIn("candidate - champion error, upper bound", out)
+        # What a p-value is, and what it is not.
+        self.assertIn("if the two models were equally good, the probability of a split", out)
+        self.assertIn("it is not the probability that it is better", out)
+        self.assertNotIn("(candidate better)", out)
+        # Printed outward: the p-value up, the difference bounds up / down.
+        code, js, err = gate(policy(), candidate(15, 1000), paired(5, 25, 10, 1000),
+                             "--output", "json")
+        doc = json.loads(js)
+        row = [l for l in out.splitlines() if "McNemar exact one-sided p-value (see below)" in l][0]
+        self.assertIn(harness.up_sig(expected_p), row.split())
+        upper = [l for l in out.splitlines() if "champion error, upper bound" in l][0]
+        lower = [l for l in out.splitlines() if "champion error, lower bound" in l][0]
+        def signed(text):
+            return text if text.startswith("-") else "+" + text
+        self.assertIn(signed(harness.up6(doc["differenceUpperBound"])), upper.split())
+        self.assertIn(signed(harness.down6(doc["differenceLowerBound"])), lower.split())
 
     def test_worse_than_champion_rejects(self):
         # Fixture gate_paired_boundary.csv (scipy Clopper-Pearson at delta/8):
@@ -143,6 +159,130 @@ class GateVerdictTest(unittest.TestCase):
         code, out, err = gate(policy(max_risk=0.1, maxRegression=0.02), candidate(30, 1000),
                               unpaired)
         self.assertEqual(code, 10, err)
+
+
+def gate_flags(*args, server=None):
+    """Runs `riskbound gate` with the given words (flags and/or files)."""
+    cmd = [harness.ARGS.cli, "gate", *args, "--server", server or harness.ADDRESS]
+    p = subprocess.run(cmd, capture_output=True, text=True, timeout=60)
+    return p.returncode, p.stdout, p.stderr
+
+
+class GateInlineFlagsTest(unittest.TestCase):
+    """A CI step needs no files: every common field is a flag, and a flag
+    overrides the same field of a file. The audit digest (SHA-256 of the
+    canonical request) shows the request is the same either way."""
+
+    def digest(self, code, out, err):
+        self.assertIn(code, (0, 10, 11), err)
+        return json.loads(out)["audit"]["requestSha256"]
+
+    def test_flags_alone_equal_the_files(self):
+        docs = (policy(allowedFamilies=["BOUND_FAMILY_HOLDOUT_EXACT_BINOMIAL",
+                                        "BOUND_FAMILY_HOLDOUT_KL_CHERNOFF"],
+                       minHoldoutSampleCount="1000", maxRegression=0.005,
+                       planPassProbability=0.9),
+                candidate(20, 2000), paired(12, 15, 8, 2000))
+        from_files = gate(*docs, "--output", "json")
+        from_flags = gate_flags(
+            "--max-risk", "0.05", "--failure-probability", "0.05",
+            "--allowed-families", "holdout-binomial,BOUND_FAMILY_HOLDOUT_KL_CHERNOFF",
+            "--min-holdout-sample-count", "1000", "--max-regression", "0.005",
+            "--plan-pass-probability", "0.9",
+            "--candidate-id", "damage-screen-v8", "--holdout-error-count", "20",
+            "--holdout-sample-count", "2000",
+            "--champion-id", "damage-screen-v7", "--both-wrong-count", "12",
+            "--only-champion-wrong-count", "15", "--only-challenger-wrong-count", "8",
+            "--output", "json")
+        self.assertEqual(self.digest(*from_flags), self.digest(*from_files))
+        self.assertEqual(json.loads(from_flags[1])["verdict"],
+                         json.loads(from_files[1])["verdict"])
+        # The short aliases build the same request.
+        aliased = gate_flags("--max-risk", "0.05", "--delta", "0.05",
+                             "--allowed-families", "holdout-binomial,holdout-kl",
+                             "--min-holdout-sample-count", "1000", "--max-regression", "0.005",
+                             "--plan-pass-probability", "0.9",
+                             "--candidate-id", "damage-screen-v8", "--errors", "20",
+                             "--sample-count", "2000",
+                             "--champion-id", "damage-screen-v7", "--both-wrong-count", "12",
+                             "--only-champion-wrong-count", "15",
+                             "--only-challenger-wrong-count", "8", "--output", "json")
+        self.assertEqual(self.digest(*aliased), self.digest(*from_files))
+        # A policy file may name the families by their CLI words too.
+        worded = dict(docs[0], allowedFamilies=["holdout-binomial", "holdout_kl_chernoff"])
+        self.assertEqual(self.digest(*gate(worded, docs[1], docs[2], "--output", "json")),
+                         self.digest(*from_files))
+
+    def test_verdicts_from_flags(self):
+        # Same boundary as test_exit_codes_each_side_of_the_risk_boundaries
+        # (scipy Clopper-Pearson, fixture gate_risk_boundary.csv).
+        for errors, want in ((36, 0), (37, 10), (65, 11)):
+            code, out, err = gate_flags("--max-risk", "0.05", "--failure-probability", "0.05",
+                                        "--candidate-id", "m", "--holdout-error-count",
+                                        str(errors), "--holdout-sample-count", "1000")
+            self.assertEqual(code, want, (errors, err))
+
+    def test_a_flag_overrides_its_field_of_a_file(self):
+        # The file says max_risk 0.05 (36/1000 passes, 37 holds); the flag
+        # raises it to 0.5, the same request as a file with 0.5.
+        strict, loose = policy(max_risk=0.05), policy(max_risk=0.5)
+        code, out, err = gate(strict, candidate(37, 1000), None, "--output", "json")
+        self.assertEqual(code, 10, err)
+        overridden = gate(strict, candidate(37, 1000), None, "--max-risk", "0.5",
+                          "--output", "json")
+        self.assertEqual(overridden[0], 0, overridden[2])
+        self.assertEqual(self.digest(*overridden),
+                         self.digest(*gate(loose, candidate(37, 1000), None, "--output", "json")))
+        # The candidate's counts and id override the candidate file.
+        overridden = gate(strict, candidate(90, 1000), None, "--holdout-error-count", "36",
+                          "--candidate-id", "other", "--output", "json")
+        self.assertEqual(overridden[0], 0, overridden[2])
+        self.assertEqual(self.digest(*overridden),
+                         self.digest(*gate(strict, candidate(36, 1000, "other"), None,
+                                           "--output", "json")))
+
+    def test_flag_usage_errors(self):
+        for args, words in (
+                (("--max-risk", "0.05", "--candidate-id", "m", "--holdout-error-count", "1",
+                  "--holdout-sample-count", "10"), "--failure-probability"),
+                (("--max-risk", "0.05", "--delta", "0.05", "--holdout-error-count", "1",
+                  "--holdout-sample-count", "10"), "--candidate-id"),
+                (("--max-risk", "0.05", "--delta", "0.05", "--candidate-id", "m",
+                  "--holdout-error-count", "1"), "go together"),
+                (("--max-risk", "0.05", "--delta", "0.05", "--candidate-id", "m",
+                  "--holdout-error-count", "1", "--holdout-sample-count", "10",
+                  "--both-wrong-count", "1"), "go together"),
+                (("--max-risk", "0.05", "--delta", "0.05", "--candidate-id", "m",
+                  "--holdout-error-count", "1", "--holdout-sample-count", "10",
+                  "--champion-id", "c"), "paired counts"),
+                (("--max-risk", "0.05", "--delta", "0.05", "--candidate-id", "m",
+                  "--holdout-error-count", "1", "--holdout-sample-count", "10",
+                  "--allowed-families", "no-such"), "unknown family 'no-such'"),
+                (("--max-risk", "x", "--delta", "0.05", "--candidate-id", "m"), "--max-risk")):
+            code, out, err = gate_flags(*args)
+            self.assertEqual(code, 2, (args, err))
+            self.assertIn(words, err, args)
+            self.assertEqual(out, "")
+        # A bad value the server checks is still named by its field.
+        code, _, err = gate_flags("--max-risk", "0.05", "--delta", "2", "--candidate-id", "m",
+                                  "--holdout-error-count", "1", "--holdout-sample-count", "10")
+        self.assertEqual(code, 3, err)
+        self.assertIn("policy.failure_probability", err)
+
+    def test_table_rounds_outward(self):
+        code, js, err = gate_flags("--max-risk", "0.05", "--delta", "0.05", "--candidate-id", "m",
+                                   "--holdout-error-count", "37", "--holdout-sample-count", "1000",
+                                   "--output", "json")
+        doc = json.loads(js)
+        code, out, err = gate_flags("--max-risk", "0.05", "--delta", "0.05", "--candidate-id", "m",
+                                    "--holdout-error-count", "37", "--holdout-sample-count",
+                                    "1000")
+        self.assertEqual(code, 10, err)
+        upper = [l for l in out.splitlines() if "true error, upper bound" in l][0]
+        self.assertIn(harness.up6(doc["riskCertificate"]["riskUpperBound"]), upper.split())
+        lower = [l for l in out.splitlines() if "true error, lower bound" in l][0]
+        self.assertIn(harness.down6(doc["riskLowerBound"]), lower.split())
+        self.assertIn("confidence >= 0.95 (delta = 0.05)", out)
 
 
 class GateDigestTest(unittest.TestCase):
@@ -255,6 +395,7 @@ class GateInvalidInputTest(unittest.TestCase):
         p = subprocess.run([harness.ARGS.cli, "gate", "--candidate", FILES.write(candidate(1, 10))],
                            capture_output=True, text=True, timeout=60)
         self.assertEqual(p.returncode, 2)
+        self.assertIn("--max-risk", p.stderr)
         self.assertIn("--policy", p.stderr)
         code, _, err = gate(policy(), candidate(3, 1000), None, "--timeout", "2",
                             server=f"127.0.0.1:{harness.free_port_nobody_listens_on()}")

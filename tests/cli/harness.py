@@ -10,6 +10,7 @@ Usage in a test module:
                                   # runs the module's unittest cases, stops it
 """
 import argparse
+import decimal
 import os
 import signal
 import socket
@@ -22,6 +23,9 @@ import unittest
 # Filled by main(): the parsed arguments and the server's "127.0.0.1:PORT".
 ARGS = None
 ADDRESS = None
+# The proto file that defines BoundFamily (for tests that walk the enum).
+PROTO_COMMON = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", "proto",
+                            "riskbound", "v1", "common.proto")
 
 
 def start_server(binary):
@@ -51,10 +55,40 @@ def run_cli(*args, stdin=None, server=True, timeout=60):
     """Runs the CLI; adds --server ADDRESS unless server=False, --help is asked
     or the caller gave --server. Returns (exit code, stdout, stderr)."""
     cmd = [ARGS.cli] + list(args)
-    if server and "--help" not in args and "--server" not in args:
+    if server and "--help" not in args and "-h" not in args and "--server" not in args:
         cmd += ["--server", ADDRESS]
     p = subprocess.run(cmd, input=stdin, capture_output=True, text=True, timeout=timeout)
     return p.returncode, p.stdout, p.stderr
+
+
+def _outward(x, up):
+    """x's shortest decimal (Python's repr, the same digits the CLI starts
+    from) rounded to six decimals, up or down, as the CLI prints a risk.
+    Independent of the CLI's C++ formatter: Python's decimal module."""
+    d = decimal.Decimal(repr(float(x)))
+    q = d.quantize(decimal.Decimal("0.000001"),
+                   rounding=decimal.ROUND_CEILING if up else decimal.ROUND_FLOOR)
+    return f"{q:.6f}"
+
+
+def up6(x):
+    """An upper bound as the CLI prints it: six decimals, rounded up."""
+    return _outward(x, True)
+
+
+def down6(x):
+    """A lower bound as the CLI prints it: six decimals, rounded down."""
+    return _outward(x, False)
+
+
+def up_sig(x, digits=4):
+    """A failure probability as the CLI prints it: `digits` significant
+    digits rounded up, trailing zeros dropped (plain decimal notation only)."""
+    d = decimal.Decimal(repr(float(x)))
+    exp = d.adjusted() - (digits - 1)
+    q = d.quantize(decimal.Decimal(1).scaleb(exp), rounding=decimal.ROUND_CEILING)
+    text = format(q.normalize(), "f")
+    return text
 
 
 def main(extra_arguments=()):

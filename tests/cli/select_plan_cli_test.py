@@ -69,7 +69,10 @@ class SelectCommandTest(unittest.TestCase):
         chosen = bounds.index(min(bounds))
         self.assertEqual(structure["structure"][chosen]["id"], "late-lin-59f")
         self.assertTrue(0 < chosen < len(bounds) - 1)
-        self.assertIn(f"{bounds[chosen]:.6f}", starred[0])
+        self.assertIn(harness.up6(bounds[chosen]), starred[0])  # rounded up
+        # Positions are the wire's, counted from 0: structure[chosen] = chosenIndex.
+        self.assertEqual(starred[0].split()[1], f"structure[{chosen}]")
+        self.assertIn(f"Chosen (*): late-lin-59f (structure[{chosen}])", out)
 
         root = tree.getroot()
         self.assertEqual(root.tag, SVG + "svg")
@@ -126,7 +129,7 @@ class SelectCommandTest(unittest.TestCase):
             texts = " ".join("".join(t.itertext()) for t in root.iter(f"{SVG}text"))
             self.assertIn("fragile", texts)
             # Source: formula sheet section 1, both at eta = .05/2.
-            self.assertIn(f"{vc_bound(300, 8000, 30, 0.025):.6f}", out)
+            self.assertIn(harness.up6(vc_bound(300, 8000, 30, 0.025)), out)  # rounded up
 
     def test_exit_codes(self):
         bad = {"family": "BOUND_FAMILY_VC_ADDITIVE", "failure_probability": 0.05,
@@ -193,6 +196,39 @@ class PlanCommandTest(unittest.TestCase):
         for word in ("hold-out examples needed", "601", "errors tolerated",
                      "size if no error at all occurs", "Rule:", "Cautions:"):
             self.assertIn(word, out)
+        # P(pass) is printed rounded down (4 decimals), never above what holds.
+        import decimal
+        pass_at_plan = decimal.Decimal(repr(doc["holdout"]["passProbabilityAtPlan"])).quantize(
+            decimal.Decimal("0.0001"), rounding=decimal.ROUND_FLOOR)
+        row = [l for l in out.splitlines() if l.startswith("P(pass)")][0]
+        self.assertEqual(row.split()[-1], str(pass_at_plan))
+
+    def test_plan_flags_named_after_wire_fields(self):
+        # --failure-probability / --held-sample-count are the wire names;
+        # --delta / --samples-held are aliases: the same request, the same plan.
+        code, new, err = self.plan_json("holdout", "--target-risk", "0.05", "--expected-risk",
+                                        "0.03", "--failure-probability", "0.05",
+                                        "--held-sample-count", "250")
+        self.assertEqual(code, 0, err)
+        code, old, err = self.plan_json("holdout", "--target-risk", "0.05", "--expected-risk",
+                                        "0.03", "--delta", "0.05", "--samples-held", "250")
+        self.assertEqual(code, 0, err)
+        self.assertEqual(new, old)
+        # training: expected_empirical_risk is the field; --expected-risk its alias.
+        code, new, err = self.plan_json("training", "--vc-dimension", "10",
+                                        "--expected-empirical-risk", "0.02",
+                                        "--target-risk", "0.2", "--family", "VC_ADDITIVE")
+        self.assertEqual(code, 0, err)
+        code, old, err = self.plan_json("training", "--vc-dimension", "10", "--expected-risk",
+                                        "0.02", "--target-risk", "0.2", "--family", "vc-additive")
+        self.assertEqual(code, 0, err)
+        self.assertEqual(new["sampleCount"], old["sampleCount"])
+        self.assertEqual(new["training"]["family"], "BOUND_FAMILY_VC_ADDITIVE")
+        code, out, err = cli("plan", "holdout", "-h")
+        self.assertEqual(code, 0)
+        self.assertIn("--held-sample-count N", out)
+        self.assertIn("(also --samples-held)", out)
+        self.assertIn("P(pass)", out.split("terms:")[1])
 
     def test_training_plans_and_comparisons(self):
         # Source: brute-force scan in fixture vc_invert.csv (scipy; formula sheet

@@ -1,0 +1,38 @@
+# Fails when the CLI links the math engine or includes one of its headers:
+# riskbound_core in a target_link_libraries call of client_cli/CMakeLists.txt,
+# or an #include of service/core/ in any file under client_cli/.
+file(READ ${CLI_DIR}/CMakeLists.txt cmake_text)
+# Every target_link_libraries( ... ) call, comments dropped.
+string(REGEX REPLACE "#[^\n]*" "" cmake_text "${cmake_text}")
+string(REGEX MATCHALL "target_link_libraries[ \t]*\\([^)]*\\)" link_calls "${cmake_text}")
+list(LENGTH link_calls n_calls)
+if(n_calls EQUAL 0)
+  message(FATAL_ERROR "no target_link_libraries call found in ${CLI_DIR}/CMakeLists.txt")
+endif()
+set(bad "")
+foreach(call IN LISTS link_calls)
+  if(call MATCHES "riskbound_core")
+    list(APPEND bad "CMakeLists.txt links riskbound_core: ${call}")
+  endif()
+endforeach()
+file(GLOB_RECURSE cli_files ${CLI_DIR}/*.h ${CLI_DIR}/*.cc)
+foreach(f IN LISTS cli_files)
+  file(STRINGS ${f} lines REGEX "#include [<\"]service/")
+  if(lines)
+    list(APPEND bad "${f}: ${lines}")
+  endif()
+endforeach()
+# The link line the build actually uses (the Makefile generator writes it to
+# link.txt; checked when present).
+if(LINK_TXT AND EXISTS ${LINK_TXT})
+  file(READ ${LINK_TXT} link_line)
+  if(link_line MATCHES "riskbound_core|service/core")
+    list(APPEND bad "the riskbound link line names the core: ${LINK_TXT}")
+  endif()
+  set(link_note "and the link line ${LINK_TXT}")
+endif()
+if(bad)
+  message(FATAL_ERROR "the CLI must be only a client of riskbound-server:\n${bad}")
+endif()
+list(LENGTH cli_files n)
+message(STATUS "cli_is_only_a_client: ${n_calls} link calls, ${n} files ${link_note} checked")
