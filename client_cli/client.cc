@@ -7,7 +7,8 @@
 #include "client_cli/exit_codes.h"
 #include "grpcpp/create_channel.h"
 #include "grpcpp/security/credentials.h"
-#include "riskbound/v1/common.pb.h"
+#include "google/rpc/error_details.pb.h"
+#include "google/rpc/status.pb.h"
 
 namespace riskbound::cli {
 
@@ -81,11 +82,13 @@ int ReportRpcError(const grpc::Status& status, const ClientOptions& options, std
         << "): " << status.error_message() << "\n";
     return code;
   }
-  v1::ErrorStatus detail;
-  v1::FieldViolations violations;
+  // The standard error details: a google.rpc.Status whose details hold a
+  // google.rpc.BadRequest (found by its type URL).
+  google::rpc::Status detail;
+  google::rpc::BadRequest violations;
   if (!status.error_details().empty() && detail.ParseFromString(status.error_details())) {
     for (const auto& any : detail.details()) {
-      if (any.UnpackTo(&violations)) break;
+      if (any.Is<google::rpc::BadRequest>() && any.UnpackTo(&violations)) break;
     }
   }
   if (violations.field_violations_size() > 0) {

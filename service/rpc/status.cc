@@ -3,7 +3,9 @@
 #include <string>
 #include <vector>
 
-#include "riskbound/v1/common.pb.h"
+#include "absl/strings/str_cat.h"
+#include "google/rpc/error_details.pb.h"
+#include "google/rpc/status.pb.h"
 #include "service/core/field_violation.h"
 
 namespace riskbound::rpc {
@@ -13,26 +15,35 @@ namespace {
 // for the unpadded form gRPC sends).
 std::size_t Base64Size(std::size_t n) { return 4 * ((n + 2) / 3); }
 
+// The serialized google.rpc.Status: code, message, a BadRequest with the
+// first `keep` listed violations (and a summary violation counting
+// `unlisted` more), and an ErrorInfo counting them all.
 std::string Details(int code, const std::string& message,
                     const std::vector<core::FieldViolation>& listed, std::size_t keep,
                     std::uint64_t unlisted) {
-  v1::FieldViolations detail;
+  google::rpc::BadRequest bad_request;
   for (std::size_t i = 0; i < keep; ++i) {
-    v1::FieldViolation* out = detail.add_field_violations();
+    google::rpc::BadRequest::FieldViolation* out = bad_request.add_field_violations();
     out->set_field(listed[i].field);
     out->set_description(listed[i].description);
   }
   if (unlisted > 0) {
     const core::FieldViolation summary = core::SummaryViolation(unlisted);
-    v1::FieldViolation* out = detail.add_field_violations();
+    google::rpc::BadRequest::FieldViolation* out = bad_request.add_field_violations();
     out->set_field(summary.field);
     out->set_description(summary.description);
   }
-  v1::ErrorStatus error;
-  error.set_code(code);
-  error.set_message(message);
-  error.add_details()->PackFrom(detail);
-  return error.SerializeAsString();
+  google::rpc::ErrorInfo info;
+  info.set_reason(kInvalidFieldsReason);
+  info.set_domain(kErrorDomain);
+  (*info.mutable_metadata())["violation_count"] = absl::StrCat(keep + unlisted);
+  (*info.mutable_metadata())["listed_violation_count"] = absl::StrCat(keep);
+  google::rpc::Status status;
+  status.set_code(code);
+  status.set_message(message);
+  status.add_details()->PackFrom(bad_request);
+  status.add_details()->PackFrom(info);
+  return status.SerializeAsString();
 }
 
 }  // namespace
@@ -63,8 +74,8 @@ grpc::Status ToGrpcStatus(const absl::Status& status) {
   for (std::size_t keep = listed;; --keep) {
     std::string details = Details(static_cast<int>(status.code()), message, report.listed,
                                   keep, report.unlisted_count + (listed - keep));
-    // With no violation kept the details are the message and one summary:
-    // at most ~600 bytes, always within the budget.
+    // With no violation kept the details are the message, one summary and
+    // the ErrorInfo: at most ~800 bytes, always within the budget.
     if (Base64Size(details.size()) <= details_budget || keep == 0) {
       return grpc::Status(code, message, std::move(details));
     }

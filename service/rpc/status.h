@@ -2,9 +2,18 @@
 //
 // Abseil's status codes are numerically gRPC's, so the code is copied as it
 // is. INVALID_ARGUMENT answers made by core::InvalidFields also carry the
-// field violations as structured details (riskbound.v1.ErrorStatus holding
-// riskbound.v1.FieldViolations, wire-compatible with google.rpc.Status and
-// google.rpc.BadRequest) in the "grpc-status-details-bin" trailer.
+// field violations as the standard error details: the
+// "grpc-status-details-bin" trailer holds a google.rpc.Status (same code and
+// message) whose details are
+//   - a google.rpc.BadRequest (type URL
+//     "type.googleapis.com/google.rpc.BadRequest"): one field violation per
+//     bad field, its path and what is wrong; and
+//   - a google.rpc.ErrorInfo ("type.googleapis.com/google.rpc.ErrorInfo"):
+//     reason "INVALID_FIELDS", domain "riskbound.v1", metadata
+//     "violation_count" (every violation found, listed or not) and
+//     "listed_violation_count" (those in the BadRequest, summary excluded).
+// The messages come from proto/google/rpc/, wire-compatible copies of the
+// published googleapis definitions.
 //
 // Trailer budget. gRPC clients refuse trailers over 8 KiB by default
 // (RESOURCE_EXHAUSTED instead of the real answer), so every answer keeps
@@ -15,9 +24,9 @@
 //     (512); percent-encoding at most triples it: <= 1536 bytes.
 //   - details: the listed violations (each already cut by core::InvalidFields
 //     to 128 + 512 bytes) are added in order while the base64 of the
-//     serialized ErrorStatus fits what the message left (>= 3584 bytes); the
-//     ones that do not fit are counted in the last violation, field
-//     "request": "and N more invalid fields were not listed".
+//     serialized google.rpc.Status fits what the message left (>= 3584
+//     bytes); the ones that do not fit are counted in the last violation,
+//     field "request": "and N more invalid fields were not listed".
 #ifndef RISKBOUND_SERVICE_RPC_STATUS_H_
 #define RISKBOUND_SERVICE_RPC_STATUS_H_
 
@@ -28,6 +37,11 @@
 #include "grpcpp/support/status.h"
 
 namespace riskbound::rpc {
+
+// ErrorInfo.reason and ErrorInfo.domain of an INVALID_ARGUMENT answer that
+// names its bad fields.
+inline constexpr char kInvalidFieldsReason[] = "INVALID_FIELDS";
+inline constexpr char kErrorDomain[] = "riskbound.v1";
 
 // Bytes the percent-encoded grpc-message and the base64
 // grpc-status-details-bin of one answer may take together.

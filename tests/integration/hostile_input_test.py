@@ -63,10 +63,11 @@ def violations_of(err):
     raw = dict(err.trailing_metadata() or ()).get("grpc-status-details-bin")
     if raw is None:
         return []
-    status = common_pb.ErrorStatus.FromString(raw)
+    from google.rpc import error_details_pb2, status_pb2  # the standard error details
+    status = status_pb2.Status.FromString(raw)
     out = []
     for detail in status.details:
-        v = common_pb.FieldViolations()
+        v = error_details_pb2.BadRequest()
         if detail.Unpack(v):
             out.extend((x.field, x.description) for x in v.field_violations)
     return out

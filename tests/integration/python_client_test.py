@@ -95,16 +95,30 @@ class ServerTest(unittest.TestCase):
         self.assertEqual(err.code(), grpc.StatusCode.INVALID_ARGUMENT)
         self.assertIn("failure_probability", err.details())
         self.assertIn("evidence.holdout.error_count", err.details())
-        # Structured details: grpc-status-details-bin holds an ErrorStatus
-        # (google.rpc.Status layout) with FieldViolations inside.
+        # Structured details: grpc-status-details-bin holds the standard
+        # google.rpc.Status; its details are found by their standard type
+        # URLs, as any client's error-details helper does (open standard:
+        # googleapis google/rpc/status.proto, error_details.proto).
+        from google.rpc import error_details_pb2, status_pb2
         raw = dict(err.trailing_metadata() or ()).get("grpc-status-details-bin")
         self.assertIsNotNone(raw)
-        status = common_pb.ErrorStatus.FromString(raw)
+        status = status_pb2.Status.FromString(raw)
         self.assertEqual(status.code, grpc.StatusCode.INVALID_ARGUMENT.value[0])
-        violations = common_pb.FieldViolations()
-        self.assertTrue(status.details[0].Unpack(violations))
-        self.assertEqual([v.field for v in violations.field_violations],
+        self.assertEqual(status.message, err.details())
+        by_url = {d.type_url: d for d in status.details}
+        self.assertEqual(sorted(by_url), ["type.googleapis.com/google.rpc.BadRequest",
+                                          "type.googleapis.com/google.rpc.ErrorInfo"])
+        bad_request = error_details_pb2.BadRequest()
+        self.assertTrue(by_url["type.googleapis.com/google.rpc.BadRequest"].Unpack(bad_request))
+        self.assertEqual([v.field for v in bad_request.field_violations],
                          ["failure_probability", "evidence.holdout.error_count"])
+        self.assertIn("5 errors exceed the 3 samples",
+                      bad_request.field_violations[1].description)
+        info = error_details_pb2.ErrorInfo()
+        self.assertTrue(by_url["type.googleapis.com/google.rpc.ErrorInfo"].Unpack(info))
+        self.assertEqual(info.reason, "INVALID_FIELDS")
+        self.assertEqual(info.domain, "riskbound.v1")
+        self.assertEqual(info.metadata["violation_count"], "2")
 
     def test_list_families_names_every_enum_value(self):
         # Every BoundFamily value but UNSPECIFIED (read from the generated

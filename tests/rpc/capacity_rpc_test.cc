@@ -21,6 +21,7 @@
 #include "service/rpc/convert.h"
 #include "service/rpc/server.h"
 #include "tests/testing/loopback_server.h"
+#include "tests/rpc/error_details.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -51,15 +52,7 @@ class CapacityRpcTest : public ::riskbound::testing::LoopbackServerTest {
   // The field paths of a refused request (INVALID_ARGUMENT with details).
   std::vector<std::string> BadFields(const grpc::Status& s) {
     EXPECT_EQ(s.error_code(), grpc::StatusCode::INVALID_ARGUMENT) << s.error_message();
-    std::vector<std::string> fields;
-    v1::ErrorStatus detail;
-    if (!detail.ParseFromString(s.error_details()) || detail.details_size() == 0) return fields;
-    v1::FieldViolations violations;
-    if (!detail.details(0).UnpackTo(&violations)) return fields;
-    for (const v1::FieldViolation& v : violations.field_violations()) {
-      fields.push_back(v.field());
-    }
-    return fields;
+    return ::riskbound::testing::ViolatedFieldsOf(s);
   }
 
   std::vector<std::string> EstimateBadFields(const v1::ModelDescription& model) {

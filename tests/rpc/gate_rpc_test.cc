@@ -23,6 +23,7 @@
 #include "service/rpc/server.h"
 #include "tests/testing/loopback_server.h"
 #include "tests/testing/fixture.h"
+#include "tests/rpc/error_details.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -325,15 +326,7 @@ TEST(GateConvertTest, TimestampFromInjectedClock) {
 }
 
 std::vector<std::string> ViolatedFields(const grpc::Status& status) {
-  std::vector<std::string> fields;
-  v1::ErrorStatus detail;
-  if (!detail.ParseFromString(status.error_details())) return fields;
-  v1::FieldViolations violations;
-  for (const auto& any : detail.details()) {
-    if (any.UnpackTo(&violations)) break;
-  }
-  for (const auto& v : violations.field_violations()) fields.push_back(v.field());
-  return fields;
+  return ::riskbound::testing::ViolatedFieldsOf(status);
 }
 
 TEST_F(GateRpcTest, InvalidArgumentNamesTheFields) {

@@ -24,6 +24,7 @@
 #include "service/core/limits.h"
 #include "service/rpc/status.h"
 #include "tests/testing/loopback_server.h"
+#include "tests/rpc/error_details.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -81,16 +82,24 @@ Answer Finish(const grpc::ClientContext& context, const grpc::Status& status) {
       std::string("grpc-message").size() + PercentEncodedLength(status.error_message()) + 32;
   // The details are measured where they travel.
   EXPECT_EQ(details_trailer, !status.error_details().empty());
-  v1::ErrorStatus detail;
-  if (!status.error_details().empty() && detail.ParseFromString(status.error_details())) {
-    EXPECT_EQ(detail.code(), static_cast<int>(status.error_code()));
-    EXPECT_EQ(detail.message(), status.error_message());
-    for (const auto& any : detail.details()) {
-      v1::FieldViolations violations;
-      if (!any.UnpackTo(&violations)) continue;
-      for (const auto& v : violations.field_violations()) {
-        a.violations.emplace_back(v.field(), v.description());
+  if (const auto detail = ::riskbound::testing::DetailsOf(status)) {
+    EXPECT_EQ(detail->code(), static_cast<int>(status.error_code()));
+    EXPECT_EQ(detail->message(), status.error_message());
+    a.violations = ::riskbound::testing::ViolationsOf(status);
+    // The ErrorInfo counts every violation: those listed (the summary
+    // excluded) plus the summary's N.
+    const auto info = ::riskbound::testing::ErrorInfoOf(status);
+    EXPECT_TRUE(info.has_value());
+    if (info.has_value() && !a.violations.empty()) {
+      std::uint64_t listed = a.violations.size();
+      std::uint64_t more = 0;
+      const std::string& last = a.violations.back().second;
+      if (a.violations.back().first == "request" && absl::StartsWith(last, "and ")) {
+        --listed;
+        EXPECT_TRUE(absl::SimpleAtoi(last.substr(4, last.find(' ', 4) - 4), &more)) << last;
       }
+      EXPECT_EQ(info->metadata().at("listed_violation_count"), absl::StrCat(listed));
+      EXPECT_EQ(info->metadata().at("violation_count"), absl::StrCat(listed + more));
     }
   }
   return a;
@@ -496,10 +505,9 @@ TEST(ToGrpcStatusTest, WorstCaseFitsTheBudget) {
         PercentEncodedLength(s.error_message()) + Base64Length(s.error_details().size());
     EXPECT_LE(cost, kTrailerBudgetBytes);
     EXPECT_LE(s.error_message().size(), core::kMaxMessageBytes);
-    v1::ErrorStatus detail;
-    ASSERT_TRUE(detail.ParseFromString(s.error_details()));
-    v1::FieldViolations violations;
-    ASSERT_TRUE(detail.details(0).UnpackTo(&violations));
+    const auto bad_request = ::riskbound::testing::BadRequestOf(s);
+    ASSERT_TRUE(bad_request.has_value());
+    const google::rpc::BadRequest& violations = *bad_request;
     ASSERT_GE(violations.field_violations_size(), 2);
     const auto& summary = violations.field_violations(violations.field_violations_size() - 1);
     EXPECT_EQ(summary.field(), "request");

@@ -10,6 +10,7 @@
 #include "tests/testing/loopback_server.h"
 #include "service/rpc/status.h"
 #include "tests/testing/status_matchers.h"
+#include "tests/rpc/error_details.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -55,12 +56,38 @@ TEST_F(ServiceTest, InvalidArgumentCarriesFieldViolations) {
   EXPECT_EQ(status.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
   EXPECT_THAT(status.error_message(),
               HasSubstr("evidence.training.capacity.hypothesis_count: must be at least 1"));
-  v1::ErrorStatus detail;
-  ASSERT_TRUE(detail.ParseFromString(status.error_details()));
-  v1::FieldViolations violations;
-  ASSERT_TRUE(detail.details(0).UnpackTo(&violations));
-  ASSERT_GE(violations.field_violations_size(), 1);
-  EXPECT_EQ(violations.field_violations(0).field(), "evidence.training.capacity.hypothesis_count");
+  const auto violations = ::riskbound::testing::ViolationsOf(status);
+  ASSERT_GE(violations.size(), 1u);
+  EXPECT_EQ(violations[0].first, "evidence.training.capacity.hypothesis_count");
+  EXPECT_EQ(violations[0].second, "must be at least 1");
+}
+
+// The trailer holds the standard google.rpc.Status with a BadRequest and an
+// ErrorInfo under their standard type URLs (open standard: googleapis
+// google/rpc/status.proto and error_details.proto; gRPC's richer error model).
+TEST_F(ServiceTest, InvalidArgumentDetailsAreTheStandardTypes) {
+  v1::CertifyRequest req;
+  req.mutable_evidence()->mutable_holdout()->set_error_count(5);
+  req.mutable_evidence()->mutable_holdout()->set_sample_count(3);
+  req.set_failure_probability(2.0);
+  v1::CertifyResponse resp;
+  const grpc::Status status = Call(req, &resp);
+  ASSERT_EQ(status.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
+  const auto details = ::riskbound::testing::DetailsOf(status);
+  ASSERT_TRUE(details.has_value());
+  EXPECT_EQ(details->code(), 3);  // google.rpc.Code INVALID_ARGUMENT
+  EXPECT_EQ(details->message(), status.error_message());
+  ASSERT_EQ(details->details_size(), 2);
+  EXPECT_EQ(details->details(0).type_url(), "type.googleapis.com/google.rpc.BadRequest");
+  EXPECT_EQ(details->details(1).type_url(), "type.googleapis.com/google.rpc.ErrorInfo");
+  EXPECT_THAT(::riskbound::testing::ViolatedFieldsOf(status),
+              ::testing::ElementsAre("failure_probability", "evidence.holdout.error_count"));
+  const auto info = ::riskbound::testing::ErrorInfoOf(status);
+  ASSERT_TRUE(info.has_value());
+  EXPECT_EQ(info->reason(), "INVALID_FIELDS");
+  EXPECT_EQ(info->domain(), "riskbound.v1");
+  EXPECT_EQ(info->metadata().at("violation_count"), "2");
+  EXPECT_EQ(info->metadata().at("listed_violation_count"), "2");
 }
 
 TEST_F(ServiceTest, UnknownEnumValueIsNamed) {

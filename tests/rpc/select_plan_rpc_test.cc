@@ -19,6 +19,7 @@
 #include "service/rpc/server.h"
 #include "tests/testing/loopback_server.h"
 #include "tests/testing/fixture.h"
+#include "tests/rpc/error_details.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -78,16 +79,10 @@ class SelectPlanTest : public ::riskbound::testing::LoopbackServerTest {
   // The field paths of an INVALID_ARGUMENT answer, from its structured details.
   static std::vector<std::string> Fields(const grpc::Status& status) {
     EXPECT_EQ(status.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
-    v1::ErrorStatus detail;
-    std::vector<std::string> out;
-    if (!detail.ParseFromString(status.error_details()) || detail.details_size() != 1) {
+    if (!::riskbound::testing::BadRequestOf(status).has_value()) {
       ADD_FAILURE() << "no field-violation details: " << status.error_message();
-      return out;
     }
-    v1::FieldViolations violations;
-    EXPECT_TRUE(detail.details(0).UnpackTo(&violations));
-    for (const auto& v : violations.field_violations()) out.push_back(v.field());
-    return out;
+    return ::riskbound::testing::ViolatedFieldsOf(status);
   }
 
 };
