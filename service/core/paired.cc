@@ -2,7 +2,7 @@
 
 #include <algorithm>
 
-#include <boost/math/distributions/binomial.hpp>
+#include <cmath>
 
 namespace riskbound::core {
 namespace {
@@ -18,34 +18,36 @@ TailLimit Difference(const TailLimit& plus, const TailLimit& minus) {
 double McNemarExactOneSidedPValue(std::uint64_t b, std::uint64_t c) {
   const std::uint64_t discordant = b + c;
   if (discordant == 0 || b >= discordant) return 1.0;
-  const boost::math::binomial_distribution<> bin(static_cast<double>(discordant), 0.5);
-  return std::clamp(boost::math::cdf(bin, static_cast<double>(b)), 0.0, 1.0);
+  // The log-space tail (numeric.h): Boost's CDF with its work capped, or the
+  // tail summed from b; never below the exact value, bounded cost at any count
+  // (Boost's uncapped CDF spends tens of milliseconds near b = c ~ 2^51).
+  return std::clamp(std::exp(LogBinomialCdf(discordant, b, 0.5)), 0.0, 1.0);
 }
 
 TailLimit PairedDifferenceUpper(const PairedCounts& counts, double delta) {
   const double half = delta / 2.0;
-  return Difference(BinomialUpperLimit(counts.samples, counts.only_challenger_wrong, half),
-                    BinomialLowerLimit(counts.samples, counts.only_champion_wrong, half));
+  return Difference(BinomialUpperLimit(counts.sample_count, counts.only_challenger_wrong_count, half),
+                    BinomialLowerLimit(counts.sample_count, counts.only_champion_wrong_count, half));
 }
 
 TailLimit PairedDifferenceLower(const PairedCounts& counts, double delta) {
   const double half = delta / 2.0;
-  return Difference(BinomialLowerLimit(counts.samples, counts.only_challenger_wrong, half),
-                    BinomialUpperLimit(counts.samples, counts.only_champion_wrong, half));
+  return Difference(BinomialLowerLimit(counts.sample_count, counts.only_challenger_wrong_count, half),
+                    BinomialUpperLimit(counts.sample_count, counts.only_champion_wrong_count, half));
 }
 
 TailLimit UnpairedDifferenceUpper(const SampleCounts& challenger,
                                   const SampleCounts& champion, double delta) {
   const double half = delta / 2.0;
-  return Difference(BinomialUpperLimit(challenger.samples, challenger.errors, half),
-                    BinomialLowerLimit(champion.samples, champion.errors, half));
+  return Difference(BinomialUpperLimit(challenger.sample_count, challenger.error_count, half),
+                    BinomialLowerLimit(champion.sample_count, champion.error_count, half));
 }
 
 TailLimit UnpairedDifferenceLower(const SampleCounts& challenger,
                                   const SampleCounts& champion, double delta) {
   const double half = delta / 2.0;
-  return Difference(BinomialLowerLimit(challenger.samples, challenger.errors, half),
-                    BinomialUpperLimit(champion.samples, champion.errors, half));
+  return Difference(BinomialLowerLimit(challenger.sample_count, challenger.error_count, half),
+                    BinomialUpperLimit(champion.sample_count, champion.error_count, half));
 }
 
 }  // namespace riskbound::core
