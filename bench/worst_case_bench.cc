@@ -152,6 +152,24 @@ std::vector<WorstCase> Cases() {
                      champion.paired = PairedCounts{25'000, 25'001, 24'999, 1'000'000};
                      benchmark::DoNotOptimize(DecideGate(policy, c, champion));
                    }});
+  cases.push_back({"DecideGate",
+                   "n = 10^15, rate 0.0500001, delta = 1e-300, paired champion at the "
+                   "tolerance (REJECT plan over budget, McNemar at 5e13 discordant)",
+                   [] {
+                     GatePolicy policy;
+                     policy.delta = 1e-300;
+                     policy.allowed_families = {Family::kHoldoutExactBinomial,
+                                                Family::kHoldoutKlChernoff};
+                     const std::uint64_t n = 1'000'000'000'000'000ULL;
+                     const std::uint64_t k = 50'000'100'000'000ULL;
+                     GateCandidate c;
+                     c.id = "candidate";
+                     c.evidence.holdout = SampleCounts{k, n};
+                     ChampionComparison champion;
+                     champion.champion_id = "champion";
+                     champion.paired = PairedCounts{k - k / 2, k / 2, k / 2, n};
+                     benchmark::DoNotOptimize(DecideGate(policy, c, champion));
+                   }});
   cases.push_back({"EstimateCapacity",
                    "relu network given by 1 000 layer widths (the request limit) of 1 000",
                    [] {
