@@ -1,6 +1,7 @@
 """Runs every riskbound command shown in README.md and docs/*.md against a real
 riskbound-server and checks its exit code and, where the docs show it, its
-output. It also checks that every relative link of those files resolves.
+output. It also checks that every relative link of those files resolves and
+that none of them cites a private note ("formula sheet", "bounds.md").
 
 The convention (also in DEVELOPERS.md, "Commands in the docs"):
 
@@ -219,10 +220,19 @@ def anchors(path):
     return out
 
 
+# Users do not have the project's private notes: the docs cite published
+# sources (authors, year, theorem), never a "formula sheet" or "bounds.md".
+PRIVATE_CITATION = re.compile(r"bounds\.md|formula sheet", re.I)
+
+
 def check_links(path, rel, source):
     problems = []
     with open(path, encoding="utf-8") as f:
         text = f.read()
+    for number, line in enumerate(text.split("\n"), 1):
+        if PRIVATE_CITATION.search(line):
+            problems.append(f"{rel}:{number}: cites a private note users do not have "
+                            f"({PRIVATE_CITATION.search(line).group(0)}): cite the published source")
     # Links inside fenced blocks are not links.
     text = re.sub(r"```.*?```", "", text, flags=re.S)
     for target in LINK.findall(text):
