@@ -26,7 +26,8 @@ CertifyRequest MakeRequest(FamilyChoice choice) {
   CertifyRequest req;
   req.evidence.holdout = riskbound::core::SampleCounts{212, 5000};
   riskbound::core::TrainingEvidence t;
-  t.counts = {270, 9000};
+  t.error_count = 270;
+  t.sample_count = 9000;
   t.capacity.vc_dimension = 41;
   t.capacity.log_hypothesis_count = 13.86;
   req.evidence.training = t;

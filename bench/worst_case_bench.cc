@@ -74,12 +74,13 @@ std::vector<WorstCase> Cases() {
                    "all applicable families, n = 2^53, half errors, delta = 1e-300",
                    [] {
                      CertifyRequest req;
-                     req.delta = 1e-300;
+                     req.failure_probability = 1e-300;
                      req.choice = FamilyChoice::kAllApplicable;
                      const std::uint64_t n = kTwoTo53;
                      req.evidence.holdout = SampleCounts{n / 2, n};
                      TrainingEvidence t;
-                     t.counts = {n / 2, n};
+                     t.error_count = n / 2;
+                     t.sample_count = n;
                      t.capacity.vc_dimension = n / 2;
                      t.capacity.log_hypothesis_count = 1e6;
                      req.evidence.training = t;
@@ -94,7 +95,7 @@ std::vector<WorstCase> Cases() {
                    [] {
                      SelectRequest req;
                      req.family = Family::kOccamKl;
-                     req.delta = 1e-300;
+                     req.failure_probability = 1e-300;
                      req.spread = DeltaSpread::kUniform;
                      for (int i = 0; i < 10000; ++i) {
                        Candidate c;
@@ -122,7 +123,7 @@ std::vector<WorstCase> Cases() {
                      req.capacity.log_hypothesis_count = 1.0;
                      req.target_risk = 0.5;
                      req.expected_empirical_risk = 0.4999995;
-                     req.delta = 1e-300;
+                     req.failure_probability = 1e-300;
                      benchmark::DoNotOptimize(PlanTraining(req));
                    }});
   cases.push_back({"DecideGate",
@@ -157,7 +158,7 @@ std::vector<WorstCase> Cases() {
                    "tolerance (REJECT plan over budget, McNemar at 5e13 discordant)",
                    [] {
                      GatePolicy policy;
-                     policy.delta = 1e-300;
+                     policy.failure_probability = 1e-300;
                      policy.allowed_families = {Family::kHoldoutExactBinomial,
                                                 Family::kHoldoutKlChernoff};
                      const std::uint64_t n = 1'000'000'000'000'000ULL;

@@ -21,7 +21,7 @@ Unit Rescale(const BoundedLossEvidence& e) {
   u.a = e.loss_min;
   u.width = e.loss_max - e.loss_min;
   u.mean = std::clamp((e.mean_loss - e.loss_min) / u.width, 0.0, 1.0);
-  u.n = static_cast<double>(e.samples);
+  u.n = static_cast<double>(e.sample_count);
   return u;
 }
 
@@ -62,7 +62,7 @@ Certificate BoundedKl(const BoundedLossEvidence& evidence, double delta) {
 
 Certificate BoundedEmpiricalBernstein(const BoundedLossEvidence& evidence, double delta) {
   const Unit u = Rescale(evidence);
-  if (evidence.samples < 2) {
+  if (evidence.sample_count < 2) {
     Certificate c = Build(Family::kBoundedEmpiricalBernstein, evidence, delta, u, 1.0, 0.0);
     c.notes.emplace_back(
         "the empirical Bernstein bound needs at least 2 samples; the trivial range "

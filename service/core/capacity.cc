@@ -37,7 +37,7 @@ std::string Num(double x) { return absl::StrFormat("%.10g", x); }
 void SetExact(double value, CapacityEstimate* out) {
   out->status = CapacityStatus::kExact;
   out->vc_dimension = value;
-  out->lower_bound = value;
+  out->vc_dimension_lower_bound = value;
 }
 
 // A real-valued upper bound on an integer quantity: floored after an upward
@@ -413,7 +413,7 @@ absl::StatusOr<CapacityEstimate> Tree(const ModelDescription& m) {
   if (!first_fail.ok()) return absl::InternalError("tree counting bound: no bracket");
   CapacityEstimate e;
   SetUpperBound(static_cast<double>(*first_fail - 1), &e);
-  e.lower_bound = L;
+  e.vc_dimension_lower_bound = L;
   e.source =
       "counting bound derived in the formula sheet (bounds.md 10.4): Cat(L-1) tree shapes "
       "x (feature, threshold) per split x leaf labels; cf. Leboeuf, LeBlanc & Marchand "
@@ -440,7 +440,7 @@ absl::StatusOr<CapacityEstimate> Voted(const ModelDescription& m) {
   const double value = n * (3.0 * std::log2(n) + 2.0);
   CapacityEstimate e;
   SetUpperBound(FloorUpper(value), &e);
-  e.lower_bound = static_cast<double>(*db);  // one member with weight 1 is a base hypothesis
+  e.vc_dimension_lower_bound = static_cast<double>(*db);  // one member with weight 1 is a base hypothesis
   e.source = "Shalev-Shwartz & Ben-David (2014) Lemma 10.3; lower bound d_B: a vote with "
              "one nonzero weight is a base hypothesis";
   e.formula = absl::StrCat("h <= T(d_B+1)(3 log2(T(d_B+1)) + 2) with T = ", Num(tt),
@@ -514,7 +514,7 @@ absl::StatusOr<NetSizes> NetworkSizes(const ModelDescription& m, bool need_layer
 // computes any halfspace of the input (later units pass it through).
 void HalfspaceLowerBound(const NetSizes& s, CapacityEstimate* e) {
   if (!s.shape.has_value()) return;
-  e->lower_bound = static_cast<double>(s.shape->input_width) + 1.0;
+  e->vc_dimension_lower_bound = static_cast<double>(s.shape->input_width) + 1.0;
   e->notes.push_back(absl::StrCat(
       "lower bound d_0 + 1 = ", s.shape->input_width + 1,
       ": the network contains every halfspace of its input (one unit computes it, the "

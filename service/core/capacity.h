@@ -126,7 +126,7 @@ struct CapacityEstimate {
   CapacityStatus status = CapacityStatus::kExact;
   // A proven lower bound on the VC dimension, where one is known (equal to
   // vc_dimension for exact values).
-  std::optional<double> lower_bound;
+  std::optional<double> vc_dimension_lower_bound;
   // True when the capacity cannot be carried in a uint64: a finite value of
   // at least 2^64, or status kInfinite. Callers must not cast then.
   bool exceeds_uint64 = false;

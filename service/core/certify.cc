@@ -57,7 +57,7 @@ constexpr double kVarianceSlack = 1e-9;
 
 void CheckBoundedLoss(const BoundedLossEvidence& b, std::vector<FieldViolation>* out) {
   const std::string p = "evidence.bounded_loss";
-  CheckSampleCount(p + ".sample_count", b.samples, out);
+  CheckSampleCount(p + ".sample_count", b.sample_count, out);
   const bool min_ok = std::isfinite(b.loss_min);
   const bool max_ok = std::isfinite(b.loss_max);
   if (!min_ok) out->push_back({p + ".loss_min", "must be a finite number"});
@@ -81,10 +81,10 @@ void CheckBoundedLoss(const BoundedLossEvidence& b, std::vector<FieldViolation>*
   }
   if (!std::isfinite(b.sample_variance) || b.sample_variance < 0.0) {
     out->push_back({p + ".sample_variance", "must be a finite number >= 0"});
-  } else if (range_ok && b.samples >= 2) {
+  } else if (range_ok && b.sample_count >= 2) {
     // In units of (b - a)^2: at most 1/4 * n/(n-1) for values in [a, b].
     const double width = b.loss_max - b.loss_min;
-    const double n = static_cast<double>(b.samples);
+    const double n = static_cast<double>(b.sample_count);
     const double limit = 0.25 * n / (n - 1.0);
     if (b.sample_variance / width / width > limit * (1.0 + kVarianceSlack)) {
       out->push_back(
@@ -100,7 +100,7 @@ void CheckPacBayes(const PacBayesEvidence& pb, std::vector<FieldViolation>* out)
   const std::string p = "evidence.pac_bayes";
   CheckNonNegativeFinite(p + ".kl_divergence", pb.kl_divergence, out);
   CheckProbabilityClosed(p + ".gibbs_empirical_risk", pb.gibbs_empirical_risk, out);
-  CheckSampleCount(p + ".sample_count", pb.samples, out);
+  CheckSampleCount(p + ".sample_count", pb.sample_count, out);
   if (pb.target != PacBayesTarget::kGibbs && pb.target != PacBayesTarget::kMajorityVote) {
     out->push_back({p + ".target", "must be the Gibbs classifier or the majority vote"});
   }
@@ -108,7 +108,7 @@ void CheckPacBayes(const PacBayesEvidence& pb, std::vector<FieldViolation>* out)
 
 void CheckRademacher(const RademacherEvidence& r, std::vector<FieldViolation>* out) {
   const std::string p = "evidence.rademacher";
-  CheckSampleCounts(p, r.counts, out);
+  CheckSampleCounts(p, r, out);
   const double v = r.empirical_rademacher;
   if (r.sigma_draw_count == 0) {
     if (!std::isfinite(v) || v < 0.0 || v > 1.0) {
@@ -124,15 +124,15 @@ void CheckRademacher(const RademacherEvidence& r, std::vector<FieldViolation>* o
 
 void CheckCompression(const CompressionEvidence& c, std::vector<FieldViolation>* out) {
   const std::string p = "evidence.compression";
-  CheckSampleCount(p + ".sample_count", c.samples, out);
-  if (c.compression_size > c.samples) {
+  CheckSampleCount(p + ".sample_count", c.sample_count, out);
+  if (c.compression_size > c.sample_count) {
     out->push_back({p + ".compression_size",
                     absl::StrCat("a compression set of ", c.compression_size,
-                                 " examples exceeds the ", c.samples, " training examples")});
-  } else if (c.errors_outside > c.samples - c.compression_size) {
+                                 " examples exceeds the ", c.sample_count, " training examples")});
+  } else if (c.outside_error_count > c.sample_count - c.compression_size) {
     out->push_back({p + ".outside_error_count",
-                    absl::StrCat(c.errors_outside, " errors exceed the ",
-                                 c.samples - c.compression_size,
+                    absl::StrCat(c.outside_error_count, " errors exceed the ",
+                                 c.sample_count - c.compression_size,
                                  " examples outside the compression set")});
   }
 }
@@ -141,16 +141,16 @@ void CheckCompression(const CompressionEvidence& c, std::vector<FieldViolation>*
 
 void CheckSampleCounts(const std::string& prefix, const SampleCounts& counts,
                        std::vector<FieldViolation>* out) {
-  if (counts.samples == 0) {
+  if (counts.sample_count == 0) {
     out->push_back({prefix + ".sample_count", "must be at least 1"});
-  } else if (counts.samples > kMaxSampleCount) {
+  } else if (counts.sample_count > kMaxSampleCount) {
     out->push_back({prefix + ".sample_count",
                     absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
-                                 counts.samples)});
+                                 counts.sample_count)});
   }
-  if (counts.errors > counts.samples) {
+  if (counts.error_count > counts.sample_count) {
     out->push_back({prefix + ".error_count",
-                    absl::StrCat(counts.errors, " errors exceed the ", counts.samples,
+                    absl::StrCat(counts.error_count, " errors exceed the ", counts.sample_count,
                                  " samples they were counted on")});
   }
 }
@@ -172,7 +172,7 @@ absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolati
   if (evidence.holdout.has_value()) CheckSampleCounts("evidence.holdout", *evidence.holdout, v);
   if (evidence.training.has_value()) {
     const TrainingEvidence& t = *evidence.training;
-    CheckSampleCounts("evidence.training", t.counts, v);
+    CheckSampleCounts("evidence.training", t, v);
     if (!t.capacity.vc_dimension.has_value() &&
         !t.capacity.log_hypothesis_count.has_value()) {
       v->push_back({"evidence.training.capacity",
@@ -197,7 +197,7 @@ absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolati
 
 absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopToken& stop) {
   std::vector<FieldViolation> violations;
-  CheckProbabilityOpen("failure_probability", request.delta, &violations);
+  CheckProbabilityOpen("failure_probability", request.failure_probability, &violations);
   ValidateEvidence(request.evidence, &violations).IgnoreError();
   if (!violations.empty()) return InvalidFields(violations);
 
@@ -272,48 +272,48 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
   CertifyResult result;
   for (std::size_t i = 0; i < k; ++i) {
     if (stop.StopRequested()) return stop.Status();
-    const double delta_i = request.delta * weights[i];
+    const double delta_i = request.failure_probability * weights[i];
     Certificate c = chosen[i]->compute(request.evidence, delta_i);
     if (UsesTrainingCapacity(c.family) && request.evidence.training.has_value()) {
       const std::vector<std::string>& n = request.evidence.training->capacity.notes;
       c.notes.insert(c.notes.end(), n.begin(), n.end());
     }
     // The baseline is an error rate: it says nothing about a loss in other units.
-    if (request.evidence.baseline_error_rate.has_value() && !c.bounded_loss_units &&
-        c.upper_bound >= *request.evidence.baseline_error_rate) {
+    if (request.evidence.baseline_error_rate.has_value() && !c.loss_range.has_value() &&
+        c.risk_upper_bound >= *request.evidence.baseline_error_rate) {
       c.vacuous = true;
     }
-    result.total_delta += delta_i;
+    result.spent_failure_probability += delta_i;
     result.certificates.push_back(std::move(c));
   }
   // Error-rate certificates and bounded-loss certificates (other units) are
   // never compared: the tightest is taken among the error-rate ones when
   // there are any, else among the bounded-loss ones (all on the same loss).
   bool any_error_rate = false;
-  for (const Certificate& c : result.certificates) any_error_rate |= !c.bounded_loss_units;
+  for (const Certificate& c : result.certificates) any_error_rate |= !c.loss_range.has_value();
   bool found = false;
   for (std::size_t i = 0; i < k; ++i) {
     const Certificate& c = result.certificates[i];
-    if (any_error_rate && c.bounded_loss_units) continue;
-    if (!found || c.upper_bound < result.certificates[result.tightest_index].upper_bound) {
+    if (any_error_rate && c.loss_range.has_value()) continue;
+    if (!found || c.risk_upper_bound < result.certificates[result.tightest_index].risk_upper_bound) {
       result.tightest_index = i;
       found = true;
     }
   }
   if (stop.StopRequested()) return stop.Status();
   if (k == 1) {
-    result.delta_rule = absl::StrFormat(
-        "one family, computed at the full failure probability delta = %g", request.delta);
+    result.rule = absl::StrFormat(
+        "one family, computed at the full failure probability delta = %g", request.failure_probability);
   } else if (weighted) {
-    result.delta_rule = absl::StrFormat(
+    result.rule = absl::StrFormat(
         "union bound over %d families with the caller's weights: family j is computed "
         "at delta * w_j; the tightest certificate holds with probability >= 1 - %g",
-        k, result.total_delta);
+        k, result.spent_failure_probability);
   } else {
-    result.delta_rule = absl::StrFormat(
+    result.rule = absl::StrFormat(
         "union bound over %d families: each computed at delta/%d = %g, so the tightest "
         "certificate holds with probability >= 1 - %g",
-        k, k, request.delta / static_cast<double>(k), result.total_delta);
+        k, k, request.failure_probability / static_cast<double>(k), result.spent_failure_probability);
   }
   return result;
 }

@@ -37,7 +37,7 @@ enum class FamilyChoice {
 struct CertifyRequest {
   Evidence evidence;
   // Failure probability delta: certificates hold with probability >= 1 - delta.
-  double delta = 0.05;
+  double failure_probability = 0.05;
   FamilyChoice choice = FamilyChoice::kRecommended;
   // kListed only: the families, each at most once.
   std::vector<Family> families;
@@ -58,9 +58,9 @@ struct CertifyResult {
   std::size_t tightest_index = 0;
   // The failure probability of the tightest certificate: the sum of the
   // deltas spent (<= the requested delta).
-  double total_delta = 0.0;
+  double spent_failure_probability = 0.0;
   // How delta was split, in plain words.
-  std::string delta_rule;
+  std::string rule;
 };
 
 // CheckSampleCounts
@@ -78,7 +78,7 @@ absl::Status ValidateEvidence(const Evidence& evidence,
 // Certify
 // Computes the chosen families and the tightest certificate. With K > 1
 // families the tightest is a minimum over K bounds, valid only because each
-// was computed at its share of delta (union bound); result.delta_rule says so.
+// was computed at its share of delta (union bound); result.rule says so.
 // Errors: INVALID_ARGUMENT naming the field for bad evidence, a delta outside
 // (0, 1), an unknown, duplicated or inapplicable listed family, or bad
 // weights. Never returns NaN or Inf in a certificate.

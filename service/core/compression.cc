@@ -8,9 +8,9 @@
 namespace riskbound::core {
 
 Certificate SampleCompression(const CompressionEvidence& evidence, double delta) {
-  const std::uint64_t m = evidence.samples;
+  const std::uint64_t m = evidence.sample_count;
   const std::uint64_t d = evidence.compression_size;
-  const std::uint64_t k = evidence.errors_outside;
+  const std::uint64_t k = evidence.outside_error_count;
   if (d >= m) {
     Certificate c = MakeCertificate(Family::kSampleCompression, delta, 0.0, 1.0, std::nullopt);
     c.notes.emplace_back(

@@ -10,16 +10,16 @@ Certificate MakeCertificate(Family family, double delta, double empirical_risk,
                             std::optional<double> lower_bound) {
   Certificate c;
   c.family = family;
-  c.delta = delta;
+  c.failure_probability = delta;
   c.empirical_risk = std::clamp(empirical_risk, 0.0, 1.0);
   double upper = std::isnan(upper_bound) ? 1.0 : std::clamp(upper_bound, 0.0, 1.0);
-  c.upper_bound = std::max(upper, c.empirical_risk);
+  c.risk_upper_bound = std::max(upper, c.empirical_risk);
   if (lower_bound.has_value()) {
     double lower = std::isnan(*lower_bound) ? 0.0 : std::clamp(*lower_bound, 0.0, 1.0);
-    c.lower_bound = std::min(lower, c.empirical_risk);
+    c.risk_lower_bound = std::min(lower, c.empirical_risk);
   }
-  c.penalty = c.upper_bound - c.empirical_risk;
-  c.vacuous = c.upper_bound >= 1.0;
+  c.penalty = c.risk_upper_bound - c.empirical_risk;
+  c.vacuous = c.risk_upper_bound >= 1.0;
   return c;
 }
 
@@ -29,21 +29,19 @@ Certificate MakeCertificateInRange(Family family, double delta, double empirical
                                    double range_min, double range_max) {
   Certificate c;
   c.family = family;
-  c.delta = delta;
-  c.bounded_loss_units = true;
-  c.range_min = range_min;
-  c.range_max = range_max;
+  c.failure_probability = delta;
+  c.loss_range = LossRange{range_min, range_max};
   c.empirical_risk = std::isnan(empirical) ? range_max : std::clamp(empirical, range_min, range_max);
   const double upper =
       std::isnan(upper_bound) ? range_max : std::clamp(upper_bound, range_min, range_max);
-  c.upper_bound = std::max(upper, c.empirical_risk);
+  c.risk_upper_bound = std::max(upper, c.empirical_risk);
   if (lower_bound.has_value()) {
     const double lower =
         std::isnan(*lower_bound) ? range_min : std::clamp(*lower_bound, range_min, range_max);
-    c.lower_bound = std::min(lower, c.empirical_risk);
+    c.risk_lower_bound = std::min(lower, c.empirical_risk);
   }
-  c.penalty = c.upper_bound - c.empirical_risk;
-  c.vacuous = c.upper_bound >= range_max;
+  c.penalty = c.risk_upper_bound - c.empirical_risk;
+  c.vacuous = c.risk_upper_bound >= range_max;
   return c;
 }
 

@@ -1,9 +1,9 @@
 // Evidence and certificates: the plain data the bound families work on.
 //
-// These structs mirror the API messages of proto/riskbound/v1 so that the
-// field paths in error messages ("evidence.holdout.error_count") are the same
-// in the core and on the wire. They hold values only; validation lives in
-// ValidateEvidence (certify.h).
+// These structs mirror the API messages of proto/riskbound/v1 field by field,
+// with the proto's field names, so that a field path in an error message
+// ("evidence.holdout.error_count") is the same in the core and on the wire.
+// They hold values only; validation lives in ValidateEvidence (certify.h).
 #ifndef RISKBOUND_SERVICE_CORE_EVIDENCE_H_
 #define RISKBOUND_SERVICE_CORE_EVIDENCE_H_
 
@@ -14,10 +14,12 @@
 
 namespace riskbound::core {
 
-// Errors observed on a number of samples (0-1 loss).
+// Errors observed on a number of samples (0-1 loss). API: HoldoutEvidence
+// (evidence.holdout, champion.champion_holdout), and the counts of
+// TrainingEvidence, RademacherEvidence and StructureCandidate.
 struct SampleCounts {
-  std::uint64_t errors = 0;
-  std::uint64_t samples = 0;
+  std::uint64_t error_count = 0;
+  std::uint64_t sample_count = 0;
 };
 
 // The capacity of the class a training-set bound is uniform over. At most one
@@ -36,9 +38,9 @@ struct ClassCapacity {
 };
 
 // Errors on the training sample plus the capacity of the class the model was
-// chosen from.
-struct TrainingEvidence {
-  SampleCounts counts;
+// chosen from. API paths: evidence.training.{error_count, sample_count,
+// capacity}.
+struct TrainingEvidence : SampleCounts {
   ClassCapacity capacity;
 };
 
@@ -53,7 +55,7 @@ struct BoundedLossEvidence {
   // loss's units squared. Ignored when samples = 1.
   double sample_variance = 0.0;
   // Number of hold-out examples n.
-  std::uint64_t samples = 0;
+  std::uint64_t sample_count = 0;
   // The range every per-example loss lies in, fixed before the data were seen.
   double loss_min = 0.0;
   double loss_max = 1.0;
@@ -76,15 +78,14 @@ struct PacBayesEvidence {
   // E_{h~Q} R_emp(h) on the m training examples, in [0, 1].
   double gibbs_empirical_risk = 0.0;
   // Number of training examples m (not counting data the prior was fit on).
-  std::uint64_t samples = 0;
+  std::uint64_t sample_count = 0;
   PacBayesTarget target = PacBayesTarget::kGibbs;
 };
 
 // Training errors plus the empirical Rademacher complexity of the hypothesis
 // class on the same sample. API paths: evidence.rademacher.{error_count,
 // sample_count, empirical_rademacher, sigma_draw_count}.
-struct RademacherEvidence {
-  SampleCounts counts;
+struct RademacherEvidence : SampleCounts {
   // Rhat_S(H) = E_sigma sup_h (1/m) sum_i sigma_i h(x_i) for the {-1, +1}
   // valued hypothesis class (Mohri et al. convention: no absolute value, no
   // factor 2), with the supremum computed exactly.
@@ -100,11 +101,11 @@ struct RademacherEvidence {
 // outside_error_count, size_fixed_in_advance}.
 struct CompressionEvidence {
   // Number of training examples m.
-  std::uint64_t samples = 0;
+  std::uint64_t sample_count = 0;
   // Size d of the compression set (e.g. the number of support vectors).
   std::uint64_t compression_size = 0;
   // Errors k of the reconstructed model on the m - d examples outside it.
-  std::uint64_t errors_outside = 0;
+  std::uint64_t outside_error_count = 0;
   // True when d was chosen before the sample was seen (saves a factor m).
   bool size_fixed_in_advance = false;
 };
@@ -147,43 +148,49 @@ enum class Family {
   kSampleCompression = 15,
 };
 
+// The range [loss_min, loss_max] of a bounded loss. API: LossRange.
+struct LossRange {
+  double loss_min = 0.0;
+  double loss_max = 1.0;
+};
+
 // A certificate: an upper bound on a model's true error that holds with
-// probability at least 1 - delta over the draw of the sample.
+// probability at least 1 - failure_probability over the draw of the sample.
+// API: Certificate (family_name, source and assumptions come from the
+// family's registry row, families.h).
 struct Certificate {
   Family family = Family::kHoldoutExactBinomial;
   // Upper bound on the true error, clipped to [0, 1]; for bounded-loss
-  // families, on the expected loss, clipped to [range_min, range_max].
-  double upper_bound = 1.0;
-  // One-sided lower bound at the same delta, for families that have one.
-  // Upper and lower together hold with probability >= 1 - 2 delta.
-  std::optional<double> lower_bound;
+  // families, on the expected loss, clipped to loss_range.
+  double risk_upper_bound = 1.0;
+  // One-sided lower bound at the same failure probability, for families that
+  // have one. Upper and lower together hold with probability
+  // >= 1 - 2 failure_probability.
+  std::optional<double> risk_lower_bound;
   // The failure probability this certificate was computed at.
-  double delta = 0.0;
+  double failure_probability = 0.0;
   // Errors divided by samples on the sample the family uses.
   double empirical_risk = 0.0;
-  // upper_bound - empirical_risk.
+  // risk_upper_bound - empirical_risk.
   double penalty = 0.0;
-  // True when the bound says nothing: upper bound >= 1, or >= the baseline
-  // error rate when one was given.
+  // True when the bound says nothing: upper bound >= 1 (the top of
+  // loss_range), or >= the baseline error rate when one was given.
   bool vacuous = false;
   // False when a conservative relaxation stood in for an exact computation.
   bool exact = true;
   // Plain-words remarks (relaxations used, regime warnings).
   std::vector<std::string> notes;
-  // True when the certificate bounds the expected value of a bounded loss in
-  // its own units (families kBounded*), not a 0-1 error rate; such bounds are
-  // never compared with error-rate bounds or with baseline_error_rate.
-  bool bounded_loss_units = false;
-  // The range the bounded quantity lives in: [0, 1] for error rates,
-  // [loss_min, loss_max] for bounded-loss families.
-  double range_min = 0.0;
-  double range_max = 1.0;
+  // Set only for the bounded-loss families (kBounded*): the certificate
+  // bounds the expected value of a bounded loss in its own units within this
+  // range, not a 0-1 error rate; such bounds are never compared with
+  // error-rate bounds or with baseline_error_rate.
+  std::optional<LossRange> loss_range;
 };
 
 // EmpiricalRate
-// Returns errors / samples. REQUIRES: counts.samples >= 1.
+// Returns error_count / sample_count. REQUIRES: counts.sample_count >= 1.
 inline double EmpiricalRate(const SampleCounts& counts) {
-  return static_cast<double>(counts.errors) / static_cast<double>(counts.samples);
+  return static_cast<double>(counts.error_count) / static_cast<double>(counts.sample_count);
 }
 
 // MakeCertificate
@@ -199,7 +206,7 @@ Certificate MakeCertificate(Family family, double delta, double empirical_risk,
 // loss in its own units): clips the limits and the empirical value to the
 // range (a NaN upper limit becomes range_max, a NaN lower limit range_min),
 // keeps lower <= empirical <= upper, sets vacuous iff upper >= range_max, and
-// records the range with bounded_loss_units = true.
+// records the range in loss_range.
 // REQUIRES: range_min < range_max, both finite.
 Certificate MakeCertificateInRange(Family family, double delta, double empirical,
                                    double upper_bound,

@@ -23,7 +23,7 @@ bool HasFiniteClass(const Evidence& e) {
 bool HasBoundedLoss(const Evidence& e) { return e.bounded_loss.has_value(); }
 // The empirical Bernstein bound divides by n - 1: it needs two samples.
 bool HasBoundedLossTwoSamples(const Evidence& e) {
-  return e.bounded_loss.has_value() && e.bounded_loss->samples >= 2;
+  return e.bounded_loss.has_value() && e.bounded_loss->sample_count >= 2;
 }
 bool HasPacBayes(const Evidence& e) { return e.pac_bayes.has_value(); }
 bool HasRademacher(const Evidence& e) { return e.rademacher.has_value(); }
@@ -72,14 +72,14 @@ const std::array<FamilySpec, 15> kFamilies = {{
      "Vapnik (1995), ch. 3; Vapnik (1998), ch. 4; Burges (1998), eq. 3",
      kTrainingAssumptions, "evidence.training with capacity.vc_dimension", HasVc,
      [](const Evidence& e, double d) {
-       return VcAdditive(e.training->counts, *e.training->capacity.vc_dimension, d);
+       return VcAdditive(*e.training, *e.training->capacity.vc_dimension, d);
      }},
     {Family::kVcRelative, "vc-relative",
      "Vapnik's relative-deviation VC bound on the training error",
      "Vapnik (1998), ch. 4; Anthony & Shawe-Taylor (1993)", kTrainingAssumptions,
      "evidence.training with capacity.vc_dimension", HasVc,
      [](const Evidence& e, double d) {
-       return VcRelative(e.training->counts, *e.training->capacity.vc_dimension, d);
+       return VcRelative(*e.training, *e.training->capacity.vc_dimension, d);
      }},
     {Family::kOccamHoeffding, "occam-hoeffding",
      "Occam bound for a finite class, Hoeffding form",
@@ -88,7 +88,7 @@ const std::array<FamilySpec, 15> kFamilies = {{
      "evidence.training with capacity.hypothesis_count or capacity.log_hypothesis_count",
      HasFiniteClass,
      [](const Evidence& e, double d) {
-       return OccamHoeffding(e.training->counts,
+       return OccamHoeffding(*e.training,
                              *e.training->capacity.log_hypothesis_count, d);
      }},
     {Family::kOccamKl, "occam-kl", "Occam bound for a finite class, kl (Chernoff) form",
@@ -96,7 +96,7 @@ const std::array<FamilySpec, 15> kFamilies = {{
      "evidence.training with capacity.hypothesis_count or capacity.log_hypothesis_count",
      HasFiniteClass,
      [](const Evidence& e, double d) {
-       return OccamKl(e.training->counts, *e.training->capacity.log_hypothesis_count, d);
+       return OccamKl(*e.training, *e.training->capacity.log_hypothesis_count, d);
      }},
     {Family::kBoundedHoeffding, "bounded-hoeffding",
      "Hoeffding bound on the mean of a bounded loss on a hold-out set",

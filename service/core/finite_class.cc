@@ -9,7 +9,7 @@ namespace {
 
 // (ln|H| + ln(1/delta)) / m.
 double Budget(const SampleCounts& counts, double log_hypothesis_count, double delta) {
-  return (log_hypothesis_count - std::log(delta)) / static_cast<double>(counts.samples);
+  return (log_hypothesis_count - std::log(delta)) / static_cast<double>(counts.sample_count);
 }
 
 }  // namespace

@@ -11,7 +11,7 @@ namespace riskbound::core {
 // R <= R_emp + sqrt((ln|H| + ln(1/delta)) / (2m)); the lower bound
 // R_emp - sqrt(...) is a separate one-sided statement at the same delta.
 // Source: Hoeffding (1963) with a union bound; Blumer et al. (1987).
-// REQUIRES: counts.samples >= 1, counts.errors <= counts.samples,
+// REQUIRES: counts.sample_count >= 1, counts.error_count <= counts.sample_count,
 //           log_hypothesis_count >= 0, 0 < delta < 1.
 Certificate OccamHoeffding(const SampleCounts& counts, double log_hypothesis_count,
                            double delta);

@@ -39,7 +39,7 @@ constexpr double kSplitShrink = 1.0 - 8.0 * DBL_EPSILON;
 
 std::string Num(double v) { return absl::StrFormat("%.6g", v); }
 
-// How policy.delta is split; depends on the policy and the kinds of evidence
+// How policy.failure_probability is split; depends on the policy and the kinds of evidence
 // present, never on their values (see gate.h).
 struct Split {
   // The policy families that apply, in policy order.
@@ -64,7 +64,7 @@ Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_ch
     if (spec == nullptr) continue;
     (spec->applies(evidence) ? s.families : s.skipped).push_back(spec);
   }
-  const double risk = with_champion ? policy.delta / 2.0 : policy.delta;
+  const double risk = with_champion ? policy.failure_probability / 2.0 : policy.failure_probability;
   double upper = risk;
   if (evidence.holdout.has_value()) {
     upper = risk / 2.0;
@@ -73,8 +73,8 @@ Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_ch
   const std::size_t k = std::max<std::size_t>(s.families.size(), 1);
   s.per_family = k == 1 ? upper : upper / static_cast<double>(k) * kSplitShrink;
   if (with_champion) {
-    s.difference_upper = policy.delta / 4.0;
-    s.difference_lower = policy.delta / 4.0;
+    s.difference_upper = policy.failure_probability / 4.0;
+    s.difference_lower = policy.failure_probability / 4.0;
   }
   return s;
 }
@@ -82,40 +82,40 @@ Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_ch
 void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdout,
                  std::vector<FieldViolation>* out) {
   const std::string prefix = "champion.paired";
-  if (p.samples == 0) {
+  if (p.sample_count == 0) {
     out->push_back({prefix + ".sample_count", "must be at least 1"});
     return;
   }
-  if (p.samples > kMaxSampleCount) {
+  if (p.sample_count > kMaxSampleCount) {
     out->push_back({prefix + ".sample_count",
                     absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
-                                 p.samples)});
+                                 p.sample_count)});
     return;
   }
   // Each term <= 2^53 here or it is reported, so the sum cannot overflow.
   const struct {
     const char* field;
     std::uint64_t value;
-  } parts[] = {{"both_wrong_count", p.both_wrong},
-               {"only_champion_wrong_count", p.only_champion_wrong},
-               {"only_challenger_wrong_count", p.only_challenger_wrong}};
+  } parts[] = {{"both_wrong_count", p.both_wrong_count},
+               {"only_champion_wrong_count", p.only_champion_wrong_count},
+               {"only_challenger_wrong_count", p.only_challenger_wrong_count}};
   bool each_ok = true;
   for (const auto& part : parts) {
-    if (part.value > p.samples) {
+    if (part.value > p.sample_count) {
       out->push_back({absl::StrCat(prefix, ".", part.field),
-                      absl::StrCat(part.value, " exceeds the ", p.samples,
+                      absl::StrCat(part.value, " exceeds the ", p.sample_count,
                                    " samples it was counted on")});
       each_ok = false;
     }
   }
   if (!each_ok) return;
-  const std::uint64_t sum = p.both_wrong + p.only_champion_wrong + p.only_challenger_wrong;
-  if (sum > p.samples) {
+  const std::uint64_t sum = p.both_wrong_count + p.only_champion_wrong_count + p.only_challenger_wrong_count;
+  if (sum > p.sample_count) {
     out->push_back(
         {prefix + ".sample_count",
          absl::StrCat("both_wrong_count + only_champion_wrong_count + "
                       "only_challenger_wrong_count = ",
-                      sum, " exceeds the ", p.samples, " samples they were counted on")});
+                      sum, " exceeds the ", p.sample_count, " samples they were counted on")});
     return;
   }
   if (!holdout.has_value()) {
@@ -124,21 +124,21 @@ void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdo
                     "on the same hold-out set"});
     return;
   }
-  if (holdout->samples != p.samples) {
+  if (holdout->sample_count != p.sample_count) {
     out->push_back({prefix + ".sample_count",
-                    absl::StrCat(p.samples,
+                    absl::StrCat(p.sample_count,
                                  " differs from candidate.evidence.holdout.sample_count ",
-                                 holdout->samples,
+                                 holdout->sample_count,
                                  ": paired counts must come from the candidate's hold-out "
                                  "set")});
   }
-  const std::uint64_t candidate_errors = p.both_wrong + p.only_challenger_wrong;
-  if (holdout->errors != candidate_errors) {
+  const std::uint64_t candidate_errors = p.both_wrong_count + p.only_challenger_wrong_count;
+  if (holdout->error_count != candidate_errors) {
     out->push_back({prefix + ".only_challenger_wrong_count",
                     absl::StrCat("both_wrong_count + only_challenger_wrong_count = ",
                                  candidate_errors,
                                  " must equal candidate.evidence.holdout.error_count ",
-                                 holdout->errors)});
+                                 holdout->error_count)});
   }
 }
 
@@ -147,12 +147,12 @@ absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
                       const std::optional<ChampionComparison>& champion) {
   std::vector<FieldViolation> v;
   CheckProbabilityOpen("policy.max_risk", policy.max_risk, &v);
-  if (CheckProbabilityOpen("policy.failure_probability", policy.delta, &v) &&
-      policy.delta < kMinGateDelta) {
+  if (CheckProbabilityOpen("policy.failure_probability", policy.failure_probability, &v) &&
+      policy.failure_probability < kMinGateDelta) {
     v.push_back({"policy.failure_probability",
                  absl::StrCat("must be at least ", Num(kMinGateDelta),
                               " to be split between the gate's tests, got ",
-                              Num(policy.delta))});
+                              Num(policy.failure_probability))});
   }
   CheckProbabilityOpen("policy.plan_pass_probability", policy.plan_pass_probability, &v);
   if (policy.max_regression.has_value()) {
@@ -371,31 +371,31 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
                                                    double delta_upper,
                                                    double delta_lower,
                                                    const StopToken& stop) {
-  const double rate_b = static_cast<double>(p.only_challenger_wrong) /
-                        static_cast<double>(p.samples);
-  const double rate_c = static_cast<double>(p.only_champion_wrong) /
-                        static_cast<double>(p.samples);
+  const double rate_b = static_cast<double>(p.only_challenger_wrong_count) /
+                        static_cast<double>(p.sample_count);
+  const double rate_c = static_cast<double>(p.only_champion_wrong_count) /
+                        static_cast<double>(p.sample_count);
   const double observed = rate_b - rate_c;
   std::function<bool(std::uint64_t)> ok;
   if (observed < t) {
     // Toward PROMOTE: round b up and c down (the anticipated counts that make
     // the upper limit largest).
     ok = [&](std::uint64_t n) {
-      PairedCounts q{0, ScaledFloor(p.only_champion_wrong, p.samples, n),
-                     ScaledCeil(p.only_challenger_wrong, p.samples, n), n};
+      PairedCounts q{0, ScaledFloor(p.only_champion_wrong_count, p.sample_count, n),
+                     ScaledCeil(p.only_challenger_wrong_count, p.sample_count, n), n};
       return PairedDifferenceUpper(q, delta_upper).value <= t;
     };
   } else if (observed > t) {
     ok = [&](std::uint64_t n) {
-      PairedCounts q{0, ScaledCeil(p.only_champion_wrong, p.samples, n),
-                     ScaledFloor(p.only_challenger_wrong, p.samples, n), n};
+      PairedCounts q{0, ScaledCeil(p.only_champion_wrong_count, p.sample_count, n),
+                     ScaledFloor(p.only_challenger_wrong_count, p.sample_count, n), n};
       return PairedDifferenceLower(q, delta_lower).value > t;
     };
   } else {
     return absl::NotFoundError("the observed difference equals the tolerance");
   }
   WorkBudget budget(kPairedPlanCpuSeconds);
-  return SmallestFrom(p.samples, ok, stop, &budget);
+  return SmallestFrom(p.sample_count, ok, stop, &budget);
 }
 
 }  // namespace
@@ -431,18 +431,18 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
   for (const FamilySpec* spec : split.families) {
     Certificate c = spec->compute(evidence, split.per_family);
     if (evidence.baseline_error_rate.has_value() &&
-        c.upper_bound >= *evidence.baseline_error_rate) {
+        c.risk_upper_bound >= *evidence.baseline_error_rate) {
       c.vacuous = true;
     }
     d.delta_ledger.emplace_back(absl::StrCat("risk upper bound: ", spec->slug),
                                 split.per_family);
     d.families_used.push_back(spec->family);
     certs.push_back(std::move(c));
-    if (certs.back().upper_bound < certs[tightest].upper_bound) tightest = certs.size() - 1;
+    if (certs.back().risk_upper_bound < certs[tightest].risk_upper_bound) tightest = certs.size() - 1;
   }
   d.risk_certificate = certs[tightest];
-  d.risk_certificate.lower_bound.reset();
-  const double upper = d.risk_certificate.upper_bound;
+  d.risk_certificate.risk_lower_bound.reset();
+  const double upper = d.risk_certificate.risk_upper_bound;
   const std::string upper_slug(split.families[tightest]->slug);
   const bool risk_promote = upper <= epsilon;
   for (const FamilySpec* spec : split.skipped) {
@@ -468,7 +468,7 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
   bool risk_reject = false;
   if (evidence.holdout.has_value()) {
     const Certificate low = HoldoutExactBinomial(*evidence.holdout, split.risk_lower);
-    d.risk_lower_bound = low.lower_bound.value_or(0.0);
+    d.risk_lower_bound = low.risk_lower_bound.value_or(0.0);
     d.delta_ledger.emplace_back("risk lower bound: holdout-binomial (Clopper-Pearson)",
                                 split.risk_lower);
     if (std::find(d.families_used.begin(), d.families_used.end(),
@@ -478,7 +478,7 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
     risk_reject = *d.risk_lower_bound > epsilon;
     details.push_back(absl::StrCat(
         "true error is at least ", Num(*d.risk_lower_bound), " (Clopper-Pearson on ",
-        evidence.holdout->errors, " errors in ", evidence.holdout->samples,
+        evidence.holdout->error_count, " errors in ", evidence.holdout->sample_count,
         " hold-out samples, failure probability ", Num(split.risk_lower), "), ",
         risk_reject ? "above" : "not above", " the threshold ", Num(epsilon)));
   } else {
@@ -510,12 +510,12 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
       const PairedCounts& p = *champion->paired;
       du = PairedDifferenceUpper(p, split.difference_upper);
       dl = PairedDifferenceLower(p, split.difference_lower);
-      how = absl::StrCat("paired Clopper-Pearson pair on ", p.samples,
+      how = absl::StrCat("paired Clopper-Pearson pair on ", p.sample_count,
                          " shared hold-out samples: only the candidate wrong on ",
-                         p.only_challenger_wrong, ", only the champion wrong on ",
-                         p.only_champion_wrong);
+                         p.only_challenger_wrong_count, ", only the champion wrong on ",
+                         p.only_champion_wrong_count);
       d.mcnemar_p_value =
-          McNemarExactOneSidedPValue(p.only_challenger_wrong, p.only_champion_wrong);
+          McNemarExactOneSidedPValue(p.only_challenger_wrong_count, p.only_champion_wrong_count);
       details.push_back(absl::StrCat(
           "exact one-sided McNemar p-value ", Num(*d.mcnemar_p_value),
           " that the candidate is better than the champion (informational, not used by "
@@ -529,8 +529,8 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
       du = UnpairedDifferenceUpper(*evidence.holdout, ch, split.difference_upper);
       dl = UnpairedDifferenceLower(*evidence.holdout, ch, split.difference_lower);
       how = absl::StrCat("separate Clopper-Pearson limits: candidate ",
-                         evidence.holdout->errors, "/", evidence.holdout->samples,
-                         ", champion ", ch.errors, "/", ch.samples);
+                         evidence.holdout->error_count, "/", evidence.holdout->sample_count,
+                         ", champion ", ch.error_count, "/", ch.sample_count);
       details.push_back(
           "champion and candidate were scored on different hold-out sets: this "
           "comparison is weaker than a paired one on a shared set");
@@ -563,13 +563,13 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
     }
   }
 
-  const std::uint64_t held = evidence.holdout.has_value() ? evidence.holdout->samples : 0;
-  const bool below_min = held < policy.min_holdout_samples;
+  const std::uint64_t held = evidence.holdout.has_value() ? evidence.holdout->sample_count : 0;
+  const bool below_min = held < policy.min_holdout_sample_count;
   std::string summary;
   if (below_min) {
     d.verdict = Verdict::kHold;
     summary = absl::StrCat("HOLD: ", held, " hold-out samples, fewer than the policy's ",
-                           "minimum of ", policy.min_holdout_samples,
+                           "minimum of ", policy.min_holdout_sample_count,
                            "; more labelled data is needed before a verdict");
     if (risk_reject || cmp_reject) {
       absl::StrAppend(&summary, " (the bounds alone would already REJECT)");
@@ -609,7 +609,7 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
   if (d.verdict == Verdict::kHold) {
     std::uint64_t need = 0;
     bool plannable = true;
-    if (below_min) need = policy.min_holdout_samples - held;
+    if (below_min) need = policy.min_holdout_sample_count - held;
     const bool risk_open = !risk_promote && !risk_reject;
     if (risk_open) {
       // The split a future run with hold-out counts will use.
@@ -633,16 +633,16 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
         HoldoutPlanRequest req;
         req.target_risk = epsilon;
         req.expected_risk = rate;
-        req.delta = next.per_family;
+        req.failure_probability = next.per_family;
         req.pass_probability = policy.plan_pass_probability;
-        req.samples_held = held;
+        req.held_sample_count = held;
         absl::StatusOr<HoldoutPlan> plan = PlanHoldout(req, stop);
         if (stop.StopRequested()) return stop.Status();
         if (plan.ok() && plan->reachable) {
-          need = std::max(need, plan->additional_samples);
+          need = std::max(need, plan->additional_sample_count);
           details.push_back(absl::StrCat(
               "if the error rate stays near ", rate_words, " ", Num(rate), ", about ",
-              plan->additional_samples, " more labelled hold-out samples (", plan->samples,
+              plan->additional_sample_count, " more labelled hold-out samples (", plan->sample_count,
               " in all) give a PROMOTE on risk with probability ",
               Num(plan->pass_probability_at_plan)));
         } else {
@@ -708,7 +708,7 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
             "shared hold-out set for a paired, tighter comparison");
       }
     }
-    if (plannable && need > 0) d.additional_samples_to_settle = need;
+    if (plannable && need > 0) d.additional_sample_count = need;
   }
 
   d.reasons.push_back(std::move(summary));
@@ -716,9 +716,9 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
 
   double spent = 0.0;
   for (const auto& [name, delta] : d.delta_ledger) spent += delta;
-  if (!(spent <= policy.delta)) {
+  if (!(spent <= policy.failure_probability)) {
     return absl::InternalError(absl::StrCat("delta ledger sums to ", Num(spent),
-                                            ", more than the policy's ", Num(policy.delta)));
+                                            ", more than the policy's ", Num(policy.failure_probability)));
   }
   return d;
 }

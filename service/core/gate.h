@@ -7,10 +7,10 @@
 // in families.h), the hold-out planning in plan.h.
 //
 // Failure-probability (delta) accounting. Every confidence statement the
-// verdict rests on gets an explicit share of policy.delta, listed in
-// GateDecision::delta_ledger; the shares sum to at most policy.delta, so by
+// verdict rests on gets an explicit share of policy.failure_probability, listed in
+// GateDecision::delta_ledger; the shares sum to at most policy.failure_probability, so by
 // the union bound (Bonferroni; bounds.md 11.3) ALL the reported bounds hold
-// together with probability >= 1 - policy.delta. The split depends only on
+// together with probability >= 1 - policy.failure_probability. The split depends only on
 // the policy and on which kinds of evidence are present (never on their
 // values), so it is fixed before the data is seen:
 //
@@ -62,7 +62,7 @@ struct GatePolicy {
   // epsilon: the highest tolerated true error, in (0, 1).
   double max_risk = 0.05;
   // delta: the failure probability of the whole verdict, in (0, 1).
-  double delta = 0.05;
+  double failure_probability = 0.05;
   // The bound families the risk upper bound may use. Those that apply to the
   // candidate's evidence are used (union bound over them); at least one must
   // apply. Empty: the hold-out exact binomial (Clopper-Pearson) only, the
@@ -70,7 +70,7 @@ struct GatePolicy {
   std::vector<Family> allowed_families;
   // Fewer hold-out samples than this: HOLD (more data needed), whatever the
   // bounds say. 0: no minimum.
-  std::uint64_t min_holdout_samples = 0;
+  std::uint64_t min_holdout_sample_count = 0;
   // Tolerated R(challenger) - R(champion) when a champion is given, in
   // [-1, 1]: 0 = not worse than the champion; 0.01 = at most one point worse;
   // negative = better by at least that much. Unset with a champion: 0.
@@ -123,9 +123,9 @@ struct GateDecision {
   std::optional<double> mcnemar_p_value;
   // HOLD only, when a plan exists: how many more labelled hold-out samples
   // are expected to settle the verdict (see DecideGate).
-  std::optional<std::uint64_t> additional_samples_to_settle;
+  std::optional<std::uint64_t> additional_sample_count;
   // Every confidence statement the verdict used and the delta it spent, in
-  // the order computed; the deltas sum to at most policy.delta.
+  // the order computed; the deltas sum to at most policy.failure_probability.
   std::vector<std::pair<std::string, double>> delta_ledger;
   // The bound families the risk bounds used, for the audit record: those of
   // the risk upper bound in policy order, then kHoldoutExactBinomial for the
@@ -148,9 +148,9 @@ const char* VerdictName(Verdict verdict);
 //    each other (U <= epsilon < L).
 //  * PROMOTE when U <= epsilon and (champion given) DU <= t.
 //  * HOLD otherwise, and whenever the hold-out set has fewer than
-//    policy.min_holdout_samples samples (the policy's "more data needed";
+//    policy.min_holdout_sample_count samples (the policy's "more data needed";
 //    the bounds are still computed and reported). A HOLD carries
-//    additional_samples_to_settle when a plan exists:
+//    additional_sample_count when a plan exists:
 //      - risk unsettled, observed hold-out rate p < epsilon: PlanHoldout
 //        (plan.h) with target epsilon, expected rate p, the delta share of
 //        the exact binomial upper bound, policy.plan_pass_probability and

@@ -15,8 +15,8 @@ constexpr char kRelaxedNote[] =
 }  // namespace
 
 Certificate HoldoutExactBinomial(const SampleCounts& counts, double delta) {
-  const TailLimit upper = BinomialUpperLimit(counts.samples, counts.errors, delta);
-  const TailLimit lower = BinomialLowerLimit(counts.samples, counts.errors, delta);
+  const TailLimit upper = BinomialUpperLimit(counts.sample_count, counts.error_count, delta);
+  const TailLimit lower = BinomialLowerLimit(counts.sample_count, counts.error_count, delta);
   Certificate c = MakeCertificate(Family::kHoldoutExactBinomial, delta, EmpiricalRate(counts),
                                   upper.value, lower.value);
   c.exact = upper.exact && lower.exact;
@@ -27,14 +27,14 @@ Certificate HoldoutExactBinomial(const SampleCounts& counts, double delta) {
 Certificate HoldoutHoeffding(const SampleCounts& counts, double delta) {
   const double rate = EmpiricalRate(counts);
   const double slack =
-      std::sqrt(-std::log(delta) / (2.0 * static_cast<double>(counts.samples)));
+      std::sqrt(-std::log(delta) / (2.0 * static_cast<double>(counts.sample_count)));
   return MakeCertificate(Family::kHoldoutHoeffding, delta, rate, rate + slack,
                          rate - slack);
 }
 
 Certificate HoldoutKlChernoff(const SampleCounts& counts, double delta) {
   const double rate = EmpiricalRate(counts);
-  const double budget = -std::log(delta) / static_cast<double>(counts.samples);
+  const double budget = -std::log(delta) / static_cast<double>(counts.sample_count);
   return MakeCertificate(Family::kHoldoutKlChernoff, delta, rate,
                          KlInverseUpper(rate, budget), KlInverseLower(rate, budget));
 }

@@ -14,7 +14,7 @@ namespace riskbound::core {
 // HoldoutExactBinomial
 // One-sided Clopper-Pearson limits (exact binomial tail inversion).
 // Source: Clopper & Pearson (1934); Langford (2005) test-set bound.
-// REQUIRES: counts.samples >= 1, counts.errors <= counts.samples,
+// REQUIRES: counts.sample_count >= 1, counts.error_count <= counts.sample_count,
 //           0 < delta < 1.
 Certificate HoldoutExactBinomial(const SampleCounts& counts, double delta);
 

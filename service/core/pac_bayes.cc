@@ -35,7 +35,7 @@ Certificate Finish(Family family, const PacBayesEvidence& e, double delta,
 }  // namespace
 
 Certificate PacBayesMcAllester(const PacBayesEvidence& evidence, double delta) {
-  const double m = static_cast<double>(evidence.samples);
+  const double m = static_cast<double>(evidence.sample_count);
   const double numerator = evidence.kl_divergence - std::log(delta) + std::log(m) + 2.0;
   const double upper =
       evidence.gibbs_empirical_risk + std::sqrt(numerator / (2.0 * m - 1.0));
@@ -43,8 +43,8 @@ Certificate PacBayesMcAllester(const PacBayesEvidence& evidence, double delta) {
 }
 
 Certificate PacBayesKl(const PacBayesEvidence& evidence, double delta) {
-  const double m = static_cast<double>(evidence.samples);
-  const bool small = evidence.samples < 8;
+  const double m = static_cast<double>(evidence.sample_count);
+  const bool small = evidence.sample_count < 8;
   // ln(2 sqrt(m)/delta) (Maurer, m >= 8) or ln((m + 1)/delta) (Seeger).
   const double log_term = small ? std::log(m + 1.0) - std::log(delta)
                                 : std::log(2.0) + 0.5 * std::log(m) - std::log(delta);
@@ -73,7 +73,7 @@ Certificate PacBayesCatoni(const PacBayesEvidence& evidence, double delta) {
   double best_c = kCatoniGrid[0];
   for (double c : kCatoniGrid) {
     const double v = PacBayesCatoniAt(evidence.gibbs_empirical_risk, evidence.kl_divergence,
-                                      evidence.samples, c, share);
+                                      evidence.sample_count, c, share);
     if (v < best) {
       best = v;
       best_c = c;

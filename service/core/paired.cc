@@ -26,28 +26,28 @@ double McNemarExactOneSidedPValue(std::uint64_t b, std::uint64_t c) {
 
 TailLimit PairedDifferenceUpper(const PairedCounts& counts, double delta) {
   const double half = delta / 2.0;
-  return Difference(BinomialUpperLimit(counts.samples, counts.only_challenger_wrong, half),
-                    BinomialLowerLimit(counts.samples, counts.only_champion_wrong, half));
+  return Difference(BinomialUpperLimit(counts.sample_count, counts.only_challenger_wrong_count, half),
+                    BinomialLowerLimit(counts.sample_count, counts.only_champion_wrong_count, half));
 }
 
 TailLimit PairedDifferenceLower(const PairedCounts& counts, double delta) {
   const double half = delta / 2.0;
-  return Difference(BinomialLowerLimit(counts.samples, counts.only_challenger_wrong, half),
-                    BinomialUpperLimit(counts.samples, counts.only_champion_wrong, half));
+  return Difference(BinomialLowerLimit(counts.sample_count, counts.only_challenger_wrong_count, half),
+                    BinomialUpperLimit(counts.sample_count, counts.only_champion_wrong_count, half));
 }
 
 TailLimit UnpairedDifferenceUpper(const SampleCounts& challenger,
                                   const SampleCounts& champion, double delta) {
   const double half = delta / 2.0;
-  return Difference(BinomialUpperLimit(challenger.samples, challenger.errors, half),
-                    BinomialLowerLimit(champion.samples, champion.errors, half));
+  return Difference(BinomialUpperLimit(challenger.sample_count, challenger.error_count, half),
+                    BinomialLowerLimit(champion.sample_count, champion.error_count, half));
 }
 
 TailLimit UnpairedDifferenceLower(const SampleCounts& challenger,
                                   const SampleCounts& champion, double delta) {
   const double half = delta / 2.0;
-  return Difference(BinomialLowerLimit(challenger.samples, challenger.errors, half),
-                    BinomialUpperLimit(champion.samples, champion.errors, half));
+  return Difference(BinomialLowerLimit(challenger.sample_count, challenger.error_count, half),
+                    BinomialUpperLimit(champion.sample_count, champion.error_count, half));
 }
 
 }  // namespace riskbound::core

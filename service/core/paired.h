@@ -29,13 +29,13 @@ namespace riskbound::core {
 // champion.paired.only_challenger_wrong_count, champion.paired.sample_count.
 struct PairedCounts {
   // Examples both models get wrong.
-  std::uint64_t both_wrong = 0;
+  std::uint64_t both_wrong_count = 0;
   // c: the champion is wrong, the challenger right.
-  std::uint64_t only_champion_wrong = 0;
+  std::uint64_t only_champion_wrong_count = 0;
   // b: the challenger is wrong, the champion right.
-  std::uint64_t only_challenger_wrong = 0;
+  std::uint64_t only_challenger_wrong_count = 0;
   // n: every hold-out example, including those both models get right.
-  std::uint64_t samples = 0;
+  std::uint64_t sample_count = 0;
 };
 
 // McNemarExactOneSidedPValue
@@ -63,7 +63,7 @@ double McNemarExactOneSidedPValue(std::uint64_t b, std::uint64_t c);
 // conservative relaxation stood in for a Clopper-Pearson limit (still valid).
 // Source: Clopper & Pearson (1934) with a Bonferroni union bound; bounds.md
 // 11.2(a) (derived there; coverage 0.9972 at nominal 0.95 in its row 11.2).
-// REQUIRES: counts.samples >= 1, b <= n, c <= n, 0 < delta < 1. Thread-safe.
+// REQUIRES: counts.sample_count >= 1, b <= n, c <= n, 0 < delta < 1. Thread-safe.
 TailLimit PairedDifferenceUpper(const PairedCounts& counts, double delta);
 
 // PairedDifferenceLower

@@ -171,7 +171,7 @@ std::string Unreachable(double target, double expected, absl::string_view what) 
 
 void CheckHeld(std::uint64_t held, std::vector<FieldViolation>* v) {
   if (held > kPlanMaxSamples) {
-    v->push_back({"samples_held", absl::StrCat("must be at most 2^53 = ", kPlanMaxSamples,
+    v->push_back({"held_sample_count", absl::StrCat("must be at most 2^53 = ", kPlanMaxSamples,
                                                ", got ", held)});
   }
 }
@@ -199,23 +199,23 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
   std::vector<FieldViolation> violations;
   CheckTarget(request.target_risk, &violations);
   CheckProbabilityClosed("expected_risk", request.expected_risk, &violations);
-  CheckProbabilityOpen("failure_probability", request.delta, &violations);
+  CheckProbabilityOpen("failure_probability", request.failure_probability, &violations);
   if (request.pass_probability.has_value()) {
     CheckProbabilityOpen("pass_probability", *request.pass_probability, &violations);
   }
-  CheckHeld(request.samples_held, &violations);
+  CheckHeld(request.held_sample_count, &violations);
   if (!violations.empty()) return InvalidFields(violations);
 
   const double eps = request.target_risk;
   const double p = request.expected_risk;
-  const double delta = request.delta;
+  const double delta = request.failure_probability;
   HoldoutPlan plan;
-  if (eps < 1.0) plan.zero_failure_samples = ZeroFailureSamples(eps, delta).value_or(0);
+  if (eps < 1.0) plan.zero_failure_sample_count = ZeroFailureSamples(eps, delta).value_or(0);
   if (eps >= 1.0 || p >= eps) {
     plan.reason = Unreachable(eps, p, "expected error rate");
     return plan;
   }
-  if (plan.zero_failure_samples == 0) {
+  if (plan.zero_failure_sample_count == 0) {
     // Even with no errors more than 2^53 samples are needed.
     plan.reason = kBeyondRange;
     return plan;
@@ -225,11 +225,11 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
   // HoldoutUpper(n, k) <= eps, decided from one binomial tail where possible.
   const CountedBound ok(
       [&](std::uint64_t n, std::uint64_t k) { return UpperLimitAtMost(n, k, delta, eps); },
-      &plan.bound_evaluations, stop);
+      &plan.bound_evaluation_count, stop);
   // No n below the zero-failure size can work: Binbar(n, k) >= Binbar(n, 0).
   // One below it guards against rounding in the closed form.
   const absl::StatusOr<std::uint64_t> n95 =
-      RobustSmallest(p, std::max<std::uint64_t>(1, plan.zero_failure_samples - 1), ok);
+      RobustSmallest(p, std::max<std::uint64_t>(1, plan.zero_failure_sample_count - 1), ok);
   if (ok.stopped()) return stop.Status();
   if (ok.exhausted()) {
     plan.reason = kOverBudget;
@@ -239,8 +239,8 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
     plan.reason = kBeyondRange;
     return plan;
   }
-  plan.expected_rate_samples = *n95;
-  plan.samples = *n95;
+  plan.expected_rate_sample_count = *n95;
+  plan.sample_count = *n95;
   plan.rule = absl::StrFormat(
       "smallest n at which the exact binomial bound at ceil(%g n) errors is <= %g, and "
       "stays so for the next ceil(2/p) samples (formula sheet 9.5)",
@@ -337,23 +337,23 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
     if (ok.stopped()) return stop.Status();
     if (ok.exhausted()) {
       plan.reason = kOverBudget;
-      plan.samples = 0;
+      plan.sample_count = 0;
       return plan;
     }
     if (!s_star.ok()) {
       plan.reason = kBeyondRange;
-      plan.samples = 0;
+      plan.sample_count = 0;
       return plan;
     }
     const std::uint64_t good = *k_star;
     const std::uint64_t n96 = *s_star;
-    plan.pass_probability_samples = n96;
-    plan.samples = n96;
+    plan.pass_probability_sample_count = n96;
+    plan.sample_count = n96;
     tolerated = k_max(n96, good);
     if (ok.stopped()) return stop.Status();
     if (ok.exhausted()) {
       plan.reason = kOverBudget;
-      plan.samples = 0;
+      plan.sample_count = 0;
       return plan;
     }
     plan.rule = absl::StrFormat(
@@ -366,14 +366,14 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
   }
 
   plan.reachable = true;
-  plan.tolerated_errors = tolerated;
+  plan.tolerated_error_count = tolerated;
   if (stop.StopRequested()) return stop.Status();
   bool exact = true;
-  HoldoutUpper(plan.samples, plan.tolerated_errors, delta, &exact);
+  HoldoutUpper(plan.sample_count, plan.tolerated_error_count, delta, &exact);
   plan.pass_probability_at_plan =
-      PassProbability(plan.samples, plan.tolerated_errors, p, &exact);
-  plan.additional_samples =
-      plan.samples > request.samples_held ? plan.samples - request.samples_held : 0;
+      PassProbability(plan.sample_count, plan.tolerated_error_count, p, &exact);
+  plan.additional_sample_count =
+      plan.sample_count > request.held_sample_count ? plan.sample_count - request.held_sample_count : 0;
   if (!exact) {
     plan.notes.emplace_back(
         "at this size the exact binomial computations did not converge; the "
@@ -414,13 +414,13 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
   CheckProbabilityClosed("expected_empirical_risk", request.expected_empirical_risk,
                          &violations);
   CheckTarget(request.target_risk, &violations);
-  CheckProbabilityOpen("failure_probability", request.delta, &violations);
-  CheckHeld(request.samples_held, &violations);
+  CheckProbabilityOpen("failure_probability", request.failure_probability, &violations);
+  CheckHeld(request.held_sample_count, &violations);
   if (!violations.empty()) return InvalidFields(violations);
 
   const double eps = request.target_risk;
   const double r = request.expected_empirical_risk;
-  const double delta = request.delta;
+  const double delta = request.failure_probability;
   TrainingPlan plan;
   plan.notes.push_back(absl::StrFormat(
       "the bound is evaluated at m samples with ceil(%g m) training errors (at least the "
@@ -436,7 +436,7 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
     if (uses_vc) {
       const double h = static_cast<double>(*request.capacity.vc_dimension);
       // Blumer, Ehrenfeucht, Haussler & Warmuth (1989), Thm 2.1(ii)(b).
-      plan.realizable_reference = fits(std::max(4.0 / eps * std::log2(2.0 / delta),
+      plan.realizable_sample_count = fits(std::max(4.0 / eps * std::log2(2.0 / delta),
                                                 8.0 * h / eps * std::log2(13.0 / eps)));
       // Formula sheet 9.2: VC confidence (our conservative form, +1/m) <= eps/2.
       // Falls in m for m > h/2 and exceeds 1 below, so the predicate is monotone.
@@ -446,25 +446,25 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
             const double md = static_cast<double>(m);
             return VcConfidence(h, md, delta) + 1.0 / md <= eps / 2.0;
           });
-      if (agn.ok()) plan.agnostic_reference = *agn;
+      if (agn.ok()) plan.agnostic_sample_count = *agn;
       plan.notes.emplace_back(
-          "realizable_reference: Blumer, Ehrenfeucht, Haussler & Warmuth (1989) sample "
+          "realizable_sample_count: Blumer, Ehrenfeucht, Haussler & Warmuth (1989) sample "
           "size for a consistent learner to reach error <= target (comparison only)");
       plan.notes.emplace_back(
-          "agnostic_reference: smallest m with VC confidence (with +1/m) <= target/2, so "
+          "agnostic_sample_count: smallest m with VC confidence (with +1/m) <= target/2, so "
           "that ERM is within the target of the best in the class (comparison only)");
       plan.notes.emplace_back(
           "VC bounds fall with m only once m > h/2; below that they are vacuous");
     } else {
       const double log_h = *request.capacity.log_hypothesis_count;
       // Shalev-Shwartz & Ben-David (2014), Cor. 2.3 and Cor. 4.6.
-      plan.realizable_reference = fits((log_h - std::log(delta)) / eps);
-      plan.agnostic_reference = fits(2.0 * (log_h + std::log(2.0 / delta)) / (eps * eps));
+      plan.realizable_sample_count = fits((log_h - std::log(delta)) / eps);
+      plan.agnostic_sample_count = fits(2.0 * (log_h + std::log(2.0 / delta)) / (eps * eps));
       plan.notes.emplace_back(
-          "realizable_reference: ceil((ln|H| + ln(1/delta)) / target), a consistent "
+          "realizable_sample_count: ceil((ln|H| + ln(1/delta)) / target), a consistent "
           "hypothesis of a finite class (Blumer et al. 1987) (comparison only)");
       plan.notes.emplace_back(
-          "agnostic_reference: ceil(2 (ln|H| + ln(2/delta)) / target^2), ERM within the "
+          "agnostic_sample_count: ceil(2 (ln|H| + ln(2/delta)) / target^2), ERM within the "
           "target of the best in the class (Shalev-Shwartz & Ben-David 2014, Cor. 4.6) "
           "(comparison only)");
     }
@@ -478,9 +478,9 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
       [&](std::uint64_t m, std::uint64_t k) {
         Evidence e;
         e.training = TrainingEvidence{{k, m}, request.capacity};
-        return spec->compute(e, delta).upper_bound <= eps;
+        return spec->compute(e, delta).risk_upper_bound <= eps;
       },
-      &plan.bound_evaluations, stop);
+      &plan.bound_evaluation_count, stop);
   const absl::StatusOr<std::uint64_t> m = RobustSmallest(r, 1, ok);
   if (ok.stopped()) return stop.Status();
   if (ok.exhausted()) {
@@ -492,9 +492,9 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
     return plan;
   }
   plan.reachable = true;
-  plan.samples = *m;
-  plan.additional_samples =
-      plan.samples > request.samples_held ? plan.samples - request.samples_held : 0;
+  plan.sample_count = *m;
+  plan.additional_sample_count =
+      plan.sample_count > request.held_sample_count ? plan.sample_count - request.held_sample_count : 0;
   return plan;
 }
 

@@ -46,48 +46,48 @@ struct HoldoutPlanRequest {
   // 0 plans for no errors at all.
   double expected_risk = 0.0;
   // Failure probability of the bound, in (0, 1).
-  double delta = 0.05;
+  double failure_probability = 0.05;
   // If set, in (0, 1): plan for this probability that the bound will in fact
   // reach the target when the true error rate is p (formula sheet 9.6).
   std::optional<double> pass_probability;
-  // Hold-out examples the caller already has (for additional_samples).
-  std::uint64_t samples_held = 0;
+  // Hold-out examples the caller already has (for additional_sample_count).
+  std::uint64_t held_sample_count = 0;
 };
 
 struct HoldoutPlan {
   // False when no sample size up to kPlanMaxSamples reaches the target;
-  // samples, tolerated_errors and additional_samples are then 0 (the other
+  // samples, tolerated_error_count and additional_sample_count are then 0 (the other
   // fields are filled where they can be computed).
   bool reachable = false;
   // Why the target cannot be reached, in plain words (empty when reachable).
   std::string reason;
-  // The plan: without pass_probability, expected_rate_samples; with it,
-  // pass_probability_samples.
-  std::uint64_t samples = 0;
+  // The plan: without pass_probability, expected_rate_sample_count; with it,
+  // pass_probability_sample_count.
+  std::uint64_t sample_count = 0;
   // k_max(samples) = max { k : Binbar(samples, k, delta) <= target }: the most
   // errors the hold-out set may show and still certify the target.
-  std::uint64_t tolerated_errors = 0;
+  std::uint64_t tolerated_error_count = 0;
   // ceil(ln delta / ln(1 - target)): enough when no error at all is expected
   // (formula sheet 9.4; Hanley & Lippman-Hand 1983). 0 when beyond 2^53.
-  std::uint64_t zero_failure_samples = 0;
-  // max(0, samples - samples_held).
-  std::uint64_t additional_samples = 0;
-  // P(Bin(samples, p) <= tolerated_errors): the probability that a model with
+  std::uint64_t zero_failure_sample_count = 0;
+  // max(0, samples - held_sample_count).
+  std::uint64_t additional_sample_count = 0;
+  // P(Bin(samples, p) <= tolerated_error_count): the probability that a model with
   // true error rate p passes at the planned size.
   double pass_probability_at_plan = 0.0;
   // Smallest n with Binbar(n, ceil(p n), delta) <= target, robust to the
   // sawtooth (formula sheet 9.5).
-  std::uint64_t expected_rate_samples = 0;
+  std::uint64_t expected_rate_sample_count = 0;
   // With pass_probability: smallest n with P(pass at n) >= pass_probability
   // (formula sheet 9.6); the pass probability is itself a sawtooth in n, so it
   // can dip below the request again for a few samples after this n.
-  std::optional<std::uint64_t> pass_probability_samples;
+  std::optional<std::uint64_t> pass_probability_sample_count;
   // Which rule set `samples`, in plain words.
   std::string rule;
   // Remarks (relaxations used, sawtooth warnings).
   std::vector<std::string> notes;
   // Bound evaluations the searches used (a cost figure; logarithmic in n).
-  std::uint64_t bound_evaluations = 0;
+  std::uint64_t bound_evaluation_count = 0;
 };
 
 // PlanHoldout
@@ -99,7 +99,7 @@ struct HoldoutPlan {
 // expected rate within a hair of the target, whose answer lies near 2^53).
 // Errors: INVALID_ARGUMENT naming each bad field: target_risk (NaN, <= 0),
 // expected_risk (NaN, outside [0, 1]), failure_probability (outside (0, 1)),
-// pass_probability (outside (0, 1)), samples_held (> 2^53).
+// pass_probability (outside (0, 1)), held_sample_count (> 2^53).
 // Stops early when `stop` does and returns its status (CANCELLED or
 // DEADLINE_EXCEEDED), never a partial plan.
 // Never returns NaN or Inf. Thread-safe; no shared state.
@@ -118,8 +118,8 @@ struct TrainingPlanRequest {
   // epsilon, in (0, 1); 1 or more is reported unreachable.
   double target_risk = 0.1;
   // Failure probability, in (0, 1).
-  double delta = 0.05;
-  std::uint64_t samples_held = 0;
+  double failure_probability = 0.05;
+  std::uint64_t held_sample_count = 0;
 };
 
 struct TrainingPlan {
@@ -127,22 +127,22 @@ struct TrainingPlan {
   std::string reason;
   // Smallest m with family bound(m, ceil(r m)) <= target, robust to the
   // sawtooth (see the file comment), by exact integer search.
-  std::uint64_t samples = 0;
-  std::uint64_t additional_samples = 0;
+  std::uint64_t sample_count = 0;
+  std::uint64_t additional_sample_count = 0;
   // Comparison only (a different guarantee: a consistent learner reaches
   // error <= target with probability >= 1 - delta): VC families, Blumer,
   // Ehrenfeucht, Haussler & Warmuth (1989) Thm 2.1(ii)(b); finite classes,
   // ceil((ln|H| + ln(1/delta)) / target) (Blumer et al. 1987;
   // Shalev-Shwartz & Ben-David 2014, Cor. 2.3). Unset beyond 2^53.
-  std::optional<std::uint64_t> realizable_reference;
+  std::optional<std::uint64_t> realizable_sample_count;
   // Comparison only (ERM within target of the best in the class): finite
   // classes, ceil(2 (ln|H| + ln(2/delta)) / target^2) (Shalev-Shwartz &
   // Ben-David 2014, Cor. 4.6); VC families, the smallest m with our VC
   // confidence (with its +1/m) <= target/2 (formula sheet 9.2).
-  std::optional<std::uint64_t> agnostic_reference;
+  std::optional<std::uint64_t> agnostic_sample_count;
   // Remarks: the counting convention, regime warnings, what the references mean.
   std::vector<std::string> notes;
-  std::uint64_t bound_evaluations = 0;
+  std::uint64_t bound_evaluation_count = 0;
 };
 
 // PlanTraining
@@ -156,7 +156,7 @@ struct TrainingPlan {
 // Errors: INVALID_ARGUMENT naming each bad field: family (unknown or not a
 // training-set family), capacity (missing the measure the family uses) /
 // capacity.log_hypothesis_count (not finite, < 0), expected_empirical_risk,
-// target_risk, failure_probability, samples_held.
+// target_risk, failure_probability, held_sample_count.
 // Stops early when `stop` does and returns its status (CANCELLED or
 // DEADLINE_EXCEEDED), never a partial plan.
 // Never returns NaN or Inf. Thread-safe; no shared state.

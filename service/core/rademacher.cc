@@ -8,8 +8,8 @@
 namespace riskbound::core {
 
 Certificate RademacherBound(const RademacherEvidence& evidence, double delta) {
-  const double m = static_cast<double>(evidence.counts.samples);
-  const double rate = EmpiricalRate(evidence.counts);
+  const double m = static_cast<double>(evidence.sample_count);
+  const double rate = EmpiricalRate(evidence);
   const bool sampled = evidence.sigma_draw_count > 0;
   const double main_delta = sampled ? delta / 2.0 : delta;
   double complexity = evidence.empirical_rademacher;

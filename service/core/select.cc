@@ -85,17 +85,17 @@ void CheckCandidates(const SelectRequest& request, std::optional<Measure> measur
     } else if (!ids.insert(c.id).second) {
       v->push_back({prefix + ".id", absl::StrCat("id \"", c.id, "\" is used twice")});
     }
-    if (c.training.samples == 0) {
+    if (c.training.sample_count == 0) {
       v->push_back({prefix + ".training.sample_count", "must be at least 1"});
-    } else if (c.training.samples > kMaxSampleCount) {
+    } else if (c.training.sample_count > kMaxSampleCount) {
       v->push_back({prefix + ".training.sample_count",
                     absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
-                                 c.training.samples)});
+                                 c.training.sample_count)});
     }
-    if (c.training.errors > c.training.samples) {
+    if (c.training.error_count > c.training.sample_count) {
       v->push_back({prefix + ".training.error_count",
-                    absl::StrCat(c.training.errors, " errors exceed the ",
-                                 c.training.samples, " samples they were counted on")});
+                    absl::StrCat(c.training.error_count, " errors exceed the ",
+                                 c.training.sample_count, " samples they were counted on")});
     }
     if (!measure.has_value()) continue;  // the family is reported instead
     const std::optional<double> cap = CapacityOf(c, *measure);
@@ -158,7 +158,7 @@ std::string DeltaRule(const SelectRequest& request, double total) {
       return absl::StrFormat(
           "union bound over %d candidates: each bound at delta/%d = %g; the chosen "
           "bound holds with probability >= 1 - %g",
-          k, k, request.delta / static_cast<double>(k), total);
+          k, k, request.failure_probability / static_cast<double>(k), total);
     case DeltaSpread::kInverseSquare:
       return absl::StrFormat(
           "union bound with weights w_k = 6/(pi^2 k^2) (k = position, from 1): "
@@ -181,7 +181,7 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
                                              const StopToken& stop) {
   if (stop.StopRequested()) return stop.Status();
   std::vector<FieldViolation> violations;
-  CheckProbabilityOpen("failure_probability", request.delta, &violations);
+  CheckProbabilityOpen("failure_probability", request.failure_probability, &violations);
   CheckNonNegativeFinite("fragility_tolerance", request.fragility_tolerance, &violations);
   const FamilySpec* spec = FindFamily(request.family);
   std::optional<Measure> measure;
@@ -210,38 +210,38 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
     const Candidate& c = request.candidates[i];
     Evidence evidence;
     evidence.training = TrainingEvidence{c.training, c.capacity};
-    const double delta_i = request.delta * weights[i];
+    const double delta_i = request.failure_probability * weights[i];
     const Certificate cert = spec->compute(evidence, delta_i);
     CandidateResult row;
     row.id = c.id;
     row.capacity = *CapacityOf(c, *measure);
     row.empirical_risk = cert.empirical_risk;
     row.penalty = cert.penalty;
-    row.upper_bound = cert.upper_bound;
-    row.delta = delta_i;
+    row.risk_upper_bound = cert.risk_upper_bound;
+    row.failure_probability = delta_i;
     row.vacuous = cert.vacuous;
-    row.weight = weights[i];
+    row.delta_weight = weights[i];
     row.exact = cert.exact;
     row.notes = cert.notes;
-    result.total_delta += delta_i;
+    result.spent_failure_probability += delta_i;
     result.candidates.push_back(std::move(row));
   }
   const auto& rows = result.candidates;
   for (std::size_t i = 1; i < rows.size(); ++i) {
-    if (rows[i].upper_bound < rows[result.chosen_index].upper_bound) {
+    if (rows[i].risk_upper_bound < rows[result.chosen_index].risk_upper_bound) {
       result.chosen_index = i;
     }
   }
-  const double best = rows[result.chosen_index].upper_bound;
+  const double best = rows[result.chosen_index].risk_upper_bound;
   for (std::size_t i = 0; i < rows.size(); ++i) {
     if (i != result.chosen_index &&
-        rows[i].upper_bound - best <= request.fragility_tolerance) {
+        rows[i].risk_upper_bound - best <= request.fragility_tolerance) {
       result.within_tolerance.push_back(i);
     }
   }
   if (stop.StopRequested()) return stop.Status();
   result.fragile = !result.within_tolerance.empty();
-  result.delta_rule = DeltaRule(request, result.total_delta);
+  result.delta_rule = DeltaRule(request, result.spent_failure_probability);
   if (rows[result.chosen_index].vacuous) {
     result.notes.emplace_back(
         "every candidate's bound is vacuous (>= 1): the structure says nothing about "

@@ -56,7 +56,7 @@ struct SelectRequest {
   // (any registered family that works on training evidence alone).
   Family family = Family::kVcAdditive;
   // Failure probability of the selected bound, in (0, 1).
-  double delta = 0.05;
+  double failure_probability = 0.05;
   DeltaSpread spread = DeltaSpread::kInverseSquare;
   // kCallerWeights only: one weight per candidate, each in (0, 1], sum <= 1.
   std::vector<double> weights;
@@ -73,13 +73,13 @@ struct CandidateResult {
   // upper_bound - empirical_risk.
   double penalty = 0.0;
   // The candidate's bound at delta (below), clipped to [0, 1].
-  double upper_bound = 1.0;
+  double risk_upper_bound = 1.0;
   // delta * weight: the failure probability spent on this candidate.
-  double delta = 0.0;
+  double failure_probability = 0.0;
   // True when the bound says nothing (>= 1).
   bool vacuous = true;
   // The weight w_k (delta = request delta * weight).
-  double weight = 0.0;
+  double delta_weight = 0.0;
   // False when a conservative relaxation stood in for an exact computation.
   bool exact = true;
   // The family's remarks on this candidate.
@@ -101,7 +101,7 @@ struct SelectResult {
   // How delta was spread, in plain words.
   std::string delta_rule;
   // sum_k delta_k: the chosen bound holds with probability >= 1 - total_delta.
-  double total_delta = 0.0;
+  double spent_failure_probability = 0.0;
   // Plain-words remarks (every bound vacuous, ...).
   std::vector<std::string> notes;
 };

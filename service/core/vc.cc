@@ -28,7 +28,7 @@ double VcConfidence(double h, double m, double delta) {
 
 Certificate VcAdditive(const SampleCounts& counts, std::uint64_t vc_dimension,
                        double delta) {
-  const double m = static_cast<double>(counts.samples);
+  const double m = static_cast<double>(counts.sample_count);
   const double rate = EmpiricalRate(counts);
   const double slack = VcConfidence(static_cast<double>(vc_dimension), m, delta) + 1.0 / m;
   Certificate c = MakeCertificate(Family::kVcAdditive, delta, rate, rate + slack,
@@ -42,7 +42,7 @@ Certificate VcAdditive(const SampleCounts& counts, std::uint64_t vc_dimension,
 
 Certificate VcRelative(const SampleCounts& counts, std::uint64_t vc_dimension,
                        double delta) {
-  const double m = static_cast<double>(counts.samples);
+  const double m = static_cast<double>(counts.sample_count);
   const double rate = EmpiricalRate(counts);
   const double e = 4.0 * VcNumerator(static_cast<double>(vc_dimension), m, delta) / m;
   const double upper = rate + (e / 2.0) * (1.0 + std::sqrt(1.0 + 4.0 * rate / e));

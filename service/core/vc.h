@@ -31,7 +31,7 @@ double VcConfidence(double h, double m, double delta);
 // R <= R_emp + VcConfidence + 1/m (the 1/m keeps the conservative form of
 // the deviation inequality). Lower bound R_emp - VcConfidence - 1/m holds on
 // the same event.
-// REQUIRES: counts.samples >= 1, counts.errors <= counts.samples,
+// REQUIRES: counts.sample_count >= 1, counts.error_count <= counts.sample_count,
 //           0 < delta < 1.
 Certificate VcAdditive(const SampleCounts& counts, std::uint64_t vc_dimension,
                        double delta);

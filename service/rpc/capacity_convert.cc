@@ -253,7 +253,7 @@ void CapacityEstimateToProto(const core::CapacityEstimate& in, v1::CapacityEstim
       out->set_status(v1::CAPACITY_STATUS_INFINITE);
       break;
   }
-  if (in.lower_bound.has_value()) out->set_vc_dimension_lower_bound(*in.lower_bound);
+  if (in.vc_dimension_lower_bound.has_value()) out->set_vc_dimension_lower_bound(*in.vc_dimension_lower_bound);
   out->set_exceeds_uint64(in.exceeds_uint64);
   out->set_source(in.source);
   out->set_formula(in.formula);

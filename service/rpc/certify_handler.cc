@@ -11,7 +11,7 @@ absl::StatusOr<v1::CertifyResponse> HandleCertify(const v1::CertifyRequest& requ
   if (!core_request.ok()) return core_request.status();
   absl::StatusOr<core::CertifyResult> result = core::Certify(*core_request, stop);
   if (!result.ok()) return result.status();
-  return CertifyResponseToProto(*result, core_request->delta);
+  return CertifyResponseToProto(*result, core_request->failure_probability);
 }
 
 }  // namespace riskbound::rpc

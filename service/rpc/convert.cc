@@ -52,7 +52,8 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
   }
   if (e.has_training()) {
     core::TrainingEvidence t;
-    t.counts = Counts(e.training().error_count(), e.training().sample_count());
+    t.error_count = e.training().error_count();
+    t.sample_count = e.training().sample_count();
     CapacityFromProto(e.training().capacity(), prefix + ".training.capacity", &t.capacity,
                       violations);
     out->training = t;
@@ -63,7 +64,7 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
     core::BoundedLossEvidence c;
     c.mean_loss = b.mean_loss();
     c.sample_variance = b.sample_variance();
-    c.samples = b.sample_count();
+    c.sample_count = b.sample_count();
     if (b.has_loss_min()) c.loss_min = b.loss_min();
     if (b.has_loss_max()) c.loss_max = b.loss_max();
     out->bounded_loss = c;
@@ -73,7 +74,7 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
     core::PacBayesEvidence c;
     c.kl_divergence = p.kl_divergence();
     c.gibbs_empirical_risk = p.gibbs_empirical_risk();
-    c.samples = p.sample_count();
+    c.sample_count = p.sample_count();
     switch (p.target()) {
       case v1::PAC_BAYES_TARGET_GIBBS:
         c.target = core::PacBayesTarget::kGibbs;
@@ -91,7 +92,8 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
   if (e.has_rademacher()) {
     const v1::RademacherEvidence& r = e.rademacher();
     core::RademacherEvidence c;
-    c.counts = Counts(r.error_count(), r.sample_count());
+    c.error_count = r.error_count();
+    c.sample_count = r.sample_count();
     c.empirical_rademacher = r.empirical_rademacher();
     c.sigma_draw_count = r.sigma_draw_count();
     out->rademacher = c;
@@ -99,9 +101,9 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
   if (e.has_compression()) {
     const v1::CompressionEvidence& k = e.compression();
     core::CompressionEvidence c;
-    c.samples = k.sample_count();
+    c.sample_count = k.sample_count();
     c.compression_size = k.compression_size();
-    c.errors_outside = k.outside_error_count();
+    c.outside_error_count = k.outside_error_count();
     c.size_fixed_in_advance = k.size_fixed_in_advance();
     out->compression = c;
   }
@@ -119,7 +121,7 @@ absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRe
       core::CheckListSize("listed.delta_weights", in.listed().delta_weights_size(),
                           core::kMaxListedDeltaWeights, &violations);
   EvidenceFromProto(in.evidence(), "evidence", &out.evidence, &violations);
-  out.delta = in.failure_probability();
+  out.failure_probability = in.failure_probability();
   switch (in.family_choice_case()) {
     case v1::CertifyRequest::kListed: {
       out.choice = core::FamilyChoice::kListed;
@@ -139,7 +141,7 @@ absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRe
       out.choice = core::FamilyChoice::kRecommended;
       break;
   }
-  core::CheckProbabilityOpen("failure_probability", out.delta, &violations);
+  core::CheckProbabilityOpen("failure_probability", out.failure_probability, &violations);
   core::ValidateEvidence(out.evidence, &violations).IgnoreError();
   DropRedundantCapacityViolations(&violations);
   if (!violations.empty()) return core::InvalidFields(violations);
@@ -153,17 +155,17 @@ void CertificateToProto(const core::Certificate& in, v1::Certificate* out) {
     out->set_source(std::string(spec->source));
     out->set_assumptions(std::string(spec->assumptions));
   }
-  out->set_risk_upper_bound(in.upper_bound);
-  if (in.lower_bound.has_value()) out->set_risk_lower_bound(*in.lower_bound);
-  out->set_failure_probability(in.delta);
+  out->set_risk_upper_bound(in.risk_upper_bound);
+  if (in.risk_lower_bound.has_value()) out->set_risk_lower_bound(*in.risk_lower_bound);
+  out->set_failure_probability(in.failure_probability);
   out->set_empirical_risk(in.empirical_risk);
   out->set_penalty(in.penalty);
   out->set_vacuous(in.vacuous);
   out->set_exact(in.exact);
   for (const std::string& note : in.notes) out->add_notes(note);
-  if (in.bounded_loss_units) {
-    out->mutable_loss_range()->set_loss_min(in.range_min);
-    out->mutable_loss_range()->set_loss_max(in.range_max);
+  if (in.loss_range.has_value()) {
+    out->mutable_loss_range()->set_loss_min(in.loss_range->loss_min);
+    out->mutable_loss_range()->set_loss_max(in.loss_range->loss_max);
   }
 }
 
@@ -178,9 +180,9 @@ v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result,
   }
   v1::DeltaAccounting* ledger = out.mutable_delta_accounting();
   ledger->set_requested_failure_probability(requested_delta);
-  ledger->set_spent_failure_probability(result.total_delta);
+  ledger->set_spent_failure_probability(result.spent_failure_probability);
   ledger->set_family_count(static_cast<std::uint32_t>(result.certificates.size()));
-  ledger->set_rule(result.delta_rule);
+  ledger->set_rule(result.rule);
   for (const std::string& caution : core::Cautions()) out.add_cautions(caution);
   out.set_engine_version(RISKBOUND_ENGINE_VERSION);
   return out;

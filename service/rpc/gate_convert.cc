@@ -58,7 +58,7 @@ absl::StatusOr<GateInputs> GateInputsFromProto(const v1::GateRequest& in) {
   for (const FieldViolation& v : violations) refused.insert(v.field);
 
   out.policy.max_risk = p.max_risk();
-  out.policy.delta = p.failure_probability();
+  out.policy.failure_probability = p.failure_probability();
   // Unknown values (and BOUND_FAMILY_UNSPECIFIED) reach the core, which names
   // them as policy.allowed_families[i].
   if (families_fit) {
@@ -66,7 +66,7 @@ absl::StatusOr<GateInputs> GateInputsFromProto(const v1::GateRequest& in) {
       out.policy.allowed_families.push_back(static_cast<core::Family>(f));
     }
   }
-  out.policy.min_holdout_samples = p.min_holdout_sample_count();
+  out.policy.min_holdout_sample_count = p.min_holdout_sample_count();
   if (p.has_max_regression()) out.policy.max_regression = p.max_regression();
   out.policy.plan_pass_probability =
       p.has_plan_pass_probability() ? p.plan_pass_probability() : kDefaultPlanPassProbability;
@@ -169,8 +169,8 @@ v1::GateResponse GateResponseToProto(const core::GateDecision& d, const v1::Gate
     out.set_difference_lower_bound(*d.difference_lower_bound);
   }
   if (d.mcnemar_p_value.has_value()) out.set_mcnemar_p_value(*d.mcnemar_p_value);
-  if (d.additional_samples_to_settle.has_value()) {
-    out.set_additional_sample_count(*d.additional_samples_to_settle);
+  if (d.additional_sample_count.has_value()) {
+    out.set_additional_sample_count(*d.additional_sample_count);
   }
   double spent = 0.0;
   for (const auto& [test, delta] : d.delta_ledger) {

@@ -16,7 +16,7 @@ namespace riskbound::rpc {
 using core::FieldViolation;
 
 std::string PlanPathToWire(const std::string& kind, const std::string& core_path) {
-  if (core_path == "samples_held") return absl::StrCat(kind, ".held_sample_count");
+  if (core_path == "held_sample_count") return absl::StrCat(kind, ".held_sample_count");
   return absl::StrCat(kind, ".", core_path);
 }
 
@@ -28,9 +28,9 @@ absl::StatusOr<PlanCall> PlanRequestFromProto(const v1::PlanSamplesRequest& in) 
       core::HoldoutPlanRequest r;
       r.target_risk = h.target_risk();
       r.expected_risk = h.expected_risk();
-      r.delta = h.failure_probability();
+      r.failure_probability = h.failure_probability();
       if (h.has_pass_probability()) r.pass_probability = h.pass_probability();
-      r.samples_held = h.held_sample_count();
+      r.held_sample_count = h.held_sample_count();
       out.holdout = r;
       return out;
     }
@@ -54,8 +54,8 @@ absl::StatusOr<PlanCall> PlanRequestFromProto(const v1::PlanSamplesRequest& in) 
       }
       r.expected_empirical_risk = t.expected_empirical_risk();
       r.target_risk = t.target_risk();
-      r.delta = t.failure_probability();
-      r.samples_held = t.held_sample_count();
+      r.failure_probability = t.failure_probability();
+      r.held_sample_count = t.held_sample_count();
       if (shape.empty()) {
         out.training = r;
         return out;
@@ -87,18 +87,18 @@ v1::PlanSamplesResponse HoldoutPlanToProto(const core::HoldoutPlan& plan) {
   v1::PlanSamplesResponse out;
   out.set_reachable(plan.reachable);
   out.set_reason(plan.reason);
-  out.set_sample_count(plan.samples);
-  out.set_additional_sample_count(plan.additional_samples);
+  out.set_sample_count(plan.sample_count);
+  out.set_additional_sample_count(plan.additional_sample_count);
   out.set_rule(plan.rule);
   for (const std::string& note : plan.notes) out.add_notes(note);
-  out.set_bound_evaluation_count(plan.bound_evaluations);
+  out.set_bound_evaluation_count(plan.bound_evaluation_count);
   v1::HoldoutPlanDetail* d = out.mutable_holdout();
-  d->set_tolerated_error_count(plan.tolerated_errors);
-  d->set_zero_failure_sample_count(plan.zero_failure_samples);
+  d->set_tolerated_error_count(plan.tolerated_error_count);
+  d->set_zero_failure_sample_count(plan.zero_failure_sample_count);
   d->set_pass_probability_at_plan(plan.pass_probability_at_plan);
-  d->set_expected_rate_sample_count(plan.expected_rate_samples);
-  if (plan.pass_probability_samples.has_value()) {
-    d->set_pass_probability_sample_count(*plan.pass_probability_samples);
+  d->set_expected_rate_sample_count(plan.expected_rate_sample_count);
+  if (plan.pass_probability_sample_count.has_value()) {
+    d->set_pass_probability_sample_count(*plan.pass_probability_sample_count);
   }
   Finish(&out);
   return out;
@@ -111,8 +111,8 @@ v1::PlanSamplesResponse TrainingPlanToProto(const core::TrainingPlanRequest& req
   const std::string slug = spec != nullptr ? std::string(spec->slug) : "";
   out.set_reachable(plan.reachable);
   out.set_reason(plan.reason);
-  out.set_sample_count(plan.samples);
-  out.set_additional_sample_count(plan.additional_samples);
+  out.set_sample_count(plan.sample_count);
+  out.set_additional_sample_count(plan.additional_sample_count);
   if (plan.reachable) {
     const double r = request.expected_empirical_risk;
     out.set_rule(absl::StrFormat(
@@ -123,15 +123,15 @@ v1::PlanSamplesResponse TrainingPlanToProto(const core::TrainingPlanRequest& req
   }
   for (const std::string& note : plan.notes) out.add_notes(note);
   for (const std::string& note : request.capacity.notes) out.add_notes(note);
-  out.set_bound_evaluation_count(plan.bound_evaluations);
+  out.set_bound_evaluation_count(plan.bound_evaluation_count);
   v1::TrainingPlanDetail* d = out.mutable_training();
   d->set_family(static_cast<v1::BoundFamily>(request.family));
   d->set_family_name(slug);
   v1::ComparisonSampleSizes* c = d->mutable_comparison_only();
-  if (plan.realizable_reference.has_value()) {
-    c->set_realizable_sample_count(*plan.realizable_reference);
+  if (plan.realizable_sample_count.has_value()) {
+    c->set_realizable_sample_count(*plan.realizable_sample_count);
   }
-  if (plan.agnostic_reference.has_value()) c->set_agnostic_sample_count(*plan.agnostic_reference);
+  if (plan.agnostic_sample_count.has_value()) c->set_agnostic_sample_count(*plan.agnostic_sample_count);
   Finish(&out);
   return out;
 }

@@ -2,7 +2,7 @@
 // core planners (core::PlanHoldout, core::PlanTraining).
 //
 // Field paths: the core names the fields of one plan ("target_risk",
-// "samples_held"); on the wire they sit under the request's oneof
+// "held_sample_count"); on the wire they sit under the request's oneof
 // ("holdout.target_risk", "training.held_sample_count"), and every violation
 // is re-rooted there.
 #ifndef RISKBOUND_SERVICE_RPC_PLAN_CONVERT_H_
@@ -25,7 +25,7 @@ struct PlanCall {
 
 // PlanPathToWire
 // The wire path of a field path a core planner reports, for the oneof member
-// `kind` ("holdout" or "training"): "samples_held" -> "<kind>.held_sample_count",
+// `kind` ("holdout" or "training"): "held_sample_count" -> "<kind>.held_sample_count",
 // any other "x" -> "<kind>.x".
 std::string PlanPathToWire(const std::string& kind, const std::string& core_path);
 

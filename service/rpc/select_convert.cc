@@ -127,7 +127,7 @@ absl::StatusOr<core::SelectRequest> SelectRequestFromProto(
                      "BOUND_FAMILY_OCCAM_KL)"});
   }
   out.family = static_cast<core::Family>(in.family());
-  out.delta = in.failure_probability();
+  out.failure_probability = in.failure_probability();
   switch (in.delta_spread()) {
     case v1::DELTA_SPREAD_UNSPECIFIED:
     case v1::DELTA_SPREAD_INVERSE_SQUARE:
@@ -164,10 +164,10 @@ v1::SelectStructureResponse SelectResponseToProto(const core::SelectRequest& req
     row->set_capacity(c.capacity);
     row->set_empirical_risk(c.empirical_risk);
     row->set_penalty(c.penalty);
-    row->set_risk_upper_bound(c.upper_bound);
-    row->set_failure_probability(c.delta);
+    row->set_risk_upper_bound(c.risk_upper_bound);
+    row->set_failure_probability(c.failure_probability);
     row->set_vacuous(c.vacuous);
-    row->set_delta_weight(c.weight);
+    row->set_delta_weight(c.delta_weight);
     row->set_exact(c.exact);
     for (const std::string& note : c.notes) row->add_notes(note);
     if (i < request.candidates.size()) {
@@ -184,7 +184,7 @@ v1::SelectStructureResponse SelectResponseToProto(const core::SelectRequest& req
   }
   out.set_fragility_tolerance(request.fragility_tolerance);
   out.set_delta_rule(result.delta_rule);
-  out.set_spent_failure_probability(result.total_delta);
+  out.set_spent_failure_probability(result.spent_failure_probability);
   out.set_family(static_cast<v1::BoundFamily>(request.family));
   if (const core::FamilySpec* spec = core::FindFamily(request.family)) {
     out.set_family_name(std::string(spec->slug));
@@ -201,7 +201,7 @@ v1::SelectStructureResponse SelectResponseToProto(const core::SelectRequest& req
       out.set_delta_spread(v1::DELTA_SPREAD_CALLER_WEIGHTS);
       break;
   }
-  out.set_requested_failure_probability(request.delta);
+  out.set_requested_failure_probability(request.failure_probability);
   for (const std::string& note : result.notes) out.add_notes(note);
   for (const std::string& caution : core::Cautions()) out.add_cautions(caution);
   out.set_engine_version(RISKBOUND_ENGINE_VERSION);

@@ -19,7 +19,8 @@ Evidence Make(std::uint64_t errors, std::uint64_t samples, std::uint64_t h, doub
   Evidence e;
   e.holdout = SampleCounts{errors, samples};
   TrainingEvidence t;
-  t.counts = {errors, samples};
+  t.error_count = errors;
+  t.sample_count = samples;
   t.capacity.vc_dimension = h;
   t.capacity.log_hypothesis_count = log_h;
   e.training = t;
@@ -27,16 +28,16 @@ Evidence Make(std::uint64_t errors, std::uint64_t samples, std::uint64_t h, doub
 }
 
 void ExpectSane(const Certificate& c) {
-  EXPECT_TRUE(std::isfinite(c.upper_bound));
-  EXPECT_GE(c.upper_bound, 0.0);
-  EXPECT_LE(c.upper_bound, 1.0);
-  EXPECT_GE(c.upper_bound, c.empirical_risk);
-  if (c.lower_bound) {
-    EXPECT_TRUE(std::isfinite(*c.lower_bound));
-    EXPECT_LE(*c.lower_bound, c.empirical_risk);
-    EXPECT_GE(*c.lower_bound, 0.0);
+  EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
+  EXPECT_GE(c.risk_upper_bound, 0.0);
+  EXPECT_LE(c.risk_upper_bound, 1.0);
+  EXPECT_GE(c.risk_upper_bound, c.empirical_risk);
+  if (c.risk_lower_bound) {
+    EXPECT_TRUE(std::isfinite(*c.risk_lower_bound));
+    EXPECT_LE(*c.risk_lower_bound, c.empirical_risk);
+    EXPECT_GE(*c.risk_lower_bound, 0.0);
   }
-  EXPECT_NEAR(c.penalty, c.upper_bound - c.empirical_risk, 1e-15);
+  EXPECT_NEAR(c.penalty, c.risk_upper_bound - c.empirical_risk, 1e-15);
 }
 
 TEST(BoundPropertiesTest, RangeAndMonotonicity) {
@@ -58,8 +59,8 @@ TEST(BoundPropertiesTest, RangeAndMonotonicity) {
             const Certificate c = spec.compute(Make(k, m, h, std::log(static_cast<double>(h) * 10)), delta);
             ExpectSane(c);
             // Non-increasing in m at a fixed rate (rate * m integral on this grid).
-            EXPECT_LE(c.upper_bound, prev_m + kSlack) << "m=" << m << " rate=" << rate;
-            prev_m = c.upper_bound;
+            EXPECT_LE(c.risk_upper_bound, prev_m + kSlack) << "m=" << m << " rate=" << rate;
+            prev_m = c.risk_upper_bound;
           }
         }
       }
@@ -68,19 +69,19 @@ TEST(BoundPropertiesTest, RangeAndMonotonicity) {
     for (std::uint64_t m : sizes) {
       double prev = -1;
       for (std::uint64_t k = 0; k <= m; k += std::max<std::uint64_t>(1, m / 20)) {
-        const double u = spec.compute(Make(k, m, 10, std::log(100.0)), 0.05).upper_bound;
+        const double u = spec.compute(Make(k, m, 10, std::log(100.0)), 0.05).risk_upper_bound;
         EXPECT_GE(u, prev - kSlack) << "k=" << k << " m=" << m;
         prev = u;
       }
       prev = -1;
       for (std::uint64_t h : caps) {
-        const double u = spec.compute(Make(m / 10, m, h, std::log(static_cast<double>(h) * 10)), 0.05).upper_bound;
+        const double u = spec.compute(Make(m / 10, m, h, std::log(static_cast<double>(h) * 10)), 0.05).risk_upper_bound;
         EXPECT_GE(u, prev - kSlack) << "h=" << h << " m=" << m;
         prev = u;
       }
       prev = -1;
       for (double delta : deltas) {  // decreasing delta
-        const double u = spec.compute(Make(m / 10, m, 10, std::log(100.0)), delta).upper_bound;
+        const double u = spec.compute(Make(m / 10, m, 10, std::log(100.0)), delta).risk_upper_bound;
         EXPECT_GE(u, prev - kSlack) << "delta=" << delta << " m=" << m;
         prev = u;
       }

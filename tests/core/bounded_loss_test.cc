@@ -29,20 +29,20 @@ void ExpectClose(double got, double want, double width, double abs_tol) {
 }
 
 void ExpectSane(const Certificate& c, const BoundedLossEvidence& e) {
-  EXPECT_TRUE(std::isfinite(c.upper_bound));
+  EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
   EXPECT_TRUE(std::isfinite(c.penalty));
   EXPECT_TRUE(std::isfinite(c.empirical_risk));
-  EXPECT_GE(c.upper_bound, c.empirical_risk);
-  EXPECT_LE(c.upper_bound, e.loss_max);
-  EXPECT_GE(c.upper_bound, e.loss_min);
-  ASSERT_TRUE(c.lower_bound.has_value());
-  EXPECT_TRUE(std::isfinite(*c.lower_bound));
-  EXPECT_LE(*c.lower_bound, c.empirical_risk);
-  EXPECT_GE(*c.lower_bound, e.loss_min);
-  EXPECT_EQ(c.vacuous, c.upper_bound >= e.loss_max);
-  EXPECT_TRUE(c.bounded_loss_units);
-  EXPECT_EQ(c.range_min, e.loss_min);
-  EXPECT_EQ(c.range_max, e.loss_max);
+  EXPECT_GE(c.risk_upper_bound, c.empirical_risk);
+  EXPECT_LE(c.risk_upper_bound, e.loss_max);
+  EXPECT_GE(c.risk_upper_bound, e.loss_min);
+  ASSERT_TRUE(c.risk_lower_bound.has_value());
+  EXPECT_TRUE(std::isfinite(*c.risk_lower_bound));
+  EXPECT_LE(*c.risk_lower_bound, c.empirical_risk);
+  EXPECT_GE(*c.risk_lower_bound, e.loss_min);
+  EXPECT_EQ(c.vacuous, c.risk_upper_bound >= e.loss_max);
+  EXPECT_TRUE(c.loss_range.has_value());
+  EXPECT_EQ(c.loss_range->loss_min, e.loss_min);
+  EXPECT_EQ(c.loss_range->loss_max, e.loss_max);
 }
 
 // Source: scipy fixture bounded_loss.csv (numpy mean/var(ddof=1) of drawn
@@ -52,32 +52,32 @@ TEST(BoundedLossTest, MatchesScipyFixture) {
   int rows = 0;
   for (const auto& row : ReadFixture("bounded_loss.csv")) {
     BoundedLossEvidence e;
-    e.samples = static_cast<std::uint64_t>(Num(row, "samples"));
+    e.sample_count = static_cast<std::uint64_t>(Num(row, "samples"));
     e.loss_min = Num(row, "loss_min");
     e.loss_max = Num(row, "loss_max");
     e.mean_loss = Num(row, "mean_loss");
     e.sample_variance = Num(row, "sample_variance");
     const double delta = Num(row, "delta");
     const double w = e.loss_max - e.loss_min;
-    SCOPED_TRACE(::testing::Message() << "n=" << e.samples << " [" << e.loss_min << ","
+    SCOPED_TRACE(::testing::Message() << "n=" << e.sample_count << " [" << e.loss_min << ","
                                       << e.loss_max << "] mean=" << e.mean_loss
                                       << " d=" << delta);
     const Certificate h = BoundedHoeffding(e, delta);
     ExpectSane(h, e);
-    ExpectClose(h.upper_bound, Num(row, "hoeffding_upper"), w, 0.0);
-    ExpectClose(*h.lower_bound, Num(row, "hoeffding_lower"), w, 0.0);
+    ExpectClose(h.risk_upper_bound, Num(row, "hoeffding_upper"), w, 0.0);
+    ExpectClose(*h.risk_lower_bound, Num(row, "hoeffding_lower"), w, 0.0);
     const Certificate kl = BoundedKl(e, delta);
     ExpectSane(kl, e);
-    ExpectClose(kl.upper_bound, Num(row, "kl_upper"), w, 2e-12);
-    ExpectClose(*kl.lower_bound, Num(row, "kl_lower"), w, 2e-12);
+    ExpectClose(kl.risk_upper_bound, Num(row, "kl_upper"), w, 2e-12);
+    ExpectClose(*kl.risk_lower_bound, Num(row, "kl_lower"), w, 2e-12);
     // Ordering (formula sheet 4, via Pinsker): kl-Chernoff <= Hoeffding.
-    EXPECT_LE(kl.upper_bound, h.upper_bound + 2e-12 * w);
-    EXPECT_GE(*kl.lower_bound, *h.lower_bound - 2e-12 * w);
-    if (e.samples >= 2) {
+    EXPECT_LE(kl.risk_upper_bound, h.risk_upper_bound + 2e-12 * w);
+    EXPECT_GE(*kl.risk_lower_bound, *h.risk_lower_bound - 2e-12 * w);
+    if (e.sample_count >= 2) {
       const Certificate eb = BoundedEmpiricalBernstein(e, delta);
       ExpectSane(eb, e);
-      ExpectClose(eb.upper_bound, Num(row, "eb_upper"), w, 0.0);
-      ExpectClose(*eb.lower_bound, Num(row, "eb_lower"), w, 0.0);
+      ExpectClose(eb.risk_upper_bound, Num(row, "eb_upper"), w, 0.0);
+      ExpectClose(*eb.risk_lower_bound, Num(row, "eb_lower"), w, 0.0);
     }
     ++rows;
   }
@@ -90,20 +90,20 @@ TEST(BoundedLossTest, MatchesScipyFixture) {
 // in [0, 1], so the bounded families must reproduce the hold-out ones.
 TEST(BoundedLossTest, ZeroOneLossReproducesHoldoutRows) {
   BoundedLossEvidence e;
-  e.samples = 1000;
+  e.sample_count = 1000;
   e.mean_loss = 0.02;
   e.sample_variance = 20.0 * 980.0 / (1000.0 * 999.0);
-  EXPECT_NEAR(BoundedHoeffding(e, 0.05).upper_bound, 0.058702, 5e-7);  // row 4.2
-  EXPECT_NEAR(BoundedKl(e, 0.05).upper_bound, 0.032813, 5e-7);         // row 4.3
-  EXPECT_NEAR(BoundedKl(e, 0.05).upper_bound,
-              HoldoutKlChernoff({20, 1000}, 0.05).upper_bound, 1e-15);
-  EXPECT_NEAR(BoundedHoeffding(e, 0.05).upper_bound,
-              HoldoutHoeffding({20, 1000}, 0.05).upper_bound, 1e-15);
+  EXPECT_NEAR(BoundedHoeffding(e, 0.05).risk_upper_bound, 0.058702, 5e-7);  // row 4.2
+  EXPECT_NEAR(BoundedKl(e, 0.05).risk_upper_bound, 0.032813, 5e-7);         // row 4.3
+  EXPECT_NEAR(BoundedKl(e, 0.05).risk_upper_bound,
+              HoldoutKlChernoff({20, 1000}, 0.05).risk_upper_bound, 1e-15);
+  EXPECT_NEAR(BoundedHoeffding(e, 0.05).risk_upper_bound,
+              HoldoutHoeffding({20, 1000}, 0.05).risk_upper_bound, 1e-15);
   // Source: Maurer & Pontil (2009) Thm 4 by hand for these counts:
   // 0.02 + sqrt(2 * 0.0196196 * ln 40 / 1000) + 7 ln 40 / 2997.
   const double v = 20.0 * 980.0 / (1000.0 * 999.0);
   const double l = std::log(40.0);
-  EXPECT_NEAR(BoundedEmpiricalBernstein(e, 0.05).upper_bound,
+  EXPECT_NEAR(BoundedEmpiricalBernstein(e, 0.05).risk_upper_bound,
               0.02 + std::sqrt(2 * v * l / 1000) + 7 * l / (3 * 999.0), 1e-15);
 }
 
@@ -138,13 +138,13 @@ TEST(BoundedLossTest, FormulaSheetRow44MeanBounds) {
       const double mean = s / static_cast<double>(cs.n);
       for (double xi : x) ss += (xi - mean) * (xi - mean);
       BoundedLossEvidence e;
-      e.samples = cs.n;
+      e.sample_count = cs.n;
       e.mean_loss = mean;
       e.sample_variance = ss / static_cast<double>(cs.n - 1);
-      sum_eb += BoundedEmpiricalBernstein(e, 0.05).upper_bound;
-      sum_h += BoundedHoeffding(e, 0.05).upper_bound;
+      sum_eb += BoundedEmpiricalBernstein(e, 0.05).risk_upper_bound;
+      sum_h += BoundedHoeffding(e, 0.05).risk_upper_bound;
       if (t < 2000) {
-        sum_kl += BoundedKl(e, 0.05).upper_bound;
+        sum_kl += BoundedKl(e, 0.05).risk_upper_bound;
         ++kl_trials;
       }
     }
@@ -165,7 +165,7 @@ TEST(BoundedLossTest, EdgeCasesStayFiniteAndInRange) {
         for (double frac : {0.0, 0.25, 1.0}) {
           for (double var_frac : {0.0, 1.0}) {
             BoundedLossEvidence e;
-            e.samples = n;
+            e.sample_count = n;
             e.loss_min = a;
             e.loss_max = b;
             e.mean_loss = frac == 1.0 ? b : a + frac * (b - a);
@@ -178,7 +178,7 @@ TEST(BoundedLossTest, EdgeCasesStayFiniteAndInRange) {
               ExpectSane(c, e);
             }
             if (frac == 1.0) {  // mean at loss_max: every upper bound is loss_max
-              EXPECT_EQ(BoundedKl(e, delta).upper_bound, b);
+              EXPECT_EQ(BoundedKl(e, delta).risk_upper_bound, b);
               EXPECT_TRUE(BoundedHoeffding(e, delta).vacuous);
             }
           }
@@ -189,17 +189,17 @@ TEST(BoundedLossTest, EdgeCasesStayFiniteAndInRange) {
   // Source: kl^{-1}_+(0, c) = 1 - exp(-c) (formula sheet 0.2): mean at
   // loss_min, n = 10, delta = 0.05, range [2, 6]: 2 + 4 (1 - 0.05^(1/10)).
   BoundedLossEvidence e{2.0, 0.0, 10, 2.0, 6.0};
-  EXPECT_NEAR(BoundedKl(e, 0.05).upper_bound, 2.0 + 4.0 * (1 - std::pow(0.05, 0.1)), 1e-14);
-  EXPECT_EQ(*BoundedKl(e, 0.05).lower_bound, 2.0);
+  EXPECT_NEAR(BoundedKl(e, 0.05).risk_upper_bound, 2.0 + 4.0 * (1 - std::pow(0.05, 0.1)), 1e-14);
+  EXPECT_EQ(*BoundedKl(e, 0.05).risk_lower_bound, 2.0);
   // Variance 0 leaves only the 7 ln(2/delta) / (3 (n - 1)) term of
   // Maurer & Pontil (2009) Thm 4, in loss units.
-  EXPECT_NEAR(BoundedEmpiricalBernstein(e, 0.05).upper_bound,
+  EXPECT_NEAR(BoundedEmpiricalBernstein(e, 0.05).risk_upper_bound,
               2.0 + 4.0 * 7.0 * std::log(40.0) / 27.0, 1e-14);
   // n = 1: the empirical Bernstein bound is undefined; the trivial range with
   // a note, never a division by zero.
-  e.samples = 1;
+  e.sample_count = 1;
   const Certificate eb1 = BoundedEmpiricalBernstein(e, 0.05);
-  EXPECT_EQ(eb1.upper_bound, 6.0);
+  EXPECT_EQ(eb1.risk_upper_bound, 6.0);
   EXPECT_TRUE(eb1.vacuous);
   EXPECT_THAT(eb1.notes, ::testing::Contains(HasSubstr("at least 2 samples")));
 }
@@ -209,12 +209,12 @@ TEST(BoundedLossTest, EdgeCasesStayFiniteAndInRange) {
 // every bound tightens as n grows (common practice).
 TEST(BoundedLossTest, BernsteinWinsAtSmallVariance) {
   BoundedLossEvidence e{0.05, 0.0005, 100000, 0.0, 1.0};
-  EXPECT_LT(BoundedEmpiricalBernstein(e, 0.05).upper_bound,
-            BoundedHoeffding(e, 0.05).upper_bound);
+  EXPECT_LT(BoundedEmpiricalBernstein(e, 0.05).risk_upper_bound,
+            BoundedHoeffding(e, 0.05).risk_upper_bound);
   double prev = 2.0;
   for (std::uint64_t n : {10ULL, 100ULL, 1000ULL, 100000ULL}) {
-    e.samples = n;
-    const double u = BoundedEmpiricalBernstein(e, 0.05).upper_bound;
+    e.sample_count = n;
+    const double u = BoundedEmpiricalBernstein(e, 0.05).risk_upper_bound;
     EXPECT_LT(u, prev);
     prev = u;
   }

@@ -62,7 +62,7 @@ TEST(CapacityTest, HalfspacesDPlusOne) {
   CapacityEstimate e = Ok(m);
   EXPECT_EQ(e.vc_dimension, 11.0);
   EXPECT_EQ(e.status, CapacityStatus::kExact);
-  EXPECT_EQ(e.lower_bound, 11.0);
+  EXPECT_EQ(e.vc_dimension_lower_bound, 11.0);
   EXPECT_FALSE(e.exceeds_uint64);
   EXPECT_THAT(e.source, HasSubstr("Cover (1965)"));
   m.with_bias = false;
@@ -248,7 +248,7 @@ TEST(CapacityTest, DecisionTreeCountingBound) {
   CapacityEstimate e = Ok(m);
   EXPECT_EQ(e.vc_dimension, 92.0);
   EXPECT_EQ(e.status, CapacityStatus::kUpperBound);
-  EXPECT_EQ(e.lower_bound, 8.0);
+  EXPECT_EQ(e.vc_dimension_lower_bound, 8.0);
   EXPECT_THAT(e.source, HasSubstr("derived in the formula sheet"));
   m.leaf_count = 32;
   m.feature_count = 100;
@@ -281,7 +281,7 @@ TEST(CapacityTest, VotedEnsembleSsbdLemma) {
   CapacityEstimate e = Ok(m);
   EXPECT_EQ(e.vc_dimension, 24745.0);
   EXPECT_EQ(e.status, CapacityStatus::kUpperBound);
-  EXPECT_EQ(e.lower_bound, 7.0);
+  EXPECT_EQ(e.vc_dimension_lower_bound, 7.0);
   EXPECT_TRUE(AnyNoteHas(e, "log2"));
   // Below the lemma's range: raised to T = d_B = 3, said so, never smaller.
   m.member_count = 2;
@@ -302,7 +302,7 @@ TEST(CapacityTest, ThresholdNetworkBaumHaussler) {
   CapacityEstimate e = Ok(m);
   EXPECT_EQ(e.vc_dimension, 14173.0);
   EXPECT_EQ(e.status, CapacityStatus::kUpperBound);
-  EXPECT_FALSE(e.lower_bound.has_value());  // no input width, no embedding bound
+  EXPECT_FALSE(e.vc_dimension_lower_bound.has_value());  // no input width, no embedding bound
 }
 
 // Source: bounds.md row 10.7: widths 10-32-32-1 give W = 1441, L = 3,
@@ -324,7 +324,7 @@ TEST(CapacityTest, ReluNetworkBhlm) {
   EXPECT_THAT(e.formula, HasSubstr("R = 99"));
   EXPECT_THAT(e.formula, HasSubstr("Lbar = 2.221"));
   EXPECT_TRUE(AnyNoteHas(e, "from memory"));
-  EXPECT_EQ(e.lower_bound, 11.0);  // halfspaces of R^10 embed
+  EXPECT_EQ(e.vc_dimension_lower_bound, 11.0);  // halfspaces of R^10 embed
   // Counts that agree with the widths are accepted.
   m.weight_count = 1441;
   m.layer_count = 3;

@@ -24,7 +24,8 @@ Evidence HoldoutOnly(std::uint64_t errors, std::uint64_t samples) {
 Evidence Full() {
   Evidence e = HoldoutOnly(20, 1000);
   TrainingEvidence t;
-  t.counts = {500, 10000};
+  t.error_count = 500;
+  t.sample_count = 10000;
   t.capacity.vc_dimension = 100;
   t.capacity.log_hypothesis_count = std::log(1e6);
   e.training = t;
@@ -34,14 +35,14 @@ Evidence Full() {
 TEST(CertifyTest, RecommendedHoldoutGetsWholeDelta) {
   CertifyRequest req;
   req.evidence = HoldoutOnly(0, 300);
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
   ASSERT_EQ(got->certificates.size(), 1u);
   EXPECT_EQ(got->certificates[0].family, Family::kHoldoutExactBinomial);
-  EXPECT_NEAR(got->certificates[0].upper_bound, 0.009936, 5e-7);  // rule of three
-  EXPECT_EQ(got->total_delta, 0.05);
-  EXPECT_THAT(got->delta_rule, HasSubstr("full failure probability"));
+  EXPECT_NEAR(got->certificates[0].risk_upper_bound, 0.009936, 5e-7);  // rule of three
+  EXPECT_EQ(got->spent_failure_probability, 0.05);
+  EXPECT_THAT(got->rule, HasSubstr("full failure probability"));
 }
 
 TEST(CertifyTest, RecommendedTrainingFamilies) {
@@ -58,34 +59,34 @@ TEST(CertifyTest, RecommendedTrainingFamilies) {
 TEST(CertifyTest, AllApplicableSplitsDelta) {
   CertifyRequest req;
   req.evidence = Full();
-  req.delta = 0.06;
+  req.failure_probability = 0.06;
   req.choice = FamilyChoice::kAllApplicable;
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
   // Hold-out and training evidence: the 7 hold-out, VC and Occam families apply.
   ASSERT_EQ(got->certificates.size(), 7u);
   for (const Certificate& c : got->certificates) {
-    EXPECT_DOUBLE_EQ(c.delta, 0.06 / 7);
+    EXPECT_DOUBLE_EQ(c.failure_probability, 0.06 / 7);
   }
-  EXPECT_NEAR(got->total_delta, 0.06, 1e-15);
+  EXPECT_NEAR(got->spent_failure_probability, 0.06, 1e-15);
   const Certificate& tight = got->certificates[got->tightest_index];
   EXPECT_EQ(tight.family, Family::kHoldoutExactBinomial);
-  EXPECT_DOUBLE_EQ(tight.upper_bound, HoldoutExactBinomial({20, 1000}, 0.06 / 7).upper_bound);
-  for (const Certificate& c : got->certificates) EXPECT_GE(c.upper_bound, tight.upper_bound);
-  EXPECT_THAT(got->delta_rule, HasSubstr("union bound over 7 families"));
+  EXPECT_DOUBLE_EQ(tight.risk_upper_bound, HoldoutExactBinomial({20, 1000}, 0.06 / 7).risk_upper_bound);
+  for (const Certificate& c : got->certificates) EXPECT_GE(c.risk_upper_bound, tight.risk_upper_bound);
+  EXPECT_THAT(got->rule, HasSubstr("union bound over 7 families"));
 }
 
 TEST(CertifyTest, ListedWithWeights) {
   CertifyRequest req;
   req.evidence = HoldoutOnly(20, 1000);
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   req.choice = FamilyChoice::kListed;
   req.families = {Family::kHoldoutKlChernoff, Family::kHoldoutExactBinomial};
   req.delta_weights = {0.2, 0.8};
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
-  EXPECT_DOUBLE_EQ(got->certificates[0].delta, 0.01);
-  EXPECT_DOUBLE_EQ(got->certificates[1].delta, 0.04);
+  EXPECT_DOUBLE_EQ(got->certificates[0].failure_probability, 0.01);
+  EXPECT_DOUBLE_EQ(got->certificates[1].failure_probability, 0.04);
   EXPECT_EQ(got->tightest_index, 1u);
 }
 
@@ -95,14 +96,14 @@ TEST(CertifyTest, BaselineMakesCertificateVacuous) {
   req.evidence.baseline_error_rate = 0.45;
   auto got = Certify(req);
   ASSERT_TRUE(got.ok());
-  EXPECT_GT(got->certificates[0].upper_bound, 0.45);
+  EXPECT_GT(got->certificates[0].risk_upper_bound, 0.45);
   EXPECT_TRUE(got->certificates[0].vacuous);
 }
 
 TEST(CertifyTest, InvalidInputNamesEveryField) {
   CertifyRequest req;
   req.evidence = HoldoutOnly(5, 3);
-  req.delta = 2.0;
+  req.failure_probability = 2.0;
   auto got = Certify(req);
   EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument,
                             AllOf(HasSubstr("failure_probability"),
@@ -113,7 +114,7 @@ TEST(CertifyTest, InvalidInputNamesEveryField) {
   EXPECT_EQ(violations[1].field, "evidence.holdout.error_count");
 
   req = CertifyRequest{};
-  req.delta = NAN;
+  req.failure_probability = NAN;
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      AllOf(HasSubstr("NaN"), HasSubstr("evidence"))));
   req = CertifyRequest{};

@@ -22,9 +22,9 @@ using ::testing::HasSubstr;
 
 CompressionEvidence Make(std::uint64_t m, std::uint64_t d, std::uint64_t k, bool fixed = false) {
   CompressionEvidence e;
-  e.samples = m;
+  e.sample_count = m;
   e.compression_size = d;
-  e.errors_outside = k;
+  e.outside_error_count = k;
   e.size_fixed_in_advance = fixed;
   return e;
 }
@@ -35,14 +35,14 @@ CompressionEvidence Make(std::uint64_t m, std::uint64_t d, std::uint64_t k, bool
 // 0.177621.
 TEST(CompressionTest, FormulaSheetWorkedValues) {
   const Certificate c71 = SampleCompression(Make(10000, 300, 0), 0.05);
-  EXPECT_NEAR(c71.upper_bound, 0.130451, 5e-7);  // row 7.1
+  EXPECT_NEAR(c71.risk_upper_bound, 0.130451, 5e-7);  // row 7.1
   EXPECT_TRUE(c71.exact);
   const double relaxation =
       (LogChoose(10000, 300) + std::log(10000 / 0.05)) / (10000 - 300);
   EXPECT_NEAR(relaxation, 0.139781, 5e-7);  // row 7.1, closed form
-  EXPECT_LT(c71.upper_bound, relaxation);
+  EXPECT_LT(c71.risk_upper_bound, relaxation);
   const Certificate c72 = SampleCompression(Make(10000, 300, 150), 0.05);
-  EXPECT_NEAR(c72.upper_bound, 0.177621, 5e-7);  // row 7.2
+  EXPECT_NEAR(c72.risk_upper_bound, 0.177621, 5e-7);  // row 7.2
   EXPECT_TRUE(c72.exact);
   EXPECT_NEAR(c72.empirical_risk, 150.0 / 9700.0, 1e-15);
 }
@@ -62,22 +62,22 @@ TEST(CompressionTest, MatchesScipyFixture) {
                                        static_cast<std::uint64_t>(Num(row, "errors_outside")),
                                        Num(row, "fixed") != 0.0);
     const double delta = Num(row, "delta");
-    SCOPED_TRACE(::testing::Message() << "m=" << e.samples << " d=" << e.compression_size
-                                      << " k=" << e.errors_outside << " fixed="
+    SCOPED_TRACE(::testing::Message() << "m=" << e.sample_count << " d=" << e.compression_size
+                                      << " k=" << e.outside_error_count << " fixed="
                                       << e.size_fixed_in_advance << " delta=" << delta);
     // ln C(m, d) against exact integer arithmetic (Python math.comb).
     const double want_lc = Num(row, "log_choose");
-    EXPECT_NEAR(LogChoose(static_cast<double>(e.samples), static_cast<double>(e.compression_size)), want_lc, 1e-12 * want_lc + 1e-12);
+    EXPECT_NEAR(LogChoose(static_cast<double>(e.sample_count), static_cast<double>(e.compression_size)), want_lc, 1e-12 * want_lc + 1e-12);
     const Certificate c = SampleCompression(e, delta);
     const double want = Num(row, "upper");
-    EXPECT_TRUE(std::isfinite(c.upper_bound));
-    EXPECT_EQ(c.vacuous, c.upper_bound >= 1.0);
+    EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
+    EXPECT_EQ(c.vacuous, c.risk_upper_bound >= 1.0);
     if (c.exact) {
-      EXPECT_NEAR(c.upper_bound, want, 1e-9 * want);
+      EXPECT_NEAR(c.risk_upper_bound, want, 1e-9 * want);
     } else {
       ++relaxed;
-      EXPECT_GE(c.upper_bound, want * (1 - 1e-12));
-      EXPECT_LE(c.upper_bound, want * (1 + 5e-3));
+      EXPECT_GE(c.risk_upper_bound, want * (1 - 1e-12));
+      EXPECT_LE(c.risk_upper_bound, want * (1 + 5e-3));
     }
     ++rows;
   }
@@ -100,7 +100,7 @@ TEST(CompressionTest, TenMillionErrorsSettlesExactly) {
   const double kd = static_cast<double>(k);
   const double level = std::log(0.05) - LogChoose(static_cast<double>(m), 1000.0) -
                        std::log(static_cast<double>(m));
-  const double u = c.upper_bound;
+  const double u = c.risk_upper_bound;
   EXPECT_LE(u, KlInverseUpper(kd / n, -level / n));
   const double log_term = LogChoose(n, kd) + kd * std::log(u) + (n - kd) * std::log1p(-u);
   EXPECT_LE(log_term, level + 1e-6);
@@ -112,21 +112,21 @@ TEST(CompressionTest, TenMillionErrorsSettlesExactly) {
 // compression or more errors never helps (brute force over a grid).
 TEST(CompressionTest, StructureOfTheUnionBound) {
   for (std::uint64_t k : {0ULL, 3ULL, 50ULL}) {
-    EXPECT_NEAR(SampleCompression(Make(500, 0, k), 0.05).upper_bound,
+    EXPECT_NEAR(SampleCompression(Make(500, 0, k), 0.05).risk_upper_bound,
                 std::max(BinomialUpperLimit(500, k, 0.05 / 500).value, k / 500.0), 1e-12);
-    EXPECT_NEAR(SampleCompression(Make(500, 0, k, true), 0.05).upper_bound,
+    EXPECT_NEAR(SampleCompression(Make(500, 0, k, true), 0.05).risk_upper_bound,
                 std::max(BinomialUpperLimit(500, k, 0.05).value, k / 500.0), 1e-12);
   }
   for (std::uint64_t m : {20ULL, 1000ULL}) {
     double prev_d = 0;
     for (std::uint64_t d = 0; d < m; d += m / 10) {
-      const double u = SampleCompression(Make(m, d, 0), 0.05).upper_bound;
+      const double u = SampleCompression(Make(m, d, 0), 0.05).risk_upper_bound;
       EXPECT_GE(u, prev_d);
-      EXPECT_LE(SampleCompression(Make(m, d, 0, true), 0.05).upper_bound, u);
+      EXPECT_LE(SampleCompression(Make(m, d, 0, true), 0.05).risk_upper_bound, u);
       prev_d = u;
       double prev_k = 0;
       for (std::uint64_t k = 0; k <= m - d; k += std::max<std::uint64_t>(1, (m - d) / 7)) {
-        const double uk = SampleCompression(Make(m, d, k), 0.05).upper_bound;
+        const double uk = SampleCompression(Make(m, d, k), 0.05).risk_upper_bound;
         EXPECT_GE(uk, prev_k - 1e-12);
         prev_k = uk;
       }
@@ -138,7 +138,7 @@ TEST(CompressionTest, StructureOfTheUnionBound) {
 // delta 1e-300 and 1 - 1e-12. Finite, in [k/(m-d), 1].
 TEST(CompressionTest, EdgeCases) {
   const Certificate all = SampleCompression(Make(50, 50, 0), 0.05);
-  EXPECT_EQ(all.upper_bound, 1.0);
+  EXPECT_EQ(all.risk_upper_bound, 1.0);
   EXPECT_TRUE(all.vacuous);
   EXPECT_THAT(all.notes, Contains(HasSubstr("no example is left")));
   for (double delta : {1e-300, 1e-12, 0.05, 1 - 1e-12}) {
@@ -151,13 +151,13 @@ TEST(CompressionTest, EdgeCases) {
             SCOPED_TRACE(::testing::Message() << "m=" << m << " d=" << d << " k=" << k
                                               << " delta=" << delta);
             const Certificate c = SampleCompression(Make(m, d, k, fixed), delta);
-            EXPECT_TRUE(std::isfinite(c.upper_bound));
+            EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
             EXPECT_TRUE(std::isfinite(c.penalty));
-            EXPECT_GE(c.upper_bound, c.empirical_risk);
-            EXPECT_LE(c.upper_bound, 1.0);
-            EXPECT_GT(c.upper_bound, 0.0);
+            EXPECT_GE(c.risk_upper_bound, c.empirical_risk);
+            EXPECT_LE(c.risk_upper_bound, 1.0);
+            EXPECT_GT(c.risk_upper_bound, 0.0);
             if (k == m - d) {
-              EXPECT_EQ(c.upper_bound, 1.0);
+              EXPECT_EQ(c.risk_upper_bound, 1.0);
             }
           }
         }

@@ -156,7 +156,7 @@ TEST(EvidenceKindsTest, RecommendedFamilyByKind) {
     req.evidence = e;
     auto got = Certify(req);
     EXPECT_TRUE(got.ok()) << got.status();
-    EXPECT_EQ(got->total_delta, 0.05);
+    EXPECT_EQ(got->spent_failure_probability, 0.05);
     return got->certificates.at(0).family;
   };
   EXPECT_EQ(pick(Bounded(0.2, 0.01, 100)), Family::kBoundedKl);
@@ -199,18 +199,18 @@ TEST(EvidenceKindsTest, MixedUnitsAreNotCompared) {
   req.evidence.holdout = SampleCounts{40, 100};
   req.evidence.baseline_error_rate = 0.3;
   req.choice = FamilyChoice::kAllApplicable;
-  req.delta = 0.06;
+  req.failure_probability = 0.06;
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
   ASSERT_EQ(got->certificates.size(), 6u);
-  EXPECT_NEAR(got->total_delta, 0.06, 1e-15);
+  EXPECT_NEAR(got->spent_failure_probability, 0.06, 1e-15);
   const Certificate& tight = got->certificates[got->tightest_index];
-  EXPECT_FALSE(tight.bounded_loss_units);
+  EXPECT_FALSE(tight.loss_range.has_value());
   EXPECT_EQ(tight.family, Family::kHoldoutExactBinomial);
   for (const Certificate& c : got->certificates) {
-    EXPECT_DOUBLE_EQ(c.delta, 0.01);
-    if (c.bounded_loss_units) {
-      EXPECT_LT(c.upper_bound, tight.upper_bound);  // smaller, yet not "tightest"
+    EXPECT_DOUBLE_EQ(c.failure_probability, 0.01);
+    if (c.loss_range.has_value()) {
+      EXPECT_LT(c.risk_upper_bound, tight.risk_upper_bound);  // smaller, yet not "tightest"
       EXPECT_FALSE(c.vacuous);
     } else {
       EXPECT_TRUE(c.vacuous);  // 40/100 errors: above the 0.3 baseline
@@ -222,10 +222,10 @@ TEST(EvidenceKindsTest, MixedUnitsAreNotCompared) {
   got = Certify(req);
   ASSERT_TRUE(got.ok());
   for (const Certificate& c : got->certificates) {
-    if (!c.bounded_loss_units) continue;
-    EXPECT_GT(c.upper_bound, 0.3);
+    if (!c.loss_range.has_value()) continue;
+    EXPECT_GT(c.risk_upper_bound, 0.3);
     EXPECT_FALSE(c.vacuous);
-    EXPECT_EQ(c.range_max, 1000.0);
+    EXPECT_EQ(c.loss_range->loss_max, 1000.0);
   }
   // Bounded loss alone: the tightest is among the bounded-loss ones.
   req.evidence.holdout.reset();
@@ -233,7 +233,7 @@ TEST(EvidenceKindsTest, MixedUnitsAreNotCompared) {
   ASSERT_TRUE(got.ok());
   ASSERT_EQ(got->certificates.size(), 3u);
   for (const Certificate& c : got->certificates) {
-    EXPECT_GE(c.upper_bound, got->certificates[got->tightest_index].upper_bound);
+    EXPECT_GE(c.risk_upper_bound, got->certificates[got->tightest_index].risk_upper_bound);
   }
 }
 
@@ -242,7 +242,7 @@ TEST(EvidenceKindsTest, MixedUnitsAreNotCompared) {
 TEST(EvidenceKindsTest, CertifyAllNewKindsExtremeInputs) {
   for (double delta : {1e-300, 0.5, 1 - 1e-12}) {
     CertifyRequest req;
-    req.delta = delta;
+    req.failure_probability = delta;
     req.choice = FamilyChoice::kAllApplicable;
     req.evidence = Bounded(-5, 0, 2, -5, 5);
     req.evidence.pac_bayes = PacBayesEvidence{0, 1, 1, PacBayesTarget::kMajorityVote};
@@ -252,7 +252,7 @@ TEST(EvidenceKindsTest, CertifyAllNewKindsExtremeInputs) {
     ASSERT_TRUE(got.ok()) << got.status();
     EXPECT_EQ(got->certificates.size(), 8u);
     for (const Certificate& c : got->certificates) {
-      EXPECT_TRUE(std::isfinite(c.upper_bound));
+      EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
       EXPECT_TRUE(std::isfinite(c.penalty));
       EXPECT_TRUE(std::isfinite(c.empirical_risk));
     }
@@ -295,13 +295,13 @@ TEST(EvidenceKindsTest, PropertyGrid) {
           double prev_m = 2.0;
           for (std::uint64_t m : sizes) {
             const Certificate c = spec.compute(AllKinds(rate, m, cap), delta);
-            EXPECT_TRUE(std::isfinite(c.upper_bound));
-            EXPECT_GE(c.upper_bound, c.empirical_risk);
-            EXPECT_LE(c.upper_bound, 1.0);
+            EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
+            EXPECT_GE(c.risk_upper_bound, c.empirical_risk);
+            EXPECT_LE(c.risk_upper_bound, 1.0);
             if (!compression) {
-              EXPECT_LE(c.upper_bound, prev_m + 1e-12) << "m=" << m << " rate=" << rate;
+              EXPECT_LE(c.risk_upper_bound, prev_m + 1e-12) << "m=" << m << " rate=" << rate;
             }
-            prev_m = c.upper_bound;
+            prev_m = c.risk_upper_bound;
             ++checked;
           }
         }
@@ -310,13 +310,13 @@ TEST(EvidenceKindsTest, PropertyGrid) {
     for (std::uint64_t m : sizes) {
       double prev = -1;
       for (double cap : caps) {
-        const double u = spec.compute(AllKinds(0.1, m, cap), 0.05).upper_bound;
+        const double u = spec.compute(AllKinds(0.1, m, cap), 0.05).risk_upper_bound;
         EXPECT_GE(u, prev - 1e-12) << "cap=" << cap << " m=" << m;
         prev = u;
       }
       prev = -1;
       for (double delta : deltas) {
-        const double u = spec.compute(AllKinds(0.1, m, 4), delta).upper_bound;
+        const double u = spec.compute(AllKinds(0.1, m, 4), delta).risk_upper_bound;
         EXPECT_GE(u, prev - 1e-12) << "delta=" << delta << " m=" << m;
         prev = u;
       }

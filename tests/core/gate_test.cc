@@ -54,7 +54,7 @@ GateCandidate Candidate(std::uint64_t errors, std::uint64_t samples) {
 GatePolicy Policy(double max_risk, double delta) {
   GatePolicy p;
   p.max_risk = max_risk;
-  p.delta = delta;
+  p.failure_probability = delta;
   return p;
 }
 
@@ -106,16 +106,16 @@ TEST(GateTest, PromoteReportsBoundsAndLedger) {
   auto d = DecideGate(Policy(0.05, 0.05), Candidate(20, 1000), std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
   EXPECT_EQ(d->verdict, Verdict::kPromote);
-  EXPECT_NEAR(d->risk_certificate.upper_bound, BoostUpper(1000, 20, 0.025), 1e-12);
+  EXPECT_NEAR(d->risk_certificate.risk_upper_bound, BoostUpper(1000, 20, 0.025), 1e-12);
   ASSERT_TRUE(d->risk_lower_bound.has_value());
   EXPECT_NEAR(*d->risk_lower_bound, BoostLower(1000, 20, 0.025), 1e-12);
-  EXPECT_FALSE(d->risk_certificate.lower_bound.has_value());
+  EXPECT_FALSE(d->risk_certificate.risk_lower_bound.has_value());
   EXPECT_EQ(d->risk_certificate.family, Family::kHoldoutExactBinomial);
   ASSERT_EQ(d->delta_ledger.size(), 2u);
   EXPECT_EQ(d->delta_ledger[0].second, 0.025);
   EXPECT_EQ(d->delta_ledger[1].second, 0.025);
   EXPECT_LE(LedgerSum(*d), 0.05);
-  EXPECT_FALSE(d->additional_samples_to_settle.has_value());
+  EXPECT_FALSE(d->additional_sample_count.has_value());
   EXPECT_FALSE(d->difference_upper_bound.has_value());
   EXPECT_FALSE(d->mcnemar_p_value.has_value());
   ASSERT_FALSE(d->reasons.empty());
@@ -173,7 +173,7 @@ TEST(GateTest, PairedChampionDecisionValues) {
   EXPECT_NEAR(*d->difference_lower_bound, BoostLower(1000, 10, e) - BoostUpper(1000, 25, e),
               1e-12);
   EXPECT_NEAR(*d->mcnemar_p_value, 0.008337, 5e-7);
-  EXPECT_NEAR(d->risk_certificate.upper_bound, BoostUpper(1000, 15, 0.05 / 4), 1e-12);
+  EXPECT_NEAR(d->risk_certificate.risk_upper_bound, BoostUpper(1000, 15, 0.05 / 4), 1e-12);
   // Upper limit on the difference: 0.0186 - 0.0139 > 0, so not shown "not worse".
   EXPECT_GT(*d->difference_upper_bound, 0.0);
   EXPECT_EQ(d->verdict, Verdict::kHold);
@@ -193,7 +193,7 @@ TEST(GateTest, PairedChampionDecisionValues) {
   champ.paired = PairedCounts{5, 5, 60, 1000};
   d = DecideGate(p, Candidate(65, 1000), champ);
   ASSERT_TRUE(d.ok());
-  EXPECT_LE(d->risk_certificate.upper_bound, 0.2);
+  EXPECT_LE(d->risk_certificate.risk_upper_bound, 0.2);
   EXPECT_GT(*d->difference_lower_bound, 0.0);
   EXPECT_EQ(d->verdict, Verdict::kReject);
   EXPECT_THAT(d->reasons[0], HasSubstr("worse than champion 'model-a'"));
@@ -238,7 +238,7 @@ TEST(GateTest, UnpairedChampion) {
   d = DecideGate(p, Candidate(30, 1000), champ);
   ASSERT_TRUE(d.ok());
   EXPECT_EQ(d->verdict, Verdict::kHold);
-  EXPECT_FALSE(d->additional_samples_to_settle.has_value());  // no unpaired plan
+  EXPECT_FALSE(d->additional_sample_count.has_value());  // no unpaired plan
 
   // The same marginal counts, paired on one set with 25 shared errors
   // (b = 5, c = 15), settle the same question: the paired comparison is tighter.
@@ -254,26 +254,26 @@ TEST(GateTest, UnpairedChampion) {
 // promote, with the missing samples as the plan. Source: the policy rule.
 TEST(GateTest, BelowMinimumHolds) {
   GatePolicy p = Policy(0.05, 0.05);
-  p.min_holdout_samples = 500;
+  p.min_holdout_sample_count = 500;
   auto d = DecideGate(p, Candidate(0, 100), std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
   // Rule of three scale: 1 - 0.025^(1/100) = 0.0362 <= 0.05 would promote.
-  EXPECT_NEAR(d->risk_certificate.upper_bound, -std::expm1(std::log(0.025) / 100), 1e-12);
+  EXPECT_NEAR(d->risk_certificate.risk_upper_bound, -std::expm1(std::log(0.025) / 100), 1e-12);
   EXPECT_EQ(d->verdict, Verdict::kHold);
   EXPECT_THAT(d->reasons[0], AllOf(HasSubstr("100"), HasSubstr("500"),
                                    HasSubstr("would PROMOTE")));
-  ASSERT_TRUE(d->additional_samples_to_settle.has_value());
-  EXPECT_EQ(*d->additional_samples_to_settle, 400u);
-  p.min_holdout_samples = 100;
+  ASSERT_TRUE(d->additional_sample_count.has_value());
+  EXPECT_EQ(*d->additional_sample_count, 400u);
+  p.min_holdout_sample_count = 100;
   EXPECT_EQ(VerdictOf(p, Candidate(0, 100)), Verdict::kPromote);
   // Clearly bad (40 of 100 wrong) but still below a minimum of 500: HOLD, and
   // the reason says the bounds would reject.
-  p.min_holdout_samples = 500;
+  p.min_holdout_sample_count = 500;
   d = DecideGate(p, Candidate(40, 100), std::nullopt);
   ASSERT_TRUE(d.ok());
   EXPECT_EQ(d->verdict, Verdict::kHold);
   EXPECT_THAT(d->reasons[0], HasSubstr("would already REJECT"));
-  EXPECT_EQ(*d->additional_samples_to_settle, 400u);
+  EXPECT_EQ(*d->additional_sample_count, 400u);
 }
 
 // HOLD below the threshold: the plan is PlanHoldout's at the observed rate,
@@ -285,17 +285,17 @@ TEST(GateTest, HoldPlansTowardPromote) {
   auto d = DecideGate(p, Candidate(45, 1000), std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
   ASSERT_EQ(d->verdict, Verdict::kHold);
-  ASSERT_TRUE(d->additional_samples_to_settle.has_value());
-  const std::uint64_t total = 1000 + *d->additional_samples_to_settle;
+  ASSERT_TRUE(d->additional_sample_count.has_value());
+  const std::uint64_t total = 1000 + *d->additional_sample_count;
   HoldoutPlanRequest req;
   req.target_risk = 0.05;
   req.expected_risk = 0.045;
-  req.delta = 0.025;
+  req.failure_probability = 0.025;
   req.pass_probability = 0.8;
-  req.samples_held = 1000;
+  req.held_sample_count = 1000;
   auto plan = PlanHoldout(req);
   ASSERT_TRUE(plan.ok());
-  EXPECT_EQ(*d->additional_samples_to_settle, plan->additional_samples);
+  EXPECT_EQ(*d->additional_sample_count, plan->additional_sample_count);
   // Outside check: k_max(total) by scanning Boost's upper limit, then the pass
   // probability P(Bin(total, 0.045) <= k_max).
   std::uint64_t k_max = 0;
@@ -316,8 +316,8 @@ TEST(GateTest, HoldPlansTowardReject) {
   auto d = DecideGate(p, Candidate(14, 200), std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
   ASSERT_EQ(d->verdict, Verdict::kHold);
-  ASSERT_TRUE(d->additional_samples_to_settle.has_value());
-  const std::uint64_t total = 200 + *d->additional_samples_to_settle;
+  ASSERT_TRUE(d->additional_sample_count.has_value());
+  const std::uint64_t total = 200 + *d->additional_sample_count;
   std::uint64_t k_min = 0;
   while (BoostLower(total, k_min, 0.025) <= 0.05) ++k_min;
   const double reject_prob = boost::math::cdf(boost::math::complement(
@@ -345,7 +345,7 @@ TEST(GateTest, RateAtThresholdHasNoRejectPlan) {
   auto d = DecideGate(p, Candidate(50, 1000), std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
   EXPECT_EQ(d->verdict, Verdict::kHold);
-  EXPECT_FALSE(d->additional_samples_to_settle.has_value());
+  EXPECT_FALSE(d->additional_sample_count.has_value());
   EXPECT_THAT(Reasons(*d), HasSubstr("at the threshold"));
   const std::uint64_t n = 100000;
   std::uint64_t k_min = 5000;
@@ -364,7 +364,7 @@ TEST(GateTest, RateAHairAboveThresholdEnds) {
   auto d = DecideGate(p, Candidate(50'001, 1'000'000), std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
   EXPECT_EQ(d->verdict, Verdict::kHold);
-  if (d->additional_samples_to_settle.has_value()) {
+  if (d->additional_sample_count.has_value()) {
     EXPECT_THAT(Reasons(*d), HasSubstr("REJECT"));
   } else {
     EXPECT_THAT(Reasons(*d), HasSubstr("work budget"));
@@ -383,8 +383,8 @@ TEST(GateTest, HoldPlansPairedComparison) {
   auto d = DecideGate(p, Candidate(30, 2000), champ);
   ASSERT_TRUE(d.ok()) << d.status();
   ASSERT_EQ(d->verdict, Verdict::kHold);  // 13 < b = 20 < 79 (fixture row 1)
-  ASSERT_TRUE(d->additional_samples_to_settle.has_value());
-  const std::uint64_t total = 2000 + *d->additional_samples_to_settle;
+  ASSERT_TRUE(d->additional_sample_count.has_value());
+  const std::uint64_t total = 2000 + *d->additional_sample_count;
   const std::uint64_t b = (20 * total + 1999) / 2000;
   const std::uint64_t c = 40 * total / 2000;
   const double e = 0.05 / 8;
@@ -410,7 +410,7 @@ TEST(GateTest, LedgerSumsToAtMostDelta) {
       EXPECT_GT(LedgerSum(*d), delta * (1 - 1e-12));
       // The exact binomial is the tightest of the three (bounds.md 4).
       EXPECT_EQ(d->risk_certificate.family, Family::kHoldoutExactBinomial);
-      EXPECT_NEAR(d->risk_certificate.delta, (c ? delta / 4 : delta / 2) / 3, 1e-15 * delta);
+      EXPECT_NEAR(d->risk_certificate.failure_probability, (c ? delta / 4 : delta / 2) / 3, 1e-15 * delta);
     }
   }
 }
@@ -423,14 +423,15 @@ TEST(GateTest, TrainingEvidenceOnly) {
   GateCandidate c;
   c.id = "model-b";
   TrainingEvidence t;
-  t.counts = {250, 5000};
+  t.error_count = 250;
+  t.sample_count = 5000;
   t.capacity.log_hypothesis_count = std::log(1e6);
   c.evidence.training = t;
   auto d = DecideGate(p, c, std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
   // bounds.md row 3.3: Occam kl at |H| = 1e6, m = 5000, Remp = 0.05, delta = .05:
   // 0.069910 <= 0.1.
-  EXPECT_NEAR(d->risk_certificate.upper_bound, 0.069910, 5e-6);
+  EXPECT_NEAR(d->risk_certificate.risk_upper_bound, 0.069910, 5e-6);
   EXPECT_EQ(d->verdict, Verdict::kPromote);
   EXPECT_FALSE(d->risk_lower_bound.has_value());
   ASSERT_EQ(d->delta_ledger.size(), 1u);
@@ -440,7 +441,7 @@ TEST(GateTest, TrainingEvidenceOnly) {
   d = DecideGate(p, c, std::nullopt);
   ASSERT_TRUE(d.ok());
   EXPECT_EQ(d->verdict, Verdict::kHold);  // cannot reject without hold-out data
-  EXPECT_FALSE(d->additional_samples_to_settle.has_value());
+  EXPECT_FALSE(d->additional_sample_count.has_value());
   EXPECT_THAT(Reasons(*d), HasSubstr("does not allow the hold-out exact binomial"));
 }
 
@@ -456,12 +457,13 @@ TEST(GateTest, SkippedFamiliesAndContradiction) {
 
   GateCandidate c = Candidate(200, 1000);
   TrainingEvidence t;
-  t.counts = {0, 100000};
+  t.error_count = 0;
+  t.sample_count = 100000;
   t.capacity.log_hypothesis_count = 0.0;
   c.evidence.training = t;
   d = DecideGate(p, c, std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
-  EXPECT_LE(d->risk_certificate.upper_bound, 0.05);
+  EXPECT_LE(d->risk_certificate.risk_upper_bound, 0.05);
   EXPECT_GT(*d->risk_lower_bound, 0.05);
   EXPECT_EQ(d->verdict, Verdict::kReject);
   EXPECT_THAT(Reasons(*d), HasSubstr("contradicts"));
@@ -483,7 +485,8 @@ TEST(GateTest, FamiliesUsedForTheAudit) {
   GateCandidate c;
   c.id = "model-b";
   TrainingEvidence t;
-  t.counts = {250, 5000};
+  t.error_count = 250;
+  t.sample_count = 5000;
   t.capacity.log_hypothesis_count = std::log(1e6);
   c.evidence.training = t;
   p.allowed_families = {Family::kOccamKl};
@@ -500,7 +503,7 @@ TEST(GateTest, NoNanOrInfInDecisions) {
   for (std::uint64_t k : {0u, 1u}) {
     auto d = DecideGate(p, Candidate(k, 1), k == 0 ? std::optional(champ) : std::nullopt);
     ASSERT_TRUE(d.ok()) << d.status();
-    EXPECT_TRUE(std::isfinite(d->risk_certificate.upper_bound));
+    EXPECT_TRUE(std::isfinite(d->risk_certificate.risk_upper_bound));
     if (d->risk_lower_bound) {
       EXPECT_TRUE(std::isfinite(*d->risk_lower_bound));
     }
@@ -569,7 +572,8 @@ TEST(GateTest, InvalidCandidateAndChampionNameFields) {
   GateCandidate training_only;
   training_only.id = "model-b";
   TrainingEvidence t;
-  t.counts = {1, 100};
+  t.error_count = 1;
+  t.sample_count = 100;
   t.capacity.vc_dimension = 3;
   training_only.evidence.training = t;
   d = DecideGate(p, training_only, std::nullopt);

@@ -23,14 +23,14 @@ PacBayesEvidence Gibbs(double kl, double risk, std::uint64_t m) {
   PacBayesEvidence e;
   e.kl_divergence = kl;
   e.gibbs_empirical_risk = risk;
-  e.samples = m;
+  e.sample_count = m;
   return e;
 }
 
 // Formula sheet 5.2, the "classic" form, written out here as the reference
 // for the orderings: R_emp + sqrt((KL + ln(2 sqrt(m)/delta)) / (2m)).
 double Classic(const PacBayesEvidence& e, double delta) {
-  const double m = static_cast<double>(e.samples);
+  const double m = static_cast<double>(e.sample_count);
   return e.gibbs_empirical_risk +
          std::sqrt((e.kl_divergence + std::log(2 * std::sqrt(m) / delta)) / (2 * m));
 }
@@ -39,18 +39,18 @@ double Classic(const PacBayesEvidence& e, double delta) {
 // Gibbs R_emp = 0.03, delta = 0.05.
 TEST(PacBayesTest, FormulaSheetWorkedValues) {
   const PacBayesEvidence e = Gibbs(500, 0.03, 10000);
-  EXPECT_NEAR(PacBayesMcAllester(e, 0.05).upper_bound, 0.190348, 5e-7);  // row 5.1
+  EXPECT_NEAR(PacBayesMcAllester(e, 0.05).risk_upper_bound, 0.190348, 5e-7);  // row 5.1
   EXPECT_NEAR(Classic(e, 0.05), 0.189420, 5e-7);                         // row 5.2
-  EXPECT_NEAR(PacBayesKl(e, 0.05).upper_bound, 0.117601, 5e-7);          // row 5.3
+  EXPECT_NEAR(PacBayesKl(e, 0.05).risk_upper_bound, 0.117601, 5e-7);          // row 5.3
   EXPECT_NEAR(PacBayesCatoniAt(0.03, 500, 10000, 1.0, 0.05), 0.122066, 5e-7);  // row 5.4
   EXPECT_NEAR(PacBayesCatoniAt(0.03, 500, 10000, 3.0, 0.05), 0.137761, 5e-7);  // row 5.4
   // Sheet 5 relations: 5.3 is the tightest; 5.1 is always at least 5.2.
-  EXPECT_LT(PacBayesKl(e, 0.05).upper_bound, Classic(e, 0.05));
-  EXPECT_GE(PacBayesMcAllester(e, 0.05).upper_bound, Classic(e, 0.05));
+  EXPECT_LT(PacBayesKl(e, 0.05).risk_upper_bound, Classic(e, 0.05));
+  EXPECT_GE(PacBayesMcAllester(e, 0.05).risk_upper_bound, Classic(e, 0.05));
   // The grid (each C at delta/9) contains C = 1 and C = 2; its minimum is at
   // most the C = 1 value at delta/9 (brute force over the grid).
   const Certificate cat = PacBayesCatoni(e, 0.05);
-  EXPECT_LE(cat.upper_bound, PacBayesCatoniAt(0.03, 500, 10000, 1.0, 0.05 / 9) + 1e-15);
+  EXPECT_LE(cat.risk_upper_bound, PacBayesCatoniAt(0.03, 500, 10000, 1.0, 0.05 / 9) + 1e-15);
   EXPECT_THAT(cat.notes, Contains(HasSubstr("C in {0.125, 0.25, 0.5, 1, 2, 4, 8, 16, 32}")));
 }
 
@@ -64,7 +64,7 @@ TEST(PacBayesTest, MatchesScipyFixture) {
     PacBayesEvidence e = Gibbs(Num(row, "kl_divergence"), Num(row, "gibbs_empirical_risk"),
                                static_cast<std::uint64_t>(Num(row, "samples")));
     const double delta = Num(row, "delta");
-    SCOPED_TRACE(::testing::Message() << "m=" << e.samples << " KL=" << e.kl_divergence
+    SCOPED_TRACE(::testing::Message() << "m=" << e.sample_count << " KL=" << e.kl_divergence
                                       << " R=" << e.gibbs_empirical_risk << " d=" << delta);
     const double want_mca = Num(row, "mcallester");
     const double want_kl = Num(row, "kl_upper");
@@ -72,43 +72,43 @@ TEST(PacBayesTest, MatchesScipyFixture) {
     const Certificate mca = PacBayesMcAllester(e, delta);
     const Certificate kl = PacBayesKl(e, delta);
     const Certificate cat = PacBayesCatoni(e, delta);
-    EXPECT_NEAR(mca.upper_bound, want_mca, 1e-9 * want_mca);
+    EXPECT_NEAR(mca.risk_upper_bound, want_mca, 1e-9 * want_mca);
     // kl: numeric.h bisects to an absolute 1e-12 (conservative end).
-    EXPECT_NEAR(kl.upper_bound, want_kl, std::max(1e-9 * want_kl, 2e-12));
+    EXPECT_NEAR(kl.risk_upper_bound, want_kl, std::max(1e-9 * want_kl, 2e-12));
     // Conservative side: never below the outside root by more than the two
     // root finders' own evaluation noise of kl near q (~1e-15 relative at
     // m = 1e15; 1e-13 absolute covers it).
-    EXPECT_GE(kl.upper_bound, want_kl - 1e-13);
-    ASSERT_TRUE(kl.lower_bound.has_value());
-    EXPECT_NEAR(*kl.lower_bound, Num(row, "kl_lower"), 2e-12);
-    EXPECT_NEAR(cat.upper_bound, want_cat, 1e-9 * want_cat);
+    EXPECT_GE(kl.risk_upper_bound, want_kl - 1e-13);
+    ASSERT_TRUE(kl.risk_lower_bound.has_value());
+    EXPECT_NEAR(*kl.risk_lower_bound, Num(row, "kl_lower"), 2e-12);
+    EXPECT_NEAR(cat.risk_upper_bound, want_cat, 1e-9 * want_cat);
     EXPECT_THAT(cat.notes,
                 Contains(HasSubstr(absl::StrFormat("at C = %g", Num(row, "catoni_best_c")))));
     for (const Certificate* c : {&mca, &kl, &cat}) {
-      EXPECT_TRUE(std::isfinite(c->upper_bound));
-      EXPECT_GE(c->upper_bound, e.gibbs_empirical_risk);
-      EXPECT_LE(c->upper_bound, 1.0);
-      EXPECT_EQ(c->vacuous, c->upper_bound >= 1.0);
+      EXPECT_TRUE(std::isfinite(c->risk_upper_bound));
+      EXPECT_GE(c->risk_upper_bound, e.gibbs_empirical_risk);
+      EXPECT_LE(c->risk_upper_bound, 1.0);
+      EXPECT_EQ(c->vacuous, c->risk_upper_bound >= 1.0);
       EXPECT_THAT(c->notes, Contains(HasSubstr("Gibbs")));
     }
     // Orderings (formula sheet 5): kl <= classic <= McAllester 2003 (the
     // 2 sqrt(m) form needs m >= 8; McAllester >= classic always).
-    if (e.samples >= 8) {
-      EXPECT_LE(kl.upper_bound, std::min(1.0, Classic(e, delta)) + 2e-12);
+    if (e.sample_count >= 8) {
+      EXPECT_LE(kl.risk_upper_bound, std::min(1.0, Classic(e, delta)) + 2e-12);
     }
-    EXPECT_LE(std::min(1.0, Classic(e, delta)), mca.upper_bound + 1e-15);
+    EXPECT_LE(std::min(1.0, Classic(e, delta)), mca.risk_upper_bound + 1e-15);
 
     e.target = PacBayesTarget::kMajorityVote;
     const Certificate mv_mca = PacBayesMcAllester(e, delta);
     const Certificate mv_kl = PacBayesKl(e, delta);
     const Certificate mv_cat = PacBayesCatoni(e, delta);
-    EXPECT_NEAR(mv_mca.upper_bound, std::min(1.0, 2 * want_mca), 2e-9 * want_mca);
-    EXPECT_NEAR(mv_kl.upper_bound, std::min(1.0, 2 * want_kl), std::max(2e-9 * want_kl, 4e-12));
-    EXPECT_NEAR(mv_cat.upper_bound, std::min(1.0, 2 * want_cat), 2e-9 * want_cat);
+    EXPECT_NEAR(mv_mca.risk_upper_bound, std::min(1.0, 2 * want_mca), 2e-9 * want_mca);
+    EXPECT_NEAR(mv_kl.risk_upper_bound, std::min(1.0, 2 * want_kl), std::max(2e-9 * want_kl, 4e-12));
+    EXPECT_NEAR(mv_cat.risk_upper_bound, std::min(1.0, 2 * want_cat), 2e-9 * want_cat);
     for (const Certificate* c : {&mv_mca, &mv_kl, &mv_cat}) {
-      EXPECT_FALSE(c->lower_bound.has_value());
+      EXPECT_FALSE(c->risk_lower_bound.has_value());
       EXPECT_THAT(c->notes, Contains(HasSubstr("majority vote")));
-      EXPECT_LE(c->upper_bound, 1.0);
+      EXPECT_LE(c->risk_upper_bound, 1.0);
     }
     ++rows;
   }
@@ -121,10 +121,10 @@ TEST(PacBayesTest, SmallSampleUsesSeegerForm) {
   const Certificate small = PacBayesKl(Gibbs(1.0, 0.0, 7), 0.05);
   EXPECT_THAT(small.notes, Contains(HasSubstr("Seeger")));
   // Source: kl^{-1}_+(0, c) = 1 - exp(-c) (formula sheet 0.2).
-  EXPECT_NEAR(small.upper_bound, -std::expm1(-(1.0 + std::log(8 / 0.05)) / 7), 1e-15);
+  EXPECT_NEAR(small.risk_upper_bound, -std::expm1(-(1.0 + std::log(8 / 0.05)) / 7), 1e-15);
   const Certificate eight = PacBayesKl(Gibbs(1.0, 0.0, 8), 0.05);
   EXPECT_THAT(eight.notes, Not(Contains(HasSubstr("Seeger"))));
-  EXPECT_NEAR(eight.upper_bound,
+  EXPECT_NEAR(eight.risk_upper_bound,
               -std::expm1(-(1.0 + std::log(2 * std::sqrt(8.0) / 0.05)) / 8), 1e-15);
 }
 
@@ -142,16 +142,16 @@ TEST(PacBayesTest, EdgeCasesAreFinite) {
                                               << " r=" << risk);
             for (const Certificate& c : {PacBayesMcAllester(e, delta), PacBayesKl(e, delta),
                                          PacBayesCatoni(e, delta)}) {
-              EXPECT_TRUE(std::isfinite(c.upper_bound));
+              EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
               EXPECT_TRUE(std::isfinite(c.penalty));
-              EXPECT_GE(c.upper_bound, risk);
-              EXPECT_LE(c.upper_bound, 1.0);
-              if (c.lower_bound) {
-                EXPECT_TRUE(std::isfinite(*c.lower_bound));
-                EXPECT_LE(*c.lower_bound, risk);
+              EXPECT_GE(c.risk_upper_bound, risk);
+              EXPECT_LE(c.risk_upper_bound, 1.0);
+              if (c.risk_lower_bound) {
+                EXPECT_TRUE(std::isfinite(*c.risk_lower_bound));
+                EXPECT_LE(*c.risk_lower_bound, risk);
               }
               if (risk == 1.0) {
-                EXPECT_EQ(c.upper_bound, 1.0);
+                EXPECT_EQ(c.risk_upper_bound, 1.0);
               }
             }
           }
@@ -163,8 +163,8 @@ TEST(PacBayesTest, EdgeCasesAreFinite) {
   // ln(9/delta) / (m (1 - e^-C)) at C = 32 (Catoni 2007, Thm 1.2.6 by hand).
   const double m = 1e15;
   const Certificate c = PacBayesCatoni(Gibbs(0.0, 0.0, 1'000'000'000'000'000ULL), 0.05);
-  EXPECT_NEAR(c.upper_bound, -std::expm1(-std::log(9 / 0.05) / m) / -std::expm1(-32.0),
-              1e-9 * c.upper_bound);
+  EXPECT_NEAR(c.risk_upper_bound, -std::expm1(-std::log(9 / 0.05) / m) / -std::expm1(-32.0),
+              1e-9 * c.risk_upper_bound);
 }
 
 }  // namespace

@@ -68,14 +68,14 @@ TEST(PairedDifferenceTest, MatchesScipyClopperPearsonPair) {
   ASSERT_GE(rows.size(), 20u);
   for (const auto& row : rows) {
     PairedCounts p;
-    p.samples = U(row, "samples");
-    p.only_challenger_wrong = U(row, "b");
-    p.only_champion_wrong = U(row, "c");
+    p.sample_count = U(row, "samples");
+    p.only_challenger_wrong_count = U(row, "b");
+    p.only_champion_wrong_count = U(row, "c");
     const double delta = Num(row, "delta");
     const TailLimit up = PairedDifferenceUpper(p, delta);
     const TailLimit low = PairedDifferenceLower(p, delta);
-    EXPECT_NEAR(up.value, Num(row, "upper"), 1e-9) << p.samples << " " << p.only_challenger_wrong;
-    EXPECT_NEAR(low.value, Num(row, "lower"), 1e-9) << p.samples << " " << p.only_champion_wrong;
+    EXPECT_NEAR(up.value, Num(row, "upper"), 1e-9) << p.sample_count << " " << p.only_challenger_wrong_count;
+    EXPECT_NEAR(low.value, Num(row, "lower"), 1e-9) << p.sample_count << " " << p.only_champion_wrong_count;
     EXPECT_TRUE(up.exact);
     EXPECT_LE(low.value, up.value);
   }

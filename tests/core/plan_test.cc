@@ -38,12 +38,12 @@ std::uint64_t Errors(double rate, std::uint64_t n) {
 double CertifiedUpper(const Evidence& evidence, Family family, double delta) {
   CertifyRequest req;
   req.evidence = evidence;
-  req.delta = delta;
+  req.failure_probability = delta;
   req.choice = FamilyChoice::kListed;
   req.families = {family};
   auto got = Certify(req);
   EXPECT_TRUE(got.ok()) << got.status();
-  return got.ok() ? got->certificates[0].upper_bound : -1.0;
+  return got.ok() ? got->certificates[0].risk_upper_bound : -1.0;
 }
 
 double HoldoutUpper(std::uint64_t errors, std::uint64_t n, double delta) {
@@ -79,12 +79,12 @@ TEST(PlanHoldoutTest, FormulaSheetRows) {
   HoldoutPlanRequest req;
   req.target_risk = 0.01;
   req.expected_risk = 0.0;
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   auto zero = PlanHoldout(req);
   ASSERT_TRUE(zero.ok()) << zero.status();
-  EXPECT_EQ(zero->zero_failure_samples, 299u);
-  EXPECT_EQ(zero->samples, 299u);  // p = 0 plans exactly the zero-failure size
-  EXPECT_EQ(zero->tolerated_errors, 0u);
+  EXPECT_EQ(zero->zero_failure_sample_count, 299u);
+  EXPECT_EQ(zero->sample_count, 299u);  // p = 0 plans exactly the zero-failure size
+  EXPECT_EQ(zero->tolerated_error_count, 0u);
   EXPECT_EQ(zero->pass_probability_at_plan, 1.0);
 
   req.target_risk = 0.05;
@@ -92,17 +92,17 @@ TEST(PlanHoldoutTest, FormulaSheetRows) {
   auto plan = PlanHoldout(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
   EXPECT_TRUE(plan->reachable);
-  EXPECT_EQ(plan->samples, 410u);
-  EXPECT_EQ(plan->expected_rate_samples, 410u);
+  EXPECT_EQ(plan->sample_count, 410u);
+  EXPECT_EQ(plan->expected_rate_sample_count, 410u);
   EXPECT_NEAR(HoldoutUpper(Errors(0.03, 410), 410, 0.05), 0.049939, 5e-7);
-  EXPECT_FALSE(plan->pass_probability_samples.has_value());
+  EXPECT_FALSE(plan->pass_probability_sample_count.has_value());
 
   req.pass_probability = 0.8;
   plan = PlanHoldout(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
-  EXPECT_EQ(plan->samples, 601u);
-  EXPECT_EQ(plan->pass_probability_samples, 601u);
-  EXPECT_EQ(plan->expected_rate_samples, 410u);
+  EXPECT_EQ(plan->sample_count, 601u);
+  EXPECT_EQ(plan->pass_probability_sample_count, 601u);
+  EXPECT_EQ(plan->expected_rate_sample_count, 410u);
   EXPECT_NEAR(plan->pass_probability_at_plan, 0.8002, 5e-5);
 }
 
@@ -117,20 +117,20 @@ TEST(PlanHoldoutTest, MatchesBruteForceScan) {
     HoldoutPlanRequest req;
     req.target_risk = Num(row, "target_risk");
     req.expected_risk = Num(row, "expected_risk");
-    req.delta = Num(row, "delta");
+    req.failure_probability = Num(row, "delta");
     if (Num(row, "pass_probability") > 0) req.pass_probability = Num(row, "pass_probability");
     const std::string label = absl::StrCat("eps=", req.target_risk, " p=", req.expected_risk,
-                                           " delta=", req.delta, " pass=",
+                                           " delta=", req.failure_probability, " pass=",
                                            Num(row, "pass_probability"));
     auto plan = PlanHoldout(req);
     ASSERT_TRUE(plan.ok()) << plan.status();
     EXPECT_TRUE(plan->reachable) << label;
-    EXPECT_EQ(plan->samples, static_cast<std::uint64_t>(Num(row, "samples"))) << label;
-    EXPECT_EQ(plan->tolerated_errors, static_cast<std::uint64_t>(Num(row, "tolerated_errors")))
+    EXPECT_EQ(plan->sample_count, static_cast<std::uint64_t>(Num(row, "samples"))) << label;
+    EXPECT_EQ(plan->tolerated_error_count, static_cast<std::uint64_t>(Num(row, "tolerated_errors")))
         << label;
     EXPECT_NEAR(plan->pass_probability_at_plan, Num(row, "pass_probability_at_plan"), 1e-9)
         << label;
-    EXPECT_EQ(plan->zero_failure_samples,
+    EXPECT_EQ(plan->zero_failure_sample_count,
               static_cast<std::uint64_t>(Num(row, "zero_failure_samples")))
         << label;
   }
@@ -138,7 +138,7 @@ TEST(PlanHoldoutTest, MatchesBruteForceScan) {
 
 // At the planned n the exact binomial certificate (through Certify) is <=
 // target for the anticipated count and for every n' in the sawtooth window
-// after it; at n - 1 it is above the target; tolerated_errors is exactly the
+// after it; at n - 1 it is above the target; tolerated_error_count is exactly the
 // largest count that still certifies. Grid of targets, rates and deltas.
 TEST(PlanHoldoutTest, BoundaryThroughCertify) {
   int checked = 0;
@@ -148,11 +148,11 @@ TEST(PlanHoldoutTest, BoundaryThroughCertify) {
         HoldoutPlanRequest req;
         req.target_risk = eps;
         req.expected_risk = frac * eps;
-        req.delta = delta;
+        req.failure_probability = delta;
         auto plan = PlanHoldout(req);
         ASSERT_TRUE(plan.ok()) << plan.status();
         ASSERT_TRUE(plan->reachable);
-        const std::uint64_t n = plan->samples;
+        const std::uint64_t n = plan->sample_count;
         const double p = req.expected_risk;
         const std::string label = absl::StrCat(eps, " ", p, " ", delta, " n=", n);
         EXPECT_LE(HoldoutUpper(Errors(p, n), n, delta), eps) << label;
@@ -161,11 +161,11 @@ TEST(PlanHoldoutTest, BoundaryThroughCertify) {
         for (std::uint64_t m = n + 1; m <= n + window; ++m) {
           ASSERT_LE(HoldoutUpper(Errors(p, m), m, delta), eps) << label << " m=" << m;
         }
-        const std::uint64_t k = plan->tolerated_errors;
+        const std::uint64_t k = plan->tolerated_error_count;
         EXPECT_LE(HoldoutUpper(k, n, delta), eps) << label;
         EXPECT_GT(HoldoutUpper(k + 1, n, delta), eps) << label;
         EXPECT_GE(k, Errors(p, n));
-        EXPECT_LE(plan->zero_failure_samples, n);
+        EXPECT_LE(plan->zero_failure_sample_count, n);
         ++checked;
       }
     }
@@ -177,12 +177,12 @@ TEST(PlanHoldoutTest, AdditionalSamples) {
   HoldoutPlanRequest req;
   req.target_risk = 0.05;
   req.expected_risk = 0.03;
-  req.samples_held = 300;
+  req.held_sample_count = 300;
   auto plan = PlanHoldout(req);
   ASSERT_TRUE(plan.ok());
-  EXPECT_EQ(plan->additional_samples, 110u);  // 410 - 300
-  req.samples_held = 5000;
-  EXPECT_EQ(PlanHoldout(req)->additional_samples, 0u);
+  EXPECT_EQ(plan->additional_sample_count, 110u);  // 410 - 300
+  req.held_sample_count = 5000;
+  EXPECT_EQ(PlanHoldout(req)->additional_sample_count, 0u);
 }
 
 TEST(PlanHoldoutTest, UnreachableTargetsSayWhy) {
@@ -192,9 +192,9 @@ TEST(PlanHoldoutTest, UnreachableTargetsSayWhy) {
   auto plan = PlanHoldout(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
   EXPECT_FALSE(plan->reachable);
-  EXPECT_EQ(plan->samples, 0u);
+  EXPECT_EQ(plan->sample_count, 0u);
   EXPECT_THAT(plan->reason, HasSubstr("not below the target"));
-  EXPECT_EQ(plan->zero_failure_samples, 59u);  // still useful: ceil(ln .05 / ln .95)
+  EXPECT_EQ(plan->zero_failure_sample_count, 59u);  // still useful: ceil(ln .05 / ln .95)
 
   req.expected_risk = 0.2;
   req.target_risk = 1.0;
@@ -210,7 +210,7 @@ TEST(PlanHoldoutTest, UnreachableTargetsSayWhy) {
   ASSERT_TRUE(plan.ok());
   EXPECT_FALSE(plan->reachable);
   EXPECT_THAT(plan->reason, HasSubstr("2^53"));
-  EXPECT_EQ(plan->zero_failure_samples, 0u);
+  EXPECT_EQ(plan->zero_failure_sample_count, 0u);
 }
 
 // n around 10^14: p = 0.01 - 1e-8 against eps = 0.01 needs about
@@ -222,19 +222,19 @@ TEST(PlanHoldoutTest, HugeSampleSizesWithoutOverflow) {
   HoldoutPlanRequest req;
   req.target_risk = 0.01;
   req.expected_risk = 0.01 - 1e-8;
-  req.delta = 0.05;
-  req.samples_held = 1;
+  req.failure_probability = 0.05;
+  req.held_sample_count = 1;
   auto plan = PlanHoldout(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
   ASSERT_TRUE(plan->reachable) << plan->reason;
-  const std::uint64_t n = plan->samples;
+  const std::uint64_t n = plan->sample_count;
   EXPECT_GT(n, 1e14);
   EXPECT_LT(n, 1e15);
-  EXPECT_EQ(plan->additional_samples, n - 1);
+  EXPECT_EQ(plan->additional_sample_count, n - 1);
   const double p = req.expected_risk;
-  EXPECT_LE(HoldoutUpper(Errors(p, n), n, req.delta), req.target_risk);
-  EXPECT_GT(HoldoutUpper(Errors(p, n - 1), n - 1, req.delta), req.target_risk);
-  EXPECT_LE(plan->bound_evaluations, 8 * std::log2(static_cast<double>(n)));
+  EXPECT_LE(HoldoutUpper(Errors(p, n), n, req.failure_probability), req.target_risk);
+  EXPECT_GT(HoldoutUpper(Errors(p, n - 1), n - 1, req.failure_probability), req.target_risk);
+  EXPECT_LE(plan->bound_evaluation_count, 8 * std::log2(static_cast<double>(n)));
   EXPECT_TRUE(std::isfinite(plan->pass_probability_at_plan));
   EXPECT_GE(plan->pass_probability_at_plan, 0.0);
   EXPECT_LE(plan->pass_probability_at_plan, 1.0);
@@ -251,19 +251,19 @@ TEST(PlanHoldoutTest, PassProbabilityNearTenToTheFifteenEnds) {
   HoldoutPlanRequest req;
   req.target_risk = 0.01;
   req.expected_risk = 0.01 - 1e-8;
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   req.pass_probability = 0.8;
   auto plan = PlanHoldout(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
   if (plan->reachable) {
-    const std::uint64_t n = plan->samples;
-    const std::uint64_t k = plan->tolerated_errors;
+    const std::uint64_t n = plan->sample_count;
+    const std::uint64_t k = plan->tolerated_error_count;
     EXPECT_GT(n, 1e14);
     EXPECT_LE(HoldoutUpper(k, n, 0.05), 0.01);
     EXPECT_GT(HoldoutUpper(k + 1, n, 0.05), 0.01);
   } else {
     EXPECT_THAT(plan->reason, HasSubstr("work budget"));
-    EXPECT_EQ(plan->samples, 0u);
+    EXPECT_EQ(plan->sample_count, 0u);
   }
 }
 
@@ -275,34 +275,34 @@ TEST(PlanHoldoutTest, PassProbabilityAtLargeSize) {
   HoldoutPlanRequest req;
   req.target_risk = 0.01;
   req.expected_risk = 0.01 - 1e-5;
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   req.pass_probability = 0.8;
   auto plan = PlanHoldout(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
   ASSERT_TRUE(plan->reachable) << plan->reason;
-  const std::uint64_t n = plan->samples;
-  EXPECT_GT(n, plan->expected_rate_samples);
-  const std::uint64_t k = plan->tolerated_errors;
+  const std::uint64_t n = plan->sample_count;
+  EXPECT_GT(n, plan->expected_rate_sample_count);
+  const std::uint64_t k = plan->tolerated_error_count;
   EXPECT_LE(HoldoutUpper(k, n, 0.05), 0.01);
   EXPECT_GT(HoldoutUpper(k + 1, n, 0.05), 0.01);
   EXPECT_GT(HoldoutUpper(k, n - 1, 0.05), 0.01);
   EXPECT_GE(plan->pass_probability_at_plan, 0.8);
   EXPECT_LT(plan->pass_probability_at_plan, 0.801);
-  EXPECT_LT(plan->bound_evaluations, 2000u);
+  EXPECT_LT(plan->bound_evaluation_count, 2000u);
 }
 
 TEST(PlanHoldoutTest, InvalidFieldsAreNamed) {
   HoldoutPlanRequest req;
   req.target_risk = NAN;
   req.expected_risk = 1.5;
-  req.delta = 0.0;
+  req.failure_probability = 0.0;
   req.pass_probability = 1.0;
-  req.samples_held = (1ULL << 53) + 1;
+  req.held_sample_count = (1ULL << 53) + 1;
   auto plan = PlanHoldout(req);
   EXPECT_THAT(plan, StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("NaN")));
   EXPECT_THAT(Fields(plan.status()),
               ElementsAre("target_risk", "expected_risk", "failure_probability",
-                          "pass_probability", "samples_held"));
+                          "pass_probability", "held_sample_count"));
   req = HoldoutPlanRequest{};
   req.target_risk = -0.1;
   EXPECT_THAT(Fields(PlanHoldout(req).status()), ElementsAre("target_risk"));
@@ -342,22 +342,22 @@ TEST(PlanTrainingTest, MatchesBruteForceScanAndCertify) {
     req.capacity = tc.capacity;
     req.expected_empirical_risk = Num(row, "expected_empirical_risk");
     req.target_risk = Num(row, "target_risk");
-    req.delta = Num(row, "delta");
+    req.failure_probability = Num(row, "delta");
     const std::string label = absl::StrCat(row.at("family"), " cap=", Num(row, "capacity"),
                                            " r=", req.expected_empirical_risk);
     auto plan = PlanTraining(req);
     ASSERT_TRUE(plan.ok()) << plan.status();
     ASSERT_TRUE(plan->reachable) << label << plan->reason;
-    const std::uint64_t m = plan->samples;
+    const std::uint64_t m = plan->sample_count;
     EXPECT_EQ(m, static_cast<std::uint64_t>(Num(row, "samples"))) << label;
     const double r = req.expected_empirical_risk;
-    EXPECT_LE(TrainingUpper(tc.family, tc.capacity, Errors(r, m), m, req.delta),
+    EXPECT_LE(TrainingUpper(tc.family, tc.capacity, Errors(r, m), m, req.failure_probability),
               req.target_risk)
         << label;
-    EXPECT_GT(TrainingUpper(tc.family, tc.capacity, Errors(r, m - 1), m - 1, req.delta),
+    EXPECT_GT(TrainingUpper(tc.family, tc.capacity, Errors(r, m - 1), m - 1, req.failure_probability),
               req.target_risk)
         << label;
-    EXPECT_LE(plan->bound_evaluations, 8 * std::log2(static_cast<double>(m)) + 8) << label;
+    EXPECT_LE(plan->bound_evaluation_count, 8 * std::log2(static_cast<double>(m)) + 8) << label;
   }
 }
 
@@ -381,11 +381,11 @@ TEST(PlanTrainingTest, VcInversionFormulaSheetRow) {
   req.capacity.vc_dimension = 100;
   req.expected_empirical_risk = 0.05;
   req.target_risk = 0.10;
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   auto plan = PlanTraining(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
-  EXPECT_EQ(plan->samples, static_cast<std::uint64_t>(Num(row, "planner_samples")));
-  EXPECT_EQ(plan->samples, 401463u);
+  EXPECT_EQ(plan->sample_count, static_cast<std::uint64_t>(Num(row, "planner_samples")));
+  EXPECT_EQ(plan->sample_count, 401463u);
   EXPECT_EQ(static_cast<std::uint64_t>(Num(row, "plus_one_over_m_samples")), 401423u);
 }
 
@@ -398,19 +398,19 @@ TEST(PlanTrainingTest, LiteratureReferences) {
   req.family = Family::kVcAdditive;
   req.capacity.vc_dimension = 1;
   req.target_risk = 0.1;
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   auto plan = PlanTraining(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
-  EXPECT_EQ(plan->realizable_reference, 562u);
+  EXPECT_EQ(plan->realizable_sample_count, 562u);
   req.capacity.vc_dimension = 10;
   req.target_risk = 0.05;
   plan = PlanTraining(req);
   ASSERT_TRUE(plan.ok());
-  EXPECT_EQ(plan->realizable_reference, 12836u);
+  EXPECT_EQ(plan->realizable_sample_count, 12836u);
   // Agnostic VC reference: smallest m with conf + 1/m <= eps/2 (sheet 9.2);
   // checked at the boundary with the public VcConfidence.
-  ASSERT_TRUE(plan->agnostic_reference.has_value());
-  const double a = static_cast<double>(*plan->agnostic_reference);
+  ASSERT_TRUE(plan->agnostic_sample_count.has_value());
+  const double a = static_cast<double>(*plan->agnostic_sample_count);
   EXPECT_LE(VcConfidence(10, a, 0.05) + 1 / a, 0.025);
   EXPECT_GT(VcConfidence(10, a - 1, 0.05) + 1 / (a - 1), 0.025);
 
@@ -419,11 +419,11 @@ TEST(PlanTrainingTest, LiteratureReferences) {
   req.capacity.log_hypothesis_count = std::log(1e6);
   plan = PlanTraining(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
-  EXPECT_EQ(plan->realizable_reference, 337u);
-  EXPECT_EQ(plan->agnostic_reference, 14004u);
+  EXPECT_EQ(plan->realizable_sample_count, 337u);
+  EXPECT_EQ(plan->agnostic_sample_count, 14004u);
   // Our own plan at R_emp = 0 with the Hoeffding form needs
   // (13.8155 + 2.9957) / (2 * 0.05^2) = 3362.2 -> 3363 (fixture row too).
-  EXPECT_EQ(plan->samples, 3363u);
+  EXPECT_EQ(plan->sample_count, 3363u);
 }
 
 // A grid through Certify for the four families (boundary property).
@@ -440,11 +440,11 @@ TEST(PlanTrainingTest, BoundaryGridThroughCertify) {
           req.capacity = tc.capacity;
           req.expected_empirical_risk = frac * eps;
           req.target_risk = eps;
-          req.delta = 0.01;
+          req.failure_probability = 0.01;
           auto plan = PlanTraining(req);
           ASSERT_TRUE(plan.ok()) << plan.status();
           ASSERT_TRUE(plan->reachable) << plan->reason;
-          const std::uint64_t m = plan->samples;
+          const std::uint64_t m = plan->sample_count;
           const double r = req.expected_empirical_risk;
           const std::string label = absl::StrCat(slug, " ", cap, " ", eps, " ", r, " m=", m);
           EXPECT_LE(TrainingUpper(tc.family, tc.capacity, Errors(r, m), m, 0.01), eps)
@@ -468,19 +468,19 @@ TEST(PlanTrainingTest, HugeSampleSizesWithoutOverflow) {
   req.family = Family::kOccamHoeffding;
   req.capacity.log_hypothesis_count = 2e13;
   req.target_risk = 0.1;
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   auto plan = PlanTraining(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
   ASSERT_TRUE(plan->reachable) << plan->reason;
   const double closed = std::ceil((2e13 + std::log(20.0)) / 0.02);
-  EXPECT_NEAR(static_cast<double>(plan->samples), closed, 2.0);  // rounding at 1e15
-  EXPECT_LE(TrainingUpper(req.family, req.capacity, 0, plan->samples, 0.05), 0.1);
-  EXPECT_GT(TrainingUpper(req.family, req.capacity, 0, plan->samples - 1, 0.05), 0.1);
-  EXPECT_LE(plan->bound_evaluations, 2 * 50 + 2);  // about 2 log2(1e15) = 100
-  EXPECT_EQ(plan->realizable_reference,
+  EXPECT_NEAR(static_cast<double>(plan->sample_count), closed, 2.0);  // rounding at 1e15
+  EXPECT_LE(TrainingUpper(req.family, req.capacity, 0, plan->sample_count, 0.05), 0.1);
+  EXPECT_GT(TrainingUpper(req.family, req.capacity, 0, plan->sample_count - 1, 0.05), 0.1);
+  EXPECT_LE(plan->bound_evaluation_count, 2 * 50 + 2);  // about 2 log2(1e15) = 100
+  EXPECT_EQ(plan->realizable_sample_count,
             static_cast<std::uint64_t>(std::ceil((2e13 + std::log(20.0)) / 0.1)));
-  EXPECT_FALSE(plan->agnostic_reference.has_value() &&
-               *plan->agnostic_reference > kPlanMaxSamples);
+  EXPECT_FALSE(plan->agnostic_sample_count.has_value() &&
+               *plan->agnostic_sample_count > kPlanMaxSamples);
 
   req.family = Family::kVcAdditive;
   req.capacity = ClassCapacity{};
@@ -489,11 +489,11 @@ TEST(PlanTrainingTest, HugeSampleSizesWithoutOverflow) {
   plan = PlanTraining(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
   ASSERT_TRUE(plan->reachable) << plan->reason;
-  EXPECT_GT(plan->samples, 5e14);
-  EXPECT_LT(plan->samples, 5e15);
-  EXPECT_LE(TrainingUpper(req.family, req.capacity, 0, plan->samples, 0.05), 0.5);
-  EXPECT_GT(TrainingUpper(req.family, req.capacity, 0, plan->samples - 1, 0.05), 0.5);
-  EXPECT_LE(plan->bound_evaluations, 2 * 53 + 2);
+  EXPECT_GT(plan->sample_count, 5e14);
+  EXPECT_LT(plan->sample_count, 5e15);
+  EXPECT_LE(TrainingUpper(req.family, req.capacity, 0, plan->sample_count, 0.05), 0.5);
+  EXPECT_GT(TrainingUpper(req.family, req.capacity, 0, plan->sample_count - 1, 0.05), 0.5);
+  EXPECT_LE(plan->bound_evaluation_count, 2 * 53 + 2);
 }
 
 TEST(PlanTrainingTest, UnreachableTargetsSayWhy) {
@@ -505,7 +505,7 @@ TEST(PlanTrainingTest, UnreachableTargetsSayWhy) {
   auto plan = PlanTraining(req);
   ASSERT_TRUE(plan.ok()) << plan.status();
   EXPECT_FALSE(plan->reachable);
-  EXPECT_EQ(plan->samples, 0u);
+  EXPECT_EQ(plan->sample_count, 0u);
   EXPECT_THAT(plan->reason, HasSubstr("not below the target"));
 
   req.target_risk = 1.0;
@@ -522,7 +522,7 @@ TEST(PlanTrainingTest, UnreachableTargetsSayWhy) {
   ASSERT_TRUE(plan.ok());
   EXPECT_FALSE(plan->reachable);
   EXPECT_THAT(plan->reason, HasSubstr("2^53"));
-  EXPECT_FALSE(plan->realizable_reference.has_value());  // 1e18, beyond 2^53
+  EXPECT_FALSE(plan->realizable_sample_count.has_value());  // 1e18, beyond 2^53
 }
 
 TEST(PlanTrainingTest, InvalidFieldsAreNamed) {
@@ -530,13 +530,13 @@ TEST(PlanTrainingTest, InvalidFieldsAreNamed) {
   req.family = Family::kVcAdditive;  // no vc_dimension given
   req.expected_empirical_risk = NAN;
   req.target_risk = 0.0;
-  req.delta = 1.0;
-  req.samples_held = ~0ULL;
+  req.failure_probability = 1.0;
+  req.held_sample_count = ~0ULL;
   auto plan = PlanTraining(req);
   EXPECT_THAT(plan, StatusIs(absl::StatusCode::kInvalidArgument));
   EXPECT_THAT(Fields(plan.status()),
               ElementsAre("capacity", "expected_empirical_risk", "target_risk",
-                          "failure_probability", "samples_held"));
+                          "failure_probability", "held_sample_count"));
   req = TrainingPlanRequest{};
   req.family = Family::kHoldoutExactBinomial;
   EXPECT_THAT(PlanTraining(req), StatusIs(absl::StatusCode::kInvalidArgument,

@@ -20,7 +20,8 @@ using ::testing::HasSubstr;
 
 RademacherEvidence Make(std::uint64_t k, std::uint64_t m, double rhat, std::uint64_t draws) {
   RademacherEvidence e;
-  e.counts = {k, m};
+  e.error_count = k;
+  e.sample_count = m;
   e.empirical_rademacher = rhat;
   e.sigma_draw_count = draws;
   return e;
@@ -37,21 +38,21 @@ TEST(RademacherTest, MatchesScipyFixture) {
              static_cast<std::uint64_t>(Num(row, "samples")), Num(row, "empirical_rademacher"),
              static_cast<std::uint64_t>(Num(row, "sigma_draws")));
     const double delta = Num(row, "delta");
-    SCOPED_TRACE(::testing::Message() << e.counts.errors << "/" << e.counts.samples
+    SCOPED_TRACE(::testing::Message() << e.error_count << "/" << e.sample_count
                                       << " rhat=" << e.empirical_rademacher
                                       << " N=" << e.sigma_draw_count << " d=" << delta);
     const Certificate c = RademacherBound(e, delta);
     const double want = Num(row, "upper");
-    EXPECT_NEAR(c.upper_bound, want, 1e-9 * want);
-    EXPECT_EQ(c.vacuous, c.upper_bound >= 1.0);
-    EXPECT_FALSE(c.lower_bound.has_value());
+    EXPECT_NEAR(c.risk_upper_bound, want, 1e-9 * want);
+    EXPECT_EQ(c.vacuous, c.risk_upper_bound >= 1.0);
+    EXPECT_FALSE(c.risk_lower_bound.has_value());
     if (e.sigma_draw_count > 0) {
       EXPECT_THAT(c.notes, Contains(HasSubstr("McDiarmid")));
       // Sampling costs: never below the exact-expectation bound at the same
       // estimate (slack >= 0 and delta/2 in the main term).
-      EXPECT_GE(c.upper_bound, RademacherBound(Make(e.counts.errors, e.counts.samples,
+      EXPECT_GE(c.risk_upper_bound, RademacherBound(Make(e.error_count, e.sample_count,
                                                     e.empirical_rademacher, 0),
-                                               delta).upper_bound);
+                                               delta).risk_upper_bound);
     }
     ++rows;
   }
@@ -79,7 +80,7 @@ TEST(RademacherTest, BruteForceThresholdClass) {
   EXPECT_GT(rhat, 0.0);
   EXPECT_LE(rhat, std::sqrt(2 * std::log(13.0) / m));  // Massart
   const Certificate c = RademacherBound(Make(2, m, rhat, 0), 0.05);
-  EXPECT_NEAR(c.upper_bound, std::min(1.0, 2.0 / 12 + rhat + 3 * std::sqrt(std::log(40.0) / 24)),
+  EXPECT_NEAR(c.risk_upper_bound, std::min(1.0, 2.0 / 12 + rhat + 3 * std::sqrt(std::log(40.0) / 24)),
               1e-15);
 }
 
@@ -93,17 +94,17 @@ TEST(RademacherTest, EdgeCasesAreFinite) {
           if (n == 0 && rhat < 0) continue;  // rejected by validation
           for (std::uint64_t k : {std::uint64_t{0}, m}) {
             const Certificate c = RademacherBound(Make(k, m, rhat, n), delta);
-            EXPECT_TRUE(std::isfinite(c.upper_bound));
-            EXPECT_GE(c.upper_bound, c.empirical_risk);
-            EXPECT_LE(c.upper_bound, 1.0);
-            EXPECT_GE(c.upper_bound, 0.0);
+            EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
+            EXPECT_GE(c.risk_upper_bound, c.empirical_risk);
+            EXPECT_LE(c.risk_upper_bound, 1.0);
+            EXPECT_GE(c.risk_upper_bound, 0.0);
           }
         }
       }
     }
   }
   // m = 1e15, exact Rhat = 0, no errors, delta = 0.05: 3 sqrt(ln 40 / 2e15).
-  EXPECT_NEAR(RademacherBound(Make(0, 1'000'000'000'000'000ULL, 0.0, 0), 0.05).upper_bound,
+  EXPECT_NEAR(RademacherBound(Make(0, 1'000'000'000'000'000ULL, 0.0, 0), 0.05).risk_upper_bound,
               3 * std::sqrt(std::log(40.0) / 2e15), 1e-22);
 }
 

@@ -48,23 +48,23 @@ Candidate Finite(const std::string& id, std::uint64_t errors, std::uint64_t samp
 TEST(SelectTest, OccamStructureHandWorked) {
   SelectRequest req;
   req.family = Family::kOccamHoeffding;
-  req.delta = 0.06;
+  req.failure_probability = 0.06;
   req.spread = DeltaSpread::kUniform;
   req.candidates = {Finite("A", 300, 1000, 10), Finite("B", 100, 1000, 50),
                     Finite("C", 90, 1000, 200)};
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
   ASSERT_EQ(got->candidates.size(), 3u);
-  EXPECT_NEAR(got->candidates[0].upper_bound, 0.383403, 1e-6);
-  EXPECT_NEAR(got->candidates[1].upper_bound, 0.264183, 1e-6);
-  EXPECT_NEAR(got->candidates[2].upper_bound, 0.409306, 1e-6);
+  EXPECT_NEAR(got->candidates[0].risk_upper_bound, 0.383403, 1e-6);
+  EXPECT_NEAR(got->candidates[1].risk_upper_bound, 0.264183, 1e-6);
+  EXPECT_NEAR(got->candidates[2].risk_upper_bound, 0.409306, 1e-6);
   EXPECT_EQ(got->chosen_index, 1u);
   EXPECT_EQ(got->candidates[1].id, "B");
   EXPECT_DOUBLE_EQ(got->candidates[1].capacity, 50.0);
   EXPECT_DOUBLE_EQ(got->candidates[1].empirical_risk, 0.1);
   EXPECT_NEAR(got->candidates[1].penalty, 0.164183, 1e-6);
-  for (const CandidateResult& c : got->candidates) EXPECT_DOUBLE_EQ(c.delta, 0.02);
-  EXPECT_NEAR(got->total_delta, 0.06, 1e-15);
+  for (const CandidateResult& c : got->candidates) EXPECT_DOUBLE_EQ(c.failure_probability, 0.02);
+  EXPECT_NEAR(got->spent_failure_probability, 0.06, 1e-15);
   EXPECT_FALSE(got->fragile);
   EXPECT_THAT(got->within_tolerance, IsEmpty());
   EXPECT_THAT(got->delta_rule, HasSubstr("delta/3"));
@@ -79,21 +79,21 @@ TEST(SelectTest, OccamStructureHandWorked) {
 TEST(SelectTest, VcStructureInverseSquareHandWorked) {
   SelectRequest req;
   req.family = Family::kVcAdditive;
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   req.spread = DeltaSpread::kInverseSquare;
   req.candidates = {Vc("h10", 2500, 10000, 10), Vc("h100", 500, 10000, 100),
                     Vc("h1000", 100, 10000, 1000)};
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
-  EXPECT_NEAR(got->candidates[0].upper_bound, 0.345436, 1e-6);
-  EXPECT_NEAR(got->candidates[1].upper_bound, 0.302310, 1e-6);
-  EXPECT_NEAR(got->candidates[2].upper_bound, 0.642778, 1e-6);
-  EXPECT_NEAR(got->candidates[0].delta, 0.030396, 1e-6);
-  EXPECT_NEAR(got->candidates[1].delta, 0.007599, 1e-6);
-  EXPECT_NEAR(got->candidates[2].delta, 0.003377, 1e-6);
+  EXPECT_NEAR(got->candidates[0].risk_upper_bound, 0.345436, 1e-6);
+  EXPECT_NEAR(got->candidates[1].risk_upper_bound, 0.302310, 1e-6);
+  EXPECT_NEAR(got->candidates[2].risk_upper_bound, 0.642778, 1e-6);
+  EXPECT_NEAR(got->candidates[0].failure_probability, 0.030396, 1e-6);
+  EXPECT_NEAR(got->candidates[1].failure_probability, 0.007599, 1e-6);
+  EXPECT_NEAR(got->candidates[2].failure_probability, 0.003377, 1e-6);
   EXPECT_EQ(got->chosen_index, 1u);
   EXPECT_FALSE(got->fragile);
-  EXPECT_LT(got->total_delta, 0.05);
+  EXPECT_LT(got->spent_failure_probability, 0.05);
 }
 
 // Source: formula sheet row 11.4: w_k = 6/(pi^2 k^2) for k = 1..5 are
@@ -101,7 +101,7 @@ TEST(SelectTest, VcStructureInverseSquareHandWorked) {
 TEST(SelectTest, InverseSquareWeightsMatchFormulaSheet) {
   SelectRequest req;
   req.family = Family::kOccamKl;
-  req.delta = 0.1;
+  req.failure_probability = 0.1;
   req.spread = DeltaSpread::kInverseSquare;
   for (int i = 0; i < 5; ++i) {
     req.candidates.push_back(Finite(absl::StrCat("c", i), 10, 500, 2.0 * (i + 1)));
@@ -110,11 +110,11 @@ TEST(SelectTest, InverseSquareWeightsMatchFormulaSheet) {
   ASSERT_TRUE(got.ok()) << got.status();
   const double sheet[] = {0.6079, 0.1520, 0.0675, 0.0380, 0.0243};
   for (int i = 0; i < 5; ++i) {
-    EXPECT_NEAR(got->candidates[i].weight, sheet[i], 5e-5) << i;
-    EXPECT_NEAR(got->candidates[i].delta, 0.1 * sheet[i], 5e-6) << i;
+    EXPECT_NEAR(got->candidates[i].delta_weight, sheet[i], 5e-5) << i;
+    EXPECT_NEAR(got->candidates[i].failure_probability, 0.1 * sheet[i], 5e-6) << i;
   }
-  EXPECT_NEAR(got->candidates[0].weight, 6.0 / (std::numbers::pi * std::numbers::pi), 1e-15);
-  EXPECT_NEAR(got->total_delta, 0.1 * 0.8898, 5e-6);
+  EXPECT_NEAR(got->candidates[0].delta_weight, 6.0 / (std::numbers::pi * std::numbers::pi), 1e-15);
+  EXPECT_NEAR(got->spent_failure_probability, 0.1 * 0.8898, 5e-6);
   EXPECT_THAT(got->delta_rule, HasSubstr("6/(pi^2 k^2)"));
 }
 
@@ -131,7 +131,7 @@ TEST(SelectTest, EveryBoundEqualsCertifyAtItsShare) {
     for (DeltaSpread spread : spreads) {
       SelectRequest req;
       req.family = family;
-      req.delta = 0.05;
+      req.failure_probability = 0.05;
       req.spread = spread;
       if (spread == DeltaSpread::kCallerWeights) req.weights = {0.5, 0.25, 0.125, 0.125};
       for (int i = 0; i < 4; ++i) {
@@ -145,23 +145,23 @@ TEST(SelectTest, EveryBoundEqualsCertifyAtItsShare) {
         CertifyRequest cert;
         cert.evidence.training =
             TrainingEvidence{req.candidates[i].training, req.candidates[i].capacity};
-        cert.delta = req.delta;
+        cert.failure_probability = req.failure_probability;
         cert.choice = FamilyChoice::kListed;
         cert.families = {family};
-        cert.delta_weights = {got->candidates[i].weight};
+        cert.delta_weights = {got->candidates[i].delta_weight};
         auto c = Certify(cert);
         ASSERT_TRUE(c.ok()) << c.status();
-        EXPECT_EQ(got->candidates[i].upper_bound, c->certificates[0].upper_bound)
+        EXPECT_EQ(got->candidates[i].risk_upper_bound, c->certificates[0].risk_upper_bound)
             << static_cast<int>(family) << " candidate " << i;
-        EXPECT_EQ(got->candidates[i].delta, c->certificates[0].delta);
+        EXPECT_EQ(got->candidates[i].failure_probability, c->certificates[0].failure_probability);
         EXPECT_EQ(got->candidates[i].penalty, c->certificates[0].penalty);
         // The chosen bound is the smallest.
-        EXPECT_LE(got->candidates[got->chosen_index].upper_bound,
-                  got->candidates[i].upper_bound);
+        EXPECT_LE(got->candidates[got->chosen_index].risk_upper_bound,
+                  got->candidates[i].risk_upper_bound);
       }
       if (spread == DeltaSpread::kCallerWeights) {
-        EXPECT_DOUBLE_EQ(got->candidates[1].delta, 0.05 * 0.25);
-        EXPECT_DOUBLE_EQ(got->total_delta, 0.05);
+        EXPECT_DOUBLE_EQ(got->candidates[1].failure_probability, 0.05 * 0.25);
+        EXPECT_DOUBLE_EQ(got->spent_failure_probability, 0.05);
       }
     }
   }
@@ -176,7 +176,7 @@ TEST(SelectTest, TiesGoToSmallerCapacity) {
   req.candidates = {Vc("a", 50, 20000, 20), Vc("b", 50, 20000, 20), Vc("c", 50, 20000, 40)};
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
-  EXPECT_EQ(got->candidates[0].upper_bound, got->candidates[1].upper_bound);
+  EXPECT_EQ(got->candidates[0].risk_upper_bound, got->candidates[1].risk_upper_bound);
   EXPECT_EQ(got->chosen_index, 0u);
   EXPECT_TRUE(got->fragile);
   EXPECT_THAT(got->within_tolerance, ::testing::Contains(1u));
@@ -188,7 +188,7 @@ TEST(SelectTest, TiesGoToSmallerCapacity) {
 TEST(SelectTest, FragileFlagFollowsTolerance) {
   SelectRequest req;
   req.family = Family::kOccamHoeffding;
-  req.delta = 0.06;
+  req.failure_probability = 0.06;
   req.spread = DeltaSpread::kUniform;
   req.candidates = {Finite("A", 300, 1000, 10), Finite("B", 100, 1000, 50),
                     Finite("C", 90, 1000, 200)};
@@ -219,7 +219,7 @@ TEST(SelectTest, AllVacuousSaysSo) {
   ASSERT_FALSE(got->notes.empty());
   EXPECT_THAT(got->notes[0], HasSubstr("vacuous"));
   for (const CandidateResult& c : got->candidates) {
-    EXPECT_TRUE(std::isfinite(c.upper_bound));
+    EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
     EXPECT_TRUE(std::isfinite(c.penalty));
   }
 }
@@ -263,7 +263,7 @@ TEST(SelectTest, InvalidInputNamesTheField) {
   req = SelectRequest{};
   req.candidates = {Vc("a", 1, 100, 10)};
   req.family = Family::kHoldoutExactBinomial;
-  req.delta = 1.0;
+  req.failure_probability = 1.0;
   req.fragility_tolerance = -0.1;
   got = SelectStructure(req);
   EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument,
@@ -271,7 +271,7 @@ TEST(SelectTest, InvalidInputNamesTheField) {
   EXPECT_THAT(Fields(got.status()),
               ElementsAre("failure_probability", "fragility_tolerance", "family"));
   req.family = static_cast<Family>(999);
-  req.delta = 0.05;
+  req.failure_probability = 0.05;
   req.fragility_tolerance = 0.0;
   EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("family"));
 

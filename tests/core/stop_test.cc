@@ -31,7 +31,8 @@ CertifyRequest AllFamiliesRequest() {
   req.choice = FamilyChoice::kAllApplicable;
   req.evidence.holdout = SampleCounts{212, 5000};
   TrainingEvidence t;
-  t.counts = {270, 9000};
+  t.error_count = 270;
+  t.sample_count = 9000;
   t.capacity.vc_dimension = 41;
   t.capacity.log_hypothesis_count = 13.86;
   req.evidence.training = t;
@@ -124,7 +125,7 @@ TEST(StopTest, CancelWinsOverAPassedDeadline) {
 TEST(StopTest, InvalidRequestWithLiveTokenIsStillInvalid) {
   StopToken stop;
   CertifyRequest bad = AllFamiliesRequest();
-  bad.delta = 2.0;
+  bad.failure_probability = 2.0;
   EXPECT_THAT(Certify(bad, stop).status(), StatusIs(absl::StatusCode::kInvalidArgument));
 }
 

@@ -18,8 +18,8 @@ using ::riskbound::testing::ReadFixture;
 TEST(VcAdditiveTest, FormulaSheetWorkedValue) {
   EXPECT_NEAR(VcConfidence(100, 10000, 0.05), 0.251836, 5e-7);
   const Certificate c = VcAdditive({500, 10000}, 100, 0.05);
-  EXPECT_NEAR(c.upper_bound, 0.301936, 5e-7);
-  EXPECT_EQ(*c.lower_bound, 0.0);  // 0.05 - 0.251936 clipped at 0
+  EXPECT_NEAR(c.risk_upper_bound, 0.301936, 5e-7);
+  EXPECT_EQ(*c.risk_lower_bound, 0.0);  // 0.05 - 0.251936 clipped at 0
 }
 
 // Source: Burges (1998), discussion of his Fig. 1: for eta = 0.05 and
@@ -41,13 +41,13 @@ TEST(VcAdditiveTest, BurgesCrossover) {
 // Source: formula sheet rows 2.1 and 2.2: relative bound 0.273320 at
 // (0.01, h=100, m=1e4); 0.019376 at (0.01, h=10, m=1e5); E = 0.253686 at R_emp = 0.
 TEST(VcRelativeTest, FormulaSheetWorkedValues) {
-  EXPECT_NEAR(VcRelative({100, 10000}, 100, 0.05).upper_bound, 0.273320, 5e-7);
-  EXPECT_NEAR(VcRelative({1000, 100000}, 10, 0.05).upper_bound, 0.019376, 5e-7);
-  EXPECT_NEAR(VcRelative({0, 10000}, 100, 0.05).upper_bound, 0.253686, 5e-7);
-  EXPECT_FALSE(VcRelative({0, 10000}, 100, 0.05).lower_bound.has_value());
+  EXPECT_NEAR(VcRelative({100, 10000}, 100, 0.05).risk_upper_bound, 0.273320, 5e-7);
+  EXPECT_NEAR(VcRelative({1000, 100000}, 10, 0.05).risk_upper_bound, 0.019376, 5e-7);
+  EXPECT_NEAR(VcRelative({0, 10000}, 100, 0.05).risk_upper_bound, 0.253686, 5e-7);
+  EXPECT_FALSE(VcRelative({0, 10000}, 100, 0.05).risk_lower_bound.has_value());
   // Additive counterparts quoted beside them (without the +1/m): 0.261836 and 0.043677.
-  EXPECT_NEAR(VcAdditive({100, 10000}, 100, 0.05).upper_bound, 0.261836 + 1e-4, 5e-7);
-  EXPECT_NEAR(VcAdditive({1000, 100000}, 10, 0.05).upper_bound, 0.043677 + 1e-5, 5e-7);
+  EXPECT_NEAR(VcAdditive({100, 10000}, 100, 0.05).risk_upper_bound, 0.261836 + 1e-4, 5e-7);
+  EXPECT_NEAR(VcAdditive({1000, 100000}, 10, 0.05).risk_upper_bound, 0.043677 + 1e-5, 5e-7);
 }
 
 // h >= m and h > 2m: finite and vacuous, never NaN.
@@ -55,8 +55,8 @@ TEST(VcTest, CapacityAtOrAboveSampleSize) {
   for (std::uint64_t h : {1000ULL, 2000ULL, 2001ULL, 1ULL << 62}) {
     const Certificate a = VcAdditive({10, 1000}, h, 0.05);
     const Certificate r = VcRelative({10, 1000}, h, 0.05);
-    EXPECT_EQ(a.upper_bound, 1.0) << h;
-    EXPECT_EQ(r.upper_bound, 1.0) << h;
+    EXPECT_EQ(a.risk_upper_bound, 1.0) << h;
+    EXPECT_EQ(r.risk_upper_bound, 1.0) << h;
     EXPECT_TRUE(a.vacuous);
   }
   // h = 0 (a class of one function): only the ln(4/delta) term remains.
@@ -67,8 +67,8 @@ TEST(VcTest, CapacityAtOrAboveSampleSize) {
 // delta = 0.05: Hoeffding 0.091002, kl 0.069910.
 TEST(OccamTest, FormulaSheetWorkedValues) {
   const SampleCounts counts{250, 5000};
-  EXPECT_NEAR(OccamHoeffding(counts, std::log(1e6), 0.05).upper_bound, 0.091002, 5e-7);
-  EXPECT_NEAR(OccamKl(counts, std::log(1e6), 0.05).upper_bound, 0.069910, 5e-7);
+  EXPECT_NEAR(OccamHoeffding(counts, std::log(1e6), 0.05).risk_upper_bound, 0.091002, 5e-7);
+  EXPECT_NEAR(OccamKl(counts, std::log(1e6), 0.05).risk_upper_bound, 0.069910, 5e-7);
 }
 
 // Source: scipy brentq kl inverse at the Occam budget (fixture occam_kl.csv).
@@ -77,15 +77,15 @@ TEST(OccamTest, KlFormMatchesScipy) {
     const SampleCounts counts{static_cast<std::uint64_t>(Num(row, "errors")),
                               static_cast<std::uint64_t>(Num(row, "samples"))};
     const Certificate c = OccamKl(counts, Num(row, "log_hypothesis_count"), Num(row, "delta"));
-    EXPECT_NEAR(c.upper_bound, Num(row, "kl_upper"), 2e-12);
-    EXPECT_NEAR(*c.lower_bound, Num(row, "kl_lower"), 2e-12);
+    EXPECT_NEAR(c.risk_upper_bound, Num(row, "kl_upper"), 2e-12);
+    EXPECT_NEAR(*c.risk_lower_bound, Num(row, "kl_lower"), 2e-12);
   }
 }
 
 // Source: formula sheet row 3.2 / Blumer et al. (1987): with zero training
 // errors the kl form is at most the realizable (ln|H| + ln(1/delta))/m = 0.003362.
 TEST(OccamTest, RealizableCaseTighterThanBlumer) {
-  const double kl = OccamKl({0, 5000}, std::log(1e6), 0.05).upper_bound;
+  const double kl = OccamKl({0, 5000}, std::log(1e6), 0.05).risk_upper_bound;
   EXPECT_LE(kl, 0.003362);
   // Exact form 1 - (delta/|H|)^(1/m) = 0.003357 equals kl^{-1}(0, c) = 1 - e^{-c}.
   EXPECT_NEAR(kl, 0.003357, 5e-7);

@@ -236,11 +236,11 @@ std::pair<double, std::size_t> CertifyHoldoutAll(std::uint64_t k, std::uint64_t 
                                                  double delta) {
   core::CertifyRequest req;
   req.evidence.holdout = SampleCounts{k, n};
-  req.delta = delta;
+  req.failure_probability = delta;
   req.choice = core::FamilyChoice::kAllApplicable;
   const absl::StatusOr<core::CertifyResult> r = core::Certify(req);
   if (!r.ok()) return {std::numeric_limits<double>::quiet_NaN(), 0};
-  return {r->certificates[r->tightest_index].upper_bound, r->certificates.size()};
+  return {r->certificates[r->tightest_index].risk_upper_bound, r->certificates.size()};
 }
 
 }  // namespace
@@ -254,7 +254,7 @@ std::vector<CoverageRow> RunHoldout(std::int64_t trials, std::uint64_t seed) {
     for (std::int64_t t = 0; t < trials; ++t) {
       const std::uint64_t k = DrawBinomial(rng, setup.n, setup.p);
       for (int f = 0; f < 3; ++f) {
-        tallies[f].Add(kHoldoutFamilies[f].fn({k, setup.n}, kDelta).upper_bound, setup.p);
+        tallies[f].Add(kHoldoutFamilies[f].fn({k, setup.n}, kDelta).risk_upper_bound, setup.p);
       }
     }
     for (int f = 0; f < 3; ++f) {
@@ -263,7 +263,7 @@ std::vector<CoverageRow> RunHoldout(std::int64_t trials, std::uint64_t seed) {
       const CountFamily fn = kHoldoutFamilies[f].fn;
       const std::uint64_t n = setup.n;
       row.exact_coverage = ExactBinomialCoverage(
-          n, setup.p, [&](std::uint64_t k) { return fn({k, n}, kDelta).upper_bound; });
+          n, setup.p, [&](std::uint64_t k) { return fn({k, n}, kDelta).risk_upper_bound; });
       if (setup.sheet.has_value()) {
         row.reference_value = (*setup.sheet)[f];
         row.reference_is_exact = true;
@@ -318,11 +318,11 @@ std::vector<CoverageRow> RunHoldoutUnion(std::int64_t trials, std::uint64_t seed
       ev.mean_loss = static_cast<double>(k) / static_cast<double>(n);
       ev.sample_variance = static_cast<double>(k) * static_cast<double>(n - k) /
                            (static_cast<double>(n) * static_cast<double>(n - 1));
-      ev.samples = n;
-      return std::min({core::HoldoutExactBinomial(counts, share).upper_bound,
-                       core::HoldoutKlChernoff(counts, share).upper_bound,
-                       core::HoldoutHoeffding(counts, share).upper_bound,
-                       core::BoundedEmpiricalBernstein(ev, share).upper_bound});
+      ev.sample_count = n;
+      return std::min({core::HoldoutExactBinomial(counts, share).risk_upper_bound,
+                       core::HoldoutKlChernoff(counts, share).risk_upper_bound,
+                       core::HoldoutHoeffding(counts, share).risk_upper_bound,
+                       core::BoundedEmpiricalBernstein(ev, share).risk_upper_bound});
     };
     PerCountCache cache(n, min4);
     Rng rng = MakeRng(seed, 200 + stream++);
@@ -348,7 +348,7 @@ std::vector<CoverageRow> ExactHoldoutScan(std::uint64_t n, double delta, int gri
   for (const NamedCountFamily& f : kHoldoutFamilies) {
     const CountFamily fn = f.fn;
     candidates.push_back({f.slug, [fn, n, delta](std::uint64_t k) {
-                            return fn({k, n}, delta).upper_bound;
+                            return fn({k, n}, delta).risk_upper_bound;
                           }});
   }
   const std::size_t families = CertifyHoldoutAll(0, n, delta).second;
@@ -418,14 +418,14 @@ std::vector<ClassFamily> ThresholdClassFamilies(std::uint64_t m, double delta) {
   return {
       {"occam-hoeffding",
        [=](std::uint64_t k) {
-         return core::OccamHoeffding({k, m}, kLogClassSize, delta).upper_bound;
+         return core::OccamHoeffding({k, m}, kLogClassSize, delta).risk_upper_bound;
        }},
       {"occam-kl",
-       [=](std::uint64_t k) { return core::OccamKl({k, m}, kLogClassSize, delta).upper_bound; }},
+       [=](std::uint64_t k) { return core::OccamKl({k, m}, kLogClassSize, delta).risk_upper_bound; }},
       {"vc-additive",
-       [=](std::uint64_t k) { return core::VcAdditive({k, m}, 1, delta).upper_bound; }},
+       [=](std::uint64_t k) { return core::VcAdditive({k, m}, 1, delta).risk_upper_bound; }},
       {"vc-relative",
-       [=](std::uint64_t k) { return core::VcRelative({k, m}, 1, delta).upper_bound; }},
+       [=](std::uint64_t k) { return core::VcRelative({k, m}, 1, delta).risk_upper_bound; }},
   };
 }
 
@@ -433,11 +433,12 @@ core::CertifyRequest TrainingRequest(std::uint64_t k, std::uint64_t m, double de
                                      core::FamilyChoice choice) {
   core::CertifyRequest req;
   core::TrainingEvidence t;
-  t.counts = {k, m};
+  t.error_count = k;
+  t.sample_count = m;
   t.capacity.vc_dimension = 1;  // thresholds on a line
   t.capacity.log_hypothesis_count = kLogClassSize;
   req.evidence.training = t;
-  req.delta = delta;
+  req.failure_probability = delta;
   req.choice = choice;
   return req;
 }
@@ -470,13 +471,13 @@ std::vector<CoverageRow> RunThresholdClass(std::int64_t trials, std::uint64_t se
     const auto r = core::Certify(TrainingRequest(k, m, kDelta, core::FamilyChoice::kAllApplicable));
     if (!r.ok()) return std::numeric_limits<double>::quiet_NaN();
     certify_k = r->certificates.size();
-    return r->certificates[r->tightest_index].upper_bound;
+    return r->certificates[r->tightest_index].risk_upper_bound;
   });
   PerCountCache certify_rec(m, [&](std::uint64_t k) {
     const auto r = core::Certify(TrainingRequest(k, m, kDelta, core::FamilyChoice::kRecommended));
     if (!r.ok()) return std::numeric_limits<double>::quiet_NaN();
     recommended_slug = std::string(core::FindFamily(r->certificates[0].family)->slug);
-    return r->certificates[0].upper_bound;
+    return r->certificates[0].risk_upper_bound;
   });
   Tally all_tally;
   Tally rec_tally;
@@ -578,13 +579,13 @@ Tightest CertifyTightest(const core::Evidence& evidence, double delta,
                          const std::vector<core::Family>& listed = {}) {
   core::CertifyRequest req;
   req.evidence = evidence;
-  req.delta = delta;
+  req.failure_probability = delta;
   req.choice = listed.empty() ? core::FamilyChoice::kAllApplicable : core::FamilyChoice::kListed;
   req.families = listed;
   const absl::StatusOr<core::CertifyResult> r = core::Certify(req);
   Tightest t;
   if (!r.ok()) return t;
-  t.bound = r->certificates[r->tightest_index].upper_bound;
+  t.bound = r->certificates[r->tightest_index].risk_upper_bound;
   t.families = r->certificates.size();
   return t;
 }
@@ -641,10 +642,10 @@ std::vector<CoverageRow> RunBoundedLoss(std::int64_t trials, std::uint64_t seed)
       core::BoundedLossEvidence ev;
       ev.mean_loss = mean;
       ev.sample_variance = ss / static_cast<double>(s.n - 1);  // ddof = 1
-      ev.samples = s.n;
+      ev.sample_count = s.n;
       ev.loss_min = s.loss_min;
       ev.loss_max = s.loss_max;
-      for (int f = 0; f < 3; ++f) tallies[f].Add(fns[f].fn(ev, kDelta).upper_bound, true_mean);
+      for (int f = 0; f < 3; ++f) tallies[f].Add(fns[f].fn(ev, kDelta).risk_upper_bound, true_mean);
       core::Evidence evidence;
       evidence.bounded_loss = ev;
       const Tightest ta = CertifyTightest(evidence, kDelta);
@@ -770,16 +771,16 @@ std::vector<CoverageRow> RunPacBayes(std::int64_t trials, std::uint64_t seed) {
       core::PacBayesEvidence ev;
       ev.kl_divergence = post.kl_to_uniform;
       ev.gibbs_empirical_risk = post.gibbs_empirical;
-      ev.samples = m;
+      ev.sample_count = m;
       ev.target = core::PacBayesTarget::kGibbs;
-      for (int f = 0; f < 3; ++f) gibbs[f].Add(fns[f].fn(ev, kDelta).upper_bound, post.gibbs_true);
+      for (int f = 0; f < 3; ++f) gibbs[f].Add(fns[f].fn(ev, kDelta).risk_upper_bound, post.gibbs_true);
       core::Evidence evidence;
       evidence.pac_bayes = ev;
       const Tightest ta = CertifyTightest(evidence, kDelta);
       k_all = ta.families;
       all.Add(ta.bound, post.gibbs_true);
       ev.target = core::PacBayesTarget::kMajorityVote;
-      for (int f = 0; f < 3; ++f) vote[f].Add(fns[f].fn(ev, kDelta).upper_bound, post.vote_true);
+      for (int f = 0; f < 3; ++f) vote[f].Add(fns[f].fn(ev, kDelta).risk_upper_bound, post.vote_true);
     }
     const std::string kl_note =
         absl::StrFormat("mean KL(Q||P) = %.3f nats", kl_sum / static_cast<double>(trials));
@@ -845,19 +846,22 @@ std::vector<CoverageRow> RunRademacher(std::int64_t trials, std::uint64_t seed) 
     rhat /= static_cast<double>(kSigmaDraws);
     rhat_sum += rhat;
     core::RademacherEvidence ev;
-    ev.counts = {errors[best], m};
+    ev.error_count = errors[best];
+    ev.sample_count = m;
     ev.empirical_rademacher = rhat;
     ev.sigma_draw_count = kSigmaDraws;
-    const double bound = core::RademacherBound(ev, kDelta).upper_bound;
+    const double bound = core::RademacherBound(ev, kDelta).risk_upper_bound;
     erm.Add(bound, risk[best]);
     bool all_covered = true;
     for (int j = 0; j < kThresholdCount && all_covered; ++j) {
-      ev.counts = {errors[j], m};
-      all_covered = core::RademacherBound(ev, kDelta).upper_bound >= risk[j];
+      ev.error_count = errors[j];
+      ev.sample_count = m;
+      all_covered = core::RademacherBound(ev, kDelta).risk_upper_bound >= risk[j];
     }
     uniform.AddEvent(all_covered, bound, risk[best]);
     core::Evidence evidence;
-    ev.counts = {errors[best], m};
+    ev.error_count = errors[best];
+    ev.sample_count = m;
     evidence.rademacher = ev;
     const Tightest ta = CertifyTightest(evidence, kDelta);
     k_all = ta.families;
@@ -882,11 +886,11 @@ std::vector<CoverageRow> RunCompression(std::int64_t trials, std::uint64_t seed)
   std::vector<CoverageRow> rows;
   const auto compression_bound = [m](std::uint64_t k, bool fixed) {
     core::CompressionEvidence ev;
-    ev.samples = m;
+    ev.sample_count = m;
     ev.compression_size = 1;
-    ev.errors_outside = k;
+    ev.outside_error_count = k;
     ev.size_fixed_in_advance = fixed;
-    return core::SampleCompression(ev, kDelta).upper_bound;
+    return core::SampleCompression(ev, kDelta).risk_upper_bound;
   };
   // --- Realizable (formula sheet row 7.3). Compression set: the rightmost
   // negative example when there is one (reconstruction x -> 1[x > x_c]),

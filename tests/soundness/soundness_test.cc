@@ -88,7 +88,7 @@ TEST(HarnessTest, RejectsInvalidBounds) {
   const double p = 0.05;
   const double delta = 0.05;
   const auto too_small = [&](std::uint64_t k) {
-    return core::HoldoutExactBinomial({k, n}, 4.0 * delta).upper_bound;
+    return core::HoldoutExactBinomial({k, n}, 4.0 * delta).risk_upper_bound;
   };
   const auto plug_in = [&](std::uint64_t k) { return static_cast<double>(k) / n; };
   for (const auto& bound : {std::function<double(std::uint64_t)>(too_small),
