@@ -31,7 +31,7 @@ CertifyRequest MakeRequest(FamilyChoice choice) {
   t.capacity.vc_dimension = 41;
   t.capacity.log_hypothesis_count = 13.86;
   req.evidence.training = t;
-  req.choice = choice;
+  req.family_choice = choice;
   return req;
 }
 

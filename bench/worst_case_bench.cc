@@ -75,7 +75,7 @@ std::vector<WorstCase> Cases() {
                    [] {
                      CertifyRequest req;
                      req.failure_probability = 1e-300;
-                     req.choice = FamilyChoice::kAllApplicable;
+                     req.family_choice = FamilyChoice::kAllApplicable;
                      const std::uint64_t n = kTwoTo53;
                      req.evidence.holdout = SampleCounts{n / 2, n};
                      TrainingEvidence t;
@@ -96,13 +96,14 @@ std::vector<WorstCase> Cases() {
                      SelectRequest req;
                      req.family = Family::kOccamKl;
                      req.failure_probability = 1e-300;
-                     req.spread = DeltaSpread::kUniform;
+                     req.delta_spread = DeltaSpread::kUniform;
                      for (int i = 0; i < 10000; ++i) {
-                       Candidate c;
+                       StructureCandidate c;
                        c.id = "c" + std::to_string(i);
-                       c.training = {kTwoTo53 / 3, kTwoTo53};
+                       c.error_count = kTwoTo53 / 3;
+  c.sample_count = kTwoTo53;
                        c.capacity.log_hypothesis_count = 1000.0 * i;
-                       req.candidates.push_back(c);
+                       req.structure.push_back(c);
                      }
                      benchmark::DoNotOptimize(SelectStructure(req));
                    }});

@@ -111,6 +111,17 @@ std::optional<std::uint64_t> ExactChoose(std::uint64_t n, std::uint64_t k) {
 // ---------------------------------------------------------------------------
 // Field checks.
 
+constexpr ModelKind kAllKinds[] = {
+    ModelKind::kHalfspace,         ModelKind::kPolynomialThreshold,
+    ModelKind::kMarginLinear,      ModelKind::kAxisAlignedBoxes,
+    ModelKind::kInterval,          ModelKind::kUnionOfIntervals,
+    ModelKind::kDecisionStump,     ModelKind::kDecisionTree,
+    ModelKind::kVotedEnsemble,     ModelKind::kThresholdNetwork,
+    ModelKind::kReluNetwork,       ModelKind::kSigmoidNetwork,
+    ModelKind::kFiniteClass,       ModelKind::kNearestNeighbour,
+    ModelKind::kRbfKernelNoMargin,
+};
+
 constexpr absl::string_view kAllFields[] = {
     "dimension",      "with_bias",    "degree",          "radius",
     "margin",         "interval_count", "feature_count", "leaf_count",
@@ -159,47 +170,56 @@ std::vector<absl::string_view> UsedFields(ModelKind kind) {
   return {};
 }
 
-std::string Path(absl::string_view field) { return absl::StrCat("model.", field); }
+// "required for this model kind (ReLU network)".
+std::string RequiredFor(ModelKind kind) {
+  return absl::StrCat("required for this model kind (", ModelKindTitle(kind), ")");
+}
+
+// "<model_path>.<field>": the field's path in the request ("model.degree",
+// "evidence.training.capacity.model.degree").
+std::string Path(absl::string_view model_path, absl::string_view field) {
+  return absl::StrCat(model_path, ".", field);
+}
 
 // A count that must be present (when `required`) and lie in [min, max].
 // Returns the value when present and valid.
-std::optional<std::uint64_t> CheckCount(absl::string_view field,
-                                        const std::optional<std::uint64_t>& value,
-                                        bool required, std::uint64_t min,
-                                        std::uint64_t max, ModelKind kind,
+std::optional<std::uint64_t> CheckCount(absl::string_view model_path, absl::string_view field,
+                                        const std::optional<std::uint64_t>& value, bool required,
+                                        std::uint64_t min, std::uint64_t max, ModelKind kind,
                                         std::vector<FieldViolation>* out) {
   if (!value.has_value()) {
     if (required) {
-      out->push_back({Path(field), absl::StrCat("required for kind ", ModelKindName(kind))});
+      out->push_back({Path(model_path, field), RequiredFor(kind)});
     }
     return std::nullopt;
   }
   if (*value < min) {
-    out->push_back({Path(field), absl::StrCat("must be >= ", min, ", got ", *value)});
+    out->push_back({Path(model_path, field), absl::StrCat("must be >= ", min, ", got ", *value)});
     return std::nullopt;
   }
   if (*value > max) {
-    out->push_back({Path(field), max == kMaxNetworkSize - 1
-                                     ? absl::StrCat("must be below 10^12, got ", *value)
-                                     : absl::StrCat("must be at most 2^53 - 1 (", max,
-                                                    "), got ", *value)});
+    out->push_back({Path(model_path, field),
+                    max == kMaxNetworkSize - 1
+                        ? absl::StrCat("must be below 10^12, got ", *value)
+                        : absl::StrCat("must be at most 2^53 - 1 (", max, "), got ", *value)});
     return std::nullopt;
   }
   return value;
 }
 
-std::optional<double> CheckPositive(absl::string_view field,
+std::optional<double> CheckPositive(absl::string_view model_path, absl::string_view field,
                                     const std::optional<double>& value, bool required,
                                     ModelKind kind, std::vector<FieldViolation>* out) {
   if (!value.has_value()) {
     if (required) {
-      out->push_back({Path(field), absl::StrCat("required for kind ", ModelKindName(kind))});
+      out->push_back({Path(model_path, field), RequiredFor(kind)});
     }
     return std::nullopt;
   }
   if (!std::isfinite(*value) || *value <= 0.0) {
-    out->push_back({Path(field), absl::StrCat("must be a finite number > 0, got ",
-                                              std::isnan(*value) ? "NaN" : Num(*value))});
+    out->push_back(
+        {Path(model_path, field), absl::StrCat("must be a finite number > 0, got ",
+                                               std::isnan(*value) ? "NaN" : Num(*value))});
     return std::nullopt;
   }
   return value;
@@ -208,9 +228,11 @@ std::optional<double> CheckPositive(absl::string_view field,
 // ---------------------------------------------------------------------------
 // Families.
 
-absl::StatusOr<CapacityEstimate> Halfspace(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> Halfspace(const ModelDescription& m,
+                                           absl::string_view model_path) {
   std::vector<FieldViolation> v;
-  const auto d = CheckCount("dimension", m.dimension, true, 1, kMaxModelParameter, m.kind, &v);
+  const auto d =
+      CheckCount(model_path, "dimension", m.dimension, true, 1, kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   CapacityEstimate e;
   const bool bias = m.with_bias.value_or(true);
@@ -224,10 +246,13 @@ absl::StatusOr<CapacityEstimate> Halfspace(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> Polynomial(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> Polynomial(const ModelDescription& m,
+                                            absl::string_view model_path) {
   std::vector<FieldViolation> v;
-  const auto d = CheckCount("dimension", m.dimension, true, 1, kMaxModelParameter, m.kind, &v);
-  const auto p = CheckCount("degree", m.degree, true, 1, kMaxModelParameter, m.kind, &v);
+  const auto d =
+      CheckCount(model_path, "dimension", m.dimension, true, 1, kMaxModelParameter, *m.kind, &v);
+  const auto p =
+      CheckCount(model_path, "degree", m.degree, true, 1, kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   const bool bias = m.with_bias.value_or(true);
   const std::uint64_t n = *d + *p;
@@ -253,10 +278,9 @@ absl::StatusOr<CapacityEstimate> Polynomial(const ModelDescription& m) {
       }
     }
     if (!(log_c < std::log(DBL_MAX) - 1e-6)) {
-      return InvalidFields({{Path("degree"),
-                             absl::StrCat("the VC dimension C(d + p, p) with d = ", *d,
-                                          ", p = ", *p,
-                                          " exceeds the double range (about 1.8e308)")}});
+      return InvalidFields({{Path(model_path, "degree"),
+                             absl::StrCat("the VC dimension C(d + p, p) with d = ", *d, ", p = ",
+                                          *p, " exceeds the double range (about 1.8e308)")}});
     }
     value = std::exp(log_c) * (1.0 + 1e-10);
   }
@@ -274,11 +298,13 @@ absl::StatusOr<CapacityEstimate> Polynomial(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> MarginLinear(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> MarginLinear(const ModelDescription& m,
+                                              absl::string_view model_path) {
   std::vector<FieldViolation> v;
-  const auto r = CheckPositive("radius", m.radius, true, m.kind, &v);
-  const auto g = CheckPositive("margin", m.margin, true, m.kind, &v);
-  const auto d = CheckCount("dimension", m.dimension, false, 1, kMaxModelParameter, m.kind, &v);
+  const auto r = CheckPositive(model_path, "radius", m.radius, true, *m.kind, &v);
+  const auto g = CheckPositive(model_path, "margin", m.margin, true, *m.kind, &v);
+  const auto d =
+      CheckCount(model_path, "dimension", m.dimension, false, 1, kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   // Long double keeps the ceiling right unless R^2/gamma^2 is within about
   // 1e-19 (relative) of an integer, where it is then that integer.
@@ -288,7 +314,7 @@ absl::StatusOr<CapacityEstimate> MarginLinear(const ModelDescription& m) {
   if (d.has_value()) cap = std::min(cap, static_cast<long double>(*d));
   const long double h = cap + 1.0L;
   if (!(h <= static_cast<long double>(DBL_MAX))) {
-    return InvalidFields({{Path("margin"),
+    return InvalidFields({{Path(model_path, "margin"),
                            absl::StrCat("radius/margin ratio too large: ceil(R^2/gamma^2) + 1 "
                                         "exceeds the double range (R = ",
                                         Num(*r), ", gamma = ", Num(*g), ")")}});
@@ -327,9 +353,10 @@ absl::StatusOr<CapacityEstimate> MarginLinear(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> Boxes(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> Boxes(const ModelDescription& m, absl::string_view model_path) {
   std::vector<FieldViolation> v;
-  const auto d = CheckCount("dimension", m.dimension, true, 1, kMaxModelParameter, m.kind, &v);
+  const auto d =
+      CheckCount(model_path, "dimension", m.dimension, true, 1, kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   CapacityEstimate e;
   SetExact(2.0 * static_cast<double>(*d), &e);
@@ -338,7 +365,7 @@ absl::StatusOr<CapacityEstimate> Boxes(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> Interval(const ModelDescription&) {
+absl::StatusOr<CapacityEstimate> Interval(const ModelDescription&, absl::string_view) {
   CapacityEstimate e;
   SetExact(2.0, &e);
   e.source = "standard (Shalev-Shwartz & Ben-David 2014 Ch. 6): one interval shatters 2 "
@@ -347,10 +374,11 @@ absl::StatusOr<CapacityEstimate> Interval(const ModelDescription&) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> UnionOfIntervals(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> UnionOfIntervals(const ModelDescription& m,
+                                                  absl::string_view model_path) {
   std::vector<FieldViolation> v;
-  const auto k =
-      CheckCount("interval_count", m.interval_count, true, 1, kMaxModelParameter, m.kind, &v);
+  const auto k = CheckCount(model_path, "interval_count", m.interval_count, true, 1,
+                            kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   CapacityEstimate e;
   SetExact(2.0 * static_cast<double>(*k), &e);
@@ -360,10 +388,10 @@ absl::StatusOr<CapacityEstimate> UnionOfIntervals(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> Stump(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> Stump(const ModelDescription& m, absl::string_view model_path) {
   std::vector<FieldViolation> v;
-  const auto l =
-      CheckCount("feature_count", m.feature_count, true, 1, kMaxModelParameter, m.kind, &v);
+  const auto l = CheckCount(model_path, "feature_count", m.feature_count, true, 1,
+                            kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   const u128 two_l = static_cast<u128>(2) * *l;
   // Largest D with C(D, floor(D/2)) <= 2l; the central coefficient at D = 60
@@ -386,12 +414,12 @@ absl::StatusOr<CapacityEstimate> Stump(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> Tree(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> Tree(const ModelDescription& m, absl::string_view model_path) {
   std::vector<FieldViolation> v;
   const auto leaves =
-      CheckCount("leaf_count", m.leaf_count, true, 1, kMaxModelParameter, m.kind, &v);
-  const auto d =
-      CheckCount("feature_count", m.feature_count, true, 1, kMaxModelParameter, m.kind, &v);
+      CheckCount(model_path, "leaf_count", m.leaf_count, true, 1, kMaxModelParameter, *m.kind, &v);
+  const auto d = CheckCount(model_path, "feature_count", m.feature_count, true, 1,
+                            kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   const double L = static_cast<double>(*leaves);
   const double splits = L - 1.0;
@@ -428,11 +456,12 @@ absl::StatusOr<CapacityEstimate> Tree(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> Voted(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> Voted(const ModelDescription& m, absl::string_view model_path) {
   std::vector<FieldViolation> v;
-  const auto t = CheckCount("member_count", m.member_count, true, 1, kMaxModelParameter, m.kind, &v);
-  const auto db = CheckCount("member_vc_dimension", m.member_vc_dimension, true, 0,
-                             kMaxModelParameter, m.kind, &v);
+  const auto t = CheckCount(model_path, "member_count", m.member_count, true, 1, kMaxModelParameter,
+                            *m.kind, &v);
+  const auto db = CheckCount(model_path, "member_vc_dimension", m.member_vc_dimension, true, 0,
+                             kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   const double tt = static_cast<double>(std::max<std::uint64_t>(*t, 3));
   const double dd = static_cast<double>(std::max<std::uint64_t>(*db, 3));
@@ -440,7 +469,8 @@ absl::StatusOr<CapacityEstimate> Voted(const ModelDescription& m) {
   const double value = n * (3.0 * std::log2(n) + 2.0);
   CapacityEstimate e;
   SetUpperBound(FloorUpper(value), &e);
-  e.vc_dimension_lower_bound = static_cast<double>(*db);  // one member with weight 1 is a base hypothesis
+  e.vc_dimension_lower_bound =
+      static_cast<double>(*db);  // one member with weight 1 is a base hypothesis
   e.source = "Shalev-Shwartz & Ben-David (2014) Lemma 10.3; lower bound d_B: a vote with "
              "one nonzero weight is a base hypothesis";
   e.formula = absl::StrCat("h <= T(d_B+1)(3 log2(T(d_B+1)) + 2) with T = ", Num(tt),
@@ -467,17 +497,18 @@ struct NetSizes {
   std::optional<NetworkShape> shape;
 };
 
-absl::StatusOr<NetSizes> NetworkSizes(const ModelDescription& m, bool need_layers) {
+absl::StatusOr<NetSizes> NetworkSizes(const ModelDescription& m, absl::string_view model_path,
+                                      bool need_layers) {
   std::vector<FieldViolation> v;
   NetSizes out;
   if (!m.layer_widths.empty()) {
-    absl::StatusOr<NetworkShape> shape = NetworkShapeFromLayerWidths(m.layer_widths);
+    absl::StatusOr<NetworkShape> shape = NetworkShapeFromLayerWidths(m.layer_widths, model_path);
     if (!shape.ok()) return shape.status();
     auto agree = [&](absl::string_view field, const std::optional<std::uint64_t>& given,
                      std::uint64_t computed) {
       if (given.has_value() && *given != computed) {
-        v.push_back({Path(field), absl::StrCat("does not match layer_widths (computed ",
-                                               computed, ", got ", *given, ")")});
+        v.push_back({Path(model_path, field), absl::StrCat("does not match layer_widths (computed ",
+                                                           computed, ", got ", *given, ")")});
       }
     };
     agree("weight_count", m.weight_count, shape->weight_count);
@@ -490,17 +521,19 @@ absl::StatusOr<NetSizes> NetworkSizes(const ModelDescription& m, bool need_layer
     out.shape = *std::move(shape);
     return out;
   }
-  const auto w = CheckCount("weight_count", m.weight_count, true, 1, kMaxNetworkSize - 1, m.kind, &v);
-  const auto u = CheckCount("unit_count", m.unit_count, true, 1, kMaxNetworkSize - 1, m.kind, &v);
-  const auto l = CheckCount("layer_count", m.layer_count, need_layers, 1, kMaxNetworkSize - 1,
-                            m.kind, &v);
+  const auto w = CheckCount(model_path, "weight_count", m.weight_count, true, 1,
+                            kMaxNetworkSize - 1, *m.kind, &v);
+  const auto u =
+      CheckCount(model_path, "unit_count", m.unit_count, true, 1, kMaxNetworkSize - 1, *m.kind, &v);
+  const auto l = CheckCount(model_path, "layer_count", m.layer_count, need_layers, 1,
+                            kMaxNetworkSize - 1, *m.kind, &v);
   if (l.has_value() && u.has_value() && *l > *u) {
-    v.push_back({Path("layer_count"),
+    v.push_back({Path(model_path, "layer_count"),
                  absl::StrCat("must be at most unit_count (every layer has a unit), got ", *l,
                               " layers for ", *u, " units")});
   }
   if (!m.weight_count && !m.unit_count && !m.layer_count) {
-    v.push_back({Path("layer_widths"),
+    v.push_back({Path(model_path, "layer_widths"),
                  "give layer_widths, or weight_count and unit_count (and layer_count)"});
   }
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
@@ -521,8 +554,9 @@ void HalfspaceLowerBound(const NetSizes& s, CapacityEstimate* e) {
       "following units pass it on)"));
 }
 
-absl::StatusOr<CapacityEstimate> ThresholdNet(const ModelDescription& m) {
-  absl::StatusOr<NetSizes> s = NetworkSizes(m, false);
+absl::StatusOr<CapacityEstimate> ThresholdNet(const ModelDescription& m,
+                                              absl::string_view model_path) {
+  absl::StatusOr<NetSizes> s = NetworkSizes(m, model_path, false);
   if (!s.ok()) return s.status();
   const double value = 2.0 * s->weights * std::log2(kE * s->units);
   CapacityEstimate e;
@@ -539,8 +573,8 @@ absl::StatusOr<CapacityEstimate> ThresholdNet(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> ReluNet(const ModelDescription& m) {
-  absl::StatusOr<NetSizes> s = NetworkSizes(m, true);
+absl::StatusOr<CapacityEstimate> ReluNet(const ModelDescription& m, absl::string_view model_path) {
+  absl::StatusOr<NetSizes> s = NetworkSizes(m, model_path, true);
   if (!s.ok()) return s.status();
   constexpr double kPieces = 2.0;
   const double w = s->weights;
@@ -579,8 +613,9 @@ absl::StatusOr<CapacityEstimate> ReluNet(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> SigmoidNet(const ModelDescription& m) {
-  absl::StatusOr<NetSizes> s = NetworkSizes(m, false);
+absl::StatusOr<CapacityEstimate> SigmoidNet(const ModelDescription& m,
+                                            absl::string_view model_path) {
+  absl::StatusOr<NetSizes> s = NetworkSizes(m, model_path, false);
   if (!s.ok()) return s.status();
   const double w = s->weights;
   const double k = s->units;
@@ -602,10 +637,10 @@ absl::StatusOr<CapacityEstimate> SigmoidNet(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> Finite(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> Finite(const ModelDescription& m, absl::string_view model_path) {
   std::vector<FieldViolation> v;
   if (m.hypothesis_count.has_value() == m.description_bits.has_value()) {
-    v.push_back({Path("hypothesis_count"),
+    v.push_back({Path(model_path, "hypothesis_count"),
                  "set exactly one of hypothesis_count and description_bits"});
     return InvalidFields(v);
   }
@@ -613,7 +648,7 @@ absl::StatusOr<CapacityEstimate> Finite(const ModelDescription& m) {
   if (m.hypothesis_count.has_value()) {
     const std::uint64_t n = *m.hypothesis_count;
     if (n < 1) {
-      return InvalidFields({{Path("hypothesis_count"), "must be >= 1, got 0"}});
+      return InvalidFields({{Path(model_path, "hypothesis_count"), "must be >= 1, got 0"}});
     }
     SetUpperBound(static_cast<double>(std::bit_width(n) - 1), &e);
     e.log_hypothesis_count = std::log(static_cast<double>(n));
@@ -621,9 +656,9 @@ absl::StatusOr<CapacityEstimate> Finite(const ModelDescription& m) {
   } else {
     const double b = *m.description_bits;
     if (!std::isfinite(b) || b < 0.0) {
-      return InvalidFields({{Path("description_bits"),
-                             absl::StrCat("must be a finite number >= 0, got ",
-                                          std::isnan(b) ? "NaN" : Num(b))}});
+      return InvalidFields(
+          {{Path(model_path, "description_bits"),
+            absl::StrCat("must be a finite number >= 0, got ", std::isnan(b) ? "NaN" : Num(b))}});
     }
     SetUpperBound(std::floor(b), &e);
     e.log_hypothesis_count = b * kLn2;
@@ -639,9 +674,9 @@ absl::StatusOr<CapacityEstimate> Finite(const ModelDescription& m) {
   return e;
 }
 
-absl::StatusOr<CapacityEstimate> Infinite(const ModelDescription& m) {
+absl::StatusOr<CapacityEstimate> Infinite(const ModelDescription& m, absl::string_view model_path) {
   std::vector<FieldViolation> v;
-  CheckCount("dimension", m.dimension, false, 1, kMaxModelParameter, m.kind, &v);
+  CheckCount(model_path, "dimension", m.dimension, false, 1, kMaxModelParameter, *m.kind, &v);
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   CapacityEstimate e;
   e.status = CapacityStatus::kInfinite;
@@ -689,6 +724,42 @@ absl::string_view ModelKindName(ModelKind kind) {
   return "unknown";
 }
 
+absl::string_view ModelKindTitle(ModelKind kind) {
+  switch (kind) {
+    case ModelKind::kHalfspace:
+      return "halfspace";
+    case ModelKind::kPolynomialThreshold:
+      return "polynomial threshold classifier";
+    case ModelKind::kMarginLinear:
+      return "large-margin linear classifier";
+    case ModelKind::kAxisAlignedBoxes:
+      return "axis-aligned box";
+    case ModelKind::kInterval:
+      return "interval";
+    case ModelKind::kUnionOfIntervals:
+      return "union of intervals";
+    case ModelKind::kDecisionStump:
+      return "decision stump";
+    case ModelKind::kDecisionTree:
+      return "decision tree";
+    case ModelKind::kVotedEnsemble:
+      return "voted ensemble";
+    case ModelKind::kThresholdNetwork:
+      return "threshold network";
+    case ModelKind::kReluNetwork:
+      return "ReLU network";
+    case ModelKind::kSigmoidNetwork:
+      return "sigmoid network";
+    case ModelKind::kFiniteClass:
+      return "finite class";
+    case ModelKind::kNearestNeighbour:
+      return "nearest-neighbour rule";
+    case ModelKind::kRbfKernelNoMargin:
+      return "RBF-kernel classifier without a margin";
+  }
+  return "unknown";
+}
+
 absl::string_view CapacityStatusName(CapacityStatus status) {
   switch (status) {
     case CapacityStatus::kExact: return "exact";
@@ -698,16 +769,17 @@ absl::string_view CapacityStatusName(CapacityStatus status) {
   return "unknown";
 }
 
-absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
-    const std::vector<std::uint64_t>& widths) {
+absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(const std::vector<std::uint64_t>& widths,
+                                                         absl::string_view model_path) {
+  const std::string path = Path(model_path, "layer_widths");
   std::vector<FieldViolation> v;
   if (widths.size() < 2) {
-    return InvalidFields({{"model.layer_widths",
-                           absl::StrCat("needs the input width and at least one computation "
-                                        "layer, got ", widths.size(), " width(s)")}});
+    return InvalidFields({{path, absl::StrCat("needs the input width and at least one computation "
+                                              "layer, got ",
+                                              widths.size(), " width(s)")}});
   }
   for (std::size_t i = 0; i < widths.size(); ++i) {
-    const std::string field = absl::StrCat("model.layer_widths[", i, "]");
+    const std::string field = absl::StrCat(path, "[", i, "]");
     if (widths[i] == 0) {
       v.push_back({field, "must be >= 1, got 0"});
     } else if (widths[i] >= kMaxNetworkSize) {
@@ -716,9 +788,10 @@ absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
   }
   const std::size_t last = widths.size() - 1;
   if (widths[last] != 1 && widths[last] != 0) {
-    v.push_back({absl::StrCat("model.layer_widths[", last, "]"),
+    v.push_back({absl::StrCat(path, "[", last, "]"),
                  absl::StrCat("the output width must be 1 (one thresholded output for a "
-                              "binary classifier), got ", widths[last])});
+                              "binary classifier), got ",
+                              widths[last])});
   }
   if (absl::Status s = InvalidFields(v); !s.ok()) return s;
   NetworkShape shape;
@@ -731,12 +804,10 @@ absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
     weights += static_cast<u128>(widths[i - 1] + 1) * widths[i];
     units += widths[i];
     if (weights >= kMaxNetworkSize || units >= kMaxNetworkSize) {
-      return InvalidFields(
-          {{"model.layer_widths",
-            absl::StrCat("the network has at least 10^12 ",
-                         weights >= kMaxNetworkSize ? "weights" : "units",
-                         " (counted up to computation layer ", i,
-                         "); the supported size is below 10^12")}});
+      return InvalidFields({{path, absl::StrCat("the network has at least 10^12 ",
+                                                weights >= kMaxNetworkSize ? "weights" : "units",
+                                                " (counted up to computation layer ", i,
+                                                "); the supported size is below 10^12")}});
     }
     shape.cumulative_weights.push_back(static_cast<std::uint64_t>(weights));
     shape.units_per_layer.push_back(widths[i]);
@@ -747,51 +818,91 @@ absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
 }
 
 absl::StatusOr<CapacityEstimate> EstimateCapacity(const ModelDescription& model,
-                                                  const StopToken& stop) {
+                                                  const StopToken& stop,
+                                                  absl::string_view model_path) {
   if (stop.StopRequested()) return stop.Status();
-  if (ModelKindName(model.kind) == "unknown") {
-    return InvalidFields({{"model.kind", absl::StrCat("unknown model kind ",
-                                                      static_cast<int>(model.kind))}});
+  if (!model.kind.has_value() || ModelKindName(*model.kind) == "unknown") {
+    std::vector<std::string> kinds;
+    for (ModelKind k : kAllKinds) kinds.push_back(std::string(ModelKindTitle(k)));
+    return InvalidFields(
+        {{Path(model_path, "kind"),
+          absl::StrCat("required: the model family, one of ", absl::StrJoin(kinds, ", "),
+                       " (unset, or a value this server does not know)")}});
   }
-  // Fields the kind does not use are reported, never silently ignored.
+  const ModelKind kind = *model.kind;
+  // Fields the kind does not use are reported, never silently ignored, and
+  // together with what the kind's own checks find.
   std::vector<FieldViolation> unused;
-  const std::vector<absl::string_view> used = UsedFields(model.kind);
+  const std::vector<absl::string_view> used = UsedFields(kind);
   for (absl::string_view f : kAllFields) {
     if (IsSet(model, f) && std::find(used.begin(), used.end(), f) == used.end()) {
-      unused.push_back({Path(f), absl::StrCat("is not used by kind ", ModelKindName(model.kind),
-                                              "; leave it unset")});
+      std::string why = absl::StrCat("is not used by this model kind (", ModelKindTitle(kind),
+                                     "); leave it unset");
+      if (kind == ModelKind::kRbfKernelNoMargin && f == "margin") {
+        absl::StrAppend(&why,
+                        " (with a margin fixed in advance use the large-margin linear kind, "
+                        "radius 1 for the RBF kernel)");
+      }
+      unused.push_back({Path(model_path, f), std::move(why)});
     }
   }
-  for (FieldViolation& u : unused) {
-    if (model.kind == ModelKind::kRbfKernelNoMargin && u.field == "model.margin") {
-      u.description +=
-          " (with a margin fixed in advance use kind margin_linear, radius 1 for the RBF "
-          "kernel)";
-    }
-  }
-  if (absl::Status s = InvalidFields(unused); !s.ok()) return s;
 
   absl::StatusOr<CapacityEstimate> e;
-  switch (model.kind) {
-    case ModelKind::kHalfspace: e = Halfspace(model); break;
-    case ModelKind::kPolynomialThreshold: e = Polynomial(model); break;
-    case ModelKind::kMarginLinear: e = MarginLinear(model); break;
-    case ModelKind::kAxisAlignedBoxes: e = Boxes(model); break;
-    case ModelKind::kInterval: e = Interval(model); break;
-    case ModelKind::kUnionOfIntervals: e = UnionOfIntervals(model); break;
-    case ModelKind::kDecisionStump: e = Stump(model); break;
-    case ModelKind::kDecisionTree: e = Tree(model); break;
-    case ModelKind::kVotedEnsemble: e = Voted(model); break;
-    case ModelKind::kThresholdNetwork: e = ThresholdNet(model); break;
-    case ModelKind::kReluNetwork: e = ReluNet(model); break;
-    case ModelKind::kSigmoidNetwork: e = SigmoidNet(model); break;
-    case ModelKind::kFiniteClass: e = Finite(model); break;
+  switch (kind) {
+    case ModelKind::kHalfspace:
+      e = Halfspace(model, model_path);
+      break;
+    case ModelKind::kPolynomialThreshold:
+      e = Polynomial(model, model_path);
+      break;
+    case ModelKind::kMarginLinear:
+      e = MarginLinear(model, model_path);
+      break;
+    case ModelKind::kAxisAlignedBoxes:
+      e = Boxes(model, model_path);
+      break;
+    case ModelKind::kInterval:
+      e = Interval(model, model_path);
+      break;
+    case ModelKind::kUnionOfIntervals:
+      e = UnionOfIntervals(model, model_path);
+      break;
+    case ModelKind::kDecisionStump:
+      e = Stump(model, model_path);
+      break;
+    case ModelKind::kDecisionTree:
+      e = Tree(model, model_path);
+      break;
+    case ModelKind::kVotedEnsemble:
+      e = Voted(model, model_path);
+      break;
+    case ModelKind::kThresholdNetwork:
+      e = ThresholdNet(model, model_path);
+      break;
+    case ModelKind::kReluNetwork:
+      e = ReluNet(model, model_path);
+      break;
+    case ModelKind::kSigmoidNetwork:
+      e = SigmoidNet(model, model_path);
+      break;
+    case ModelKind::kFiniteClass:
+      e = Finite(model, model_path);
+      break;
     case ModelKind::kNearestNeighbour:
-    case ModelKind::kRbfKernelNoMargin: e = Infinite(model); break;
+    case ModelKind::kRbfKernelNoMargin:
+      e = Infinite(model, model_path);
+      break;
+  }
+  if (!unused.empty()) {
+    // Every bad field at once: the unused ones, then what the kind found.
+    const ViolationReport found = ViolationReportOf(e.status());
+    unused.insert(unused.end(), found.listed.begin(), found.listed.end());
+    return InvalidFields(unused, found.unlisted_count);
   }
   if (!e.ok()) return e;
   if (!std::isfinite(e->vc_dimension) || e->vc_dimension < 0.0) {
-    return InvalidFields({{"model", "the capacity of this model exceeds the double range"}});
+    return InvalidFields(
+        {{std::string(model_path), "the capacity of this model exceeds the double range"}});
   }
   Finish(&*e);
   // Every kind costs a bounded amount (at most a few thousand steps, or one

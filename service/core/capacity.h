@@ -57,7 +57,9 @@ inline constexpr std::uint64_t kMaxNetworkSize = 1000000000000ULL;
 // than ignored. Comments give the API field name ("model.<field>") and which
 // kinds use it.
 struct ModelDescription {
-  ModelKind kind = ModelKind::kHalfspace;
+  // model.kind. Required: nullopt (the API's MODEL_KIND_UNSPECIFIED, or a
+  // value this server does not know) is refused by EstimateCapacity.
+  std::optional<ModelKind> kind;
 
   // model.dimension: input dimension d >= 1. Required by halfspace,
   // polynomial_threshold, axis_aligned_boxes. Optional for margin_linear
@@ -157,9 +159,15 @@ struct NetworkShape {
 };
 
 // ModelKindName
-// Returns the API spelling of a kind ("halfspace", "relu_network", ...), or
-// "unknown" for a value outside the enum.
+// Returns the lower-case spelling of a kind ("halfspace", "relu_network",
+// ...: the API's MODEL_KIND_* value without its prefix), or "unknown" for a
+// value outside the enum. For logs and tests; answers use ModelKindTitle.
 absl::string_view ModelKindName(ModelKind kind);
+
+// ModelKindTitle
+// Returns the kind in words for people ("ReLU network", "decision tree"), as
+// answers and error descriptions name it; "unknown" outside the enum.
+absl::string_view ModelKindTitle(ModelKind kind);
 
 // CapacityStatusName
 // Returns "exact", "upper_bound" or "infinite".
@@ -168,12 +176,13 @@ absl::string_view CapacityStatusName(CapacityStatus status);
 // NetworkShapeFromLayerWidths
 // Returns the weight, unit and layer counts of a fully connected network
 // with one bias per computation unit. INVALID_ARGUMENT naming
-// "model.layer_widths" (fewer than two widths: no computation layer) or
-// "model.layer_widths[i]" (a width of 0, a width >= 10^12, an output width
-// other than 1), or "model.layer_widths" when the weight count reaches 10^12.
+// "<model_path>.layer_widths" (fewer than two widths: no computation layer)
+// or "<model_path>.layer_widths[i]" (a width of 0, a width >= 10^12, an
+// output width other than 1), or "<model_path>.layer_widths" when the weight
+// count reaches 10^12.
 // REQUIRES: nothing; every input is validated. Thread-safe.
 absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
-    const std::vector<std::uint64_t>& layer_widths);
+    const std::vector<std::uint64_t>& layer_widths, absl::string_view model_path = "model");
 
 // EstimateCapacity
 // Returns the VC dimension (or an upper bound, or kInfinite) of the family
@@ -205,15 +214,19 @@ absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
 // Upper bounds that are not integers are floored (a VC dimension is an
 // integer), after a relative nudge of 1e-12 upward against rounding.
 // Errors: INVALID_ARGUMENT listing every bad field by its path
-// "model.<field>" (via InvalidFields): a required field missing, a field the
-// kind does not use, a zero dimension/degree/count, a count above
+// "<model_path>.<field>" (via InvalidFields; model_path is where the model
+// sits in the request: "model" for EstimateCapacity, e.g.
+// "evidence.training.capacity.model" inside Certify): the kind unset or
+// unknown, a required field missing, a field the kind does not use (listed
+// together with the kind's other findings), a zero dimension/degree/count, a count above
 // kMaxModelParameter, network sizes >= 10^12, zero layers or widths, radius
 // or margin not finite and > 0, a result beyond the double range.
 // Returns stop.Status() (CANCELLED or DEADLINE_EXCEEDED) instead of an
 // estimate when `stop` has stopped.
 // REQUIRES: nothing; every input is validated. Thread-safe.
-absl::StatusOr<CapacityEstimate> EstimateCapacity(
-    const ModelDescription& model, const StopToken& stop = StopToken::Never());
+absl::StatusOr<CapacityEstimate> EstimateCapacity(const ModelDescription& model,
+                                                  const StopToken& stop = StopToken::Never(),
+                                                  absl::string_view model_path = "model");
 
 // LogGrowthFunctionBound
 // Returns ln sum_{i=0}^{min(h, m)} C(m, i), the Sauer-Shelah bound on ln

@@ -6,6 +6,8 @@
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
+#include "absl/strings/str_join.h"
+#include "service/core/capacity.h"
 #include "service/core/families.h"
 
 namespace riskbound::core {
@@ -14,12 +16,7 @@ namespace {
 // Relative slack allowed on a weight sum that should be <= 1 (rounding).
 constexpr double kWeightSumSlack = 1e-12;
 
-// The families that read evidence.training.capacity: their certificates carry
-// the capacity's provenance notes (ClassCapacity::notes).
-bool UsesTrainingCapacity(Family f) {
-  return f == Family::kVcAdditive || f == Family::kVcRelative ||
-         f == Family::kOccamHoeffding || f == Family::kOccamKl;
-}
+constexpr double kTwoTo64 = 18446744073709551616.0;
 
 // The fixed rule documented at FamilyChoice::kRecommended (certify.h).
 std::vector<const FamilySpec*> RecommendedFamily(const Evidence& e) {
@@ -55,8 +52,8 @@ void CheckSampleCount(const std::string& field, std::uint64_t samples,
 // caller's variance computation).
 constexpr double kVarianceSlack = 1e-9;
 
-void CheckBoundedLoss(const BoundedLossEvidence& b, std::vector<FieldViolation>* out) {
-  const std::string p = "evidence.bounded_loss";
+void CheckBoundedLoss(const BoundedLossEvidence& b, const std::string& p,
+                      std::vector<FieldViolation>* out) {
   CheckSampleCount(p + ".sample_count", b.sample_count, out);
   const bool min_ok = std::isfinite(b.loss_min);
   const bool max_ok = std::isfinite(b.loss_max);
@@ -96,18 +93,21 @@ void CheckBoundedLoss(const BoundedLossEvidence& b, std::vector<FieldViolation>*
   }
 }
 
-void CheckPacBayes(const PacBayesEvidence& pb, std::vector<FieldViolation>* out) {
-  const std::string p = "evidence.pac_bayes";
+void CheckPacBayes(const PacBayesEvidence& pb, const std::string& p,
+                   std::vector<FieldViolation>* out) {
   CheckNonNegativeFinite(p + ".kl_divergence", pb.kl_divergence, out);
   CheckProbabilityClosed(p + ".gibbs_empirical_risk", pb.gibbs_empirical_risk, out);
   CheckSampleCount(p + ".sample_count", pb.sample_count, out);
   if (pb.target != PacBayesTarget::kGibbs && pb.target != PacBayesTarget::kMajorityVote) {
-    out->push_back({p + ".target", "must be the Gibbs classifier or the majority vote"});
+    out->push_back({p + ".target",
+                    "required: say which classifier is bounded, the Gibbs (randomized) "
+                    "classifier or the majority vote (unset, or a value this server does not "
+                    "know)"});
   }
 }
 
-void CheckRademacher(const RademacherEvidence& r, std::vector<FieldViolation>* out) {
-  const std::string p = "evidence.rademacher";
+void CheckRademacher(const RademacherEvidence& r, const std::string& p,
+                     std::vector<FieldViolation>* out) {
   CheckSampleCounts(p, r, out);
   const double v = r.empirical_rademacher;
   if (r.sigma_draw_count == 0) {
@@ -122,32 +122,209 @@ void CheckRademacher(const RademacherEvidence& r, std::vector<FieldViolation>* o
   }
 }
 
-void CheckCompression(const CompressionEvidence& c, std::vector<FieldViolation>* out) {
-  const std::string p = "evidence.compression";
+void CheckCompression(const CompressionEvidence& c, const std::string& p,
+                      std::vector<FieldViolation>* out) {
   CheckSampleCount(p + ".sample_count", c.sample_count, out);
   if (c.compression_size > c.sample_count) {
     out->push_back({p + ".compression_size",
                     absl::StrCat("a compression set of ", c.compression_size,
                                  " examples exceeds the ", c.sample_count, " training examples")});
   } else if (c.outside_error_count > c.sample_count - c.compression_size) {
-    out->push_back({p + ".outside_error_count",
-                    absl::StrCat(c.outside_error_count, " errors exceed the ",
-                                 c.sample_count - c.compression_size,
-                                 " examples outside the compression set")});
+    out->push_back(
+        {p + ".outside_error_count", absl::StrCat(c.outside_error_count, " errors exceed the ",
+                                                  c.sample_count - c.compression_size,
+                                                  " examples outside the compression set")});
   }
+}
+
+// The value for people: an integer when it fits, else %.6g.
+std::string FormatCapacity(const CapacityEstimate& e) {
+  if (!e.exceeds_uint64 && e.vc_dimension < kTwoTo64) {
+    return absl::StrCat(static_cast<std::uint64_t>(e.vc_dimension));
+  }
+  return absl::StrFormat("%.6g", e.vc_dimension);
+}
+
+// The model part of ResolveCapacity: the catalogue's estimate as the measure
+// the families read, with its provenance note.
+void ResolveModel(ClassCapacity* c, const std::string& model_path,
+                  std::vector<FieldViolation>* out) {
+  const absl::StatusOr<CapacityEstimate> e =
+      EstimateCapacity(*c->model, StopToken::Never(), model_path);
+  if (!e.ok()) {
+    ViolationReport found = ViolationReportOf(e.status());
+    if (found.listed.empty() && found.unlisted_count == 0) {
+      // Not a field error (should not happen): report it on the model itself.
+      found.listed.push_back({model_path, std::string(e.status().message())});
+    }
+    // The catalogue listed at most kMaxListedViolations (e.g. 1000 zero
+    // layer widths): keep one slot for a violation on the model counting the
+    // rest, so the count survives into the request's own list.
+    std::uint64_t unlisted = found.unlisted_count;
+    if (unlisted > 0 && found.listed.size() >= kMaxListedViolations) {
+      unlisted += found.listed.size() - (kMaxListedViolations - 1);
+      found.listed.resize(kMaxListedViolations - 1);
+    }
+    for (FieldViolation& v : found.listed) out->push_back(std::move(v));
+    if (unlisted > 0) {
+      out->push_back(
+          {model_path, absl::StrCat("and ", unlisted,
+                                    unlisted == 1 ? " more invalid field of this model was "
+                                                    "not listed"
+                                                  : " more invalid fields of this model "
+                                                    "were not listed")});
+    }
+    return;
+  }
+  const std::string kind(ModelKindTitle(*c->model->kind));
+  if (e->status == CapacityStatus::kInfinite) {
+    out->push_back(
+        {model_path, absl::StrCat("a model of kind \"", kind,
+                                  "\" has infinite VC dimension, so no VC or Occam bound "
+                                  "applies (",
+                                  e->source, "); ", absl::StrJoin(e->notes, "; "))});
+    return;
+  }
+  if (e->log_hypothesis_count.has_value()) {
+    c->log_hypothesis_count = *e->log_hypothesis_count;
+    c->notes.push_back(absl::StrFormat(
+        "capacity used: ln |H| = %.6g, from the capacity catalogue (model kind: %s; %s; "
+        "source: %s)",
+        *e->log_hypothesis_count, kind, e->formula, e->source));
+    c->model.reset();
+    return;
+  }
+  if (e->exceeds_uint64 || !(e->vc_dimension < kTwoTo64)) {
+    out->push_back(
+        {model_path,
+         absl::StrFormat("the VC dimension bound exceeds 2^64 (%s for model kind \"%s\"); "
+                         "the VC families would be vacuous: use hold-out bounds",
+                         FormatCapacity(*e), kind)});
+    return;
+  }
+  // The catalogue's values are integers already (upper bounds floored after
+  // an upward nudge); ceil keeps any non-integer on the safe side.
+  c->vc_dimension = static_cast<std::uint64_t>(std::ceil(e->vc_dimension));
+  const bool exact = e->status == CapacityStatus::kExact;
+  c->notes.push_back(absl::StrCat(
+      "capacity used: VC dimension ", exact ? "h = " : "h <= ", *c->vc_dimension,
+      exact ? " (exact)" : " (an upper bound: the certificate stays valid, only looser)",
+      ", from the capacity catalogue (model kind: ", kind, "; ", e->formula,
+      "; source: ", e->source, ")"));
+  c->model.reset();
+}
+
+// The listed families (kListed): each known, at most once, applicable.
+// Families that read the training capacity are not judged when that
+// capacity could not be resolved (its own violation says why).
+void CheckListed(const FamilyList& listed, const Evidence& evidence, bool capacity_ok,
+                 std::vector<const FamilySpec*>* chosen, std::vector<FieldViolation>* v) {
+  if (listed.families.empty()) {
+    v->push_back({"listed.families", "list at least one bound family"});
+  }
+  std::set<Family> seen;
+  for (std::size_t i = 0; i < listed.families.size(); ++i) {
+    const std::string field = absl::StrCat("listed.families[", i, "]");
+    const FamilySpec* spec =
+        listed.families[i].has_value() ? FindFamily(*listed.families[i]) : nullptr;
+    if (spec == nullptr) {
+      v->push_back({field,
+                    "unknown bound family (unset, or a value this server does not know; "
+                    "ListFamilies lists them)"});
+    } else if (!seen.insert(spec->family).second) {
+      v->push_back({field, absl::StrCat(spec->family_name, " is listed twice")});
+    } else if (spec->capacity_measure != CapacityMeasure::kNone && !capacity_ok) {
+      continue;
+    } else if (!spec->applies(evidence)) {
+      v->push_back({field, absl::StrCat(spec->family_name, " needs ", spec->evidence_needed)});
+    } else {
+      chosen->push_back(spec);
+    }
+  }
+}
+
+// The weights of a listed request: one per family, each in (0, 1], summing
+// to at most 1. Returns them, or equal weights when none are given.
+std::vector<double> CheckWeights(const CertifyRequest& request, std::size_t k,
+                                 std::vector<FieldViolation>* v) {
+  std::vector<double> weights(k, k == 0 ? 0.0 : 1.0 / static_cast<double>(k));
+  const std::vector<double>& given = request.listed.delta_weights;
+  if (given.empty()) return weights;
+  if (request.family_choice != FamilyChoice::kListed) {
+    v->push_back({"listed.delta_weights", "weights go with an explicit list of families"});
+    return weights;
+  }
+  if (given.size() != request.listed.families.size()) {
+    v->push_back({"listed.delta_weights", absl::StrCat("give one weight per listed family: ",
+                                                       request.listed.families.size(),
+                                                       " families, ", given.size(), " weights")});
+    return weights;
+  }
+  double sum = 0.0;
+  bool each_ok = true;
+  for (std::size_t i = 0; i < given.size(); ++i) {
+    const double w = given[i];
+    if (!std::isfinite(w) || w <= 0.0 || w > 1.0) {
+      v->push_back({absl::StrCat("listed.delta_weights[", i, "]"), "must be a weight in (0, 1]"});
+      each_ok = false;
+    }
+    sum += w;
+  }
+  if (sum > 1.0 + kWeightSumSlack) {
+    v->push_back(
+        {"listed.delta_weights", absl::StrFormat("weights must sum to at most 1, got %.12g", sum)});
+    each_ok = false;
+  }
+  return each_ok ? given : weights;
+}
+
+// A Certify request after its checks: the evidence with its capacity
+// resolved, the families to compute and their weights.
+struct Checked {
+  Evidence evidence;
+  std::vector<const FamilySpec*> chosen;
+  std::vector<double> weights;
+};
+
+// Appends every violation of `request` to `v`; the result is usable only
+// when it appended none.
+Checked Check(const CertifyRequest& request, std::vector<FieldViolation>* v) {
+  Checked out;
+  out.evidence = request.evidence;
+  CheckProbabilityOpen("failure_probability", request.failure_probability, v);
+  std::vector<FieldViolation> evidence_violations;
+  PrepareEvidence(&out.evidence, "evidence", &evidence_violations);
+  const bool capacity_ok = std::none_of(
+      evidence_violations.begin(), evidence_violations.end(),
+      [](const FieldViolation& e) { return e.field.rfind("evidence.training.capacity", 0) == 0; });
+  v->insert(v->end(), evidence_violations.begin(), evidence_violations.end());
+  switch (request.family_choice) {
+    case FamilyChoice::kRecommended:
+      out.chosen = RecommendedFamily(out.evidence);
+      break;
+    case FamilyChoice::kAllApplicable:
+      for (const FamilySpec& spec : Families()) {
+        if (spec.applies(out.evidence)) out.chosen.push_back(&spec);
+      }
+      break;
+    case FamilyChoice::kListed:
+      CheckListed(request.listed, out.evidence, capacity_ok, &out.chosen, v);
+      break;
+  }
+  // kRecommended always finds one; the evidence check guarantees some family
+  // applies.
+  if (out.chosen.empty() && v->empty()) {
+    v->push_back({"evidence", "no bound family applies to this evidence"});
+  }
+  out.weights = CheckWeights(request, out.chosen.size(), v);
+  return out;
 }
 
 }  // namespace
 
 void CheckSampleCounts(const std::string& prefix, const SampleCounts& counts,
                        std::vector<FieldViolation>* out) {
-  if (counts.sample_count == 0) {
-    out->push_back({prefix + ".sample_count", "must be at least 1"});
-  } else if (counts.sample_count > kMaxSampleCount) {
-    out->push_back({prefix + ".sample_count",
-                    absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
-                                 counts.sample_count)});
-  }
+  CheckSampleCount(prefix + ".sample_count", counts.sample_count, out);
   if (counts.error_count > counts.sample_count) {
     out->push_back({prefix + ".error_count",
                     absl::StrCat(counts.error_count, " errors exceed the ", counts.sample_count,
@@ -155,132 +332,114 @@ void CheckSampleCounts(const std::string& prefix, const SampleCounts& counts,
   }
 }
 
-absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolation>* out) {
+bool ResolveCapacity(ClassCapacity* c, const std::string& path, std::vector<FieldViolation>* out) {
+  const std::size_t before = out->size();
+  const bool vc = c->vc_dimension.has_value();
+  const bool finite = c->hypothesis_count.has_value() || c->log_hypothesis_count.has_value();
+  const bool model = c->model.has_value();
+  if (!vc && !finite && !model) {
+    out->push_back({path,
+                    "required: vc_dimension, hypothesis_count, log_hypothesis_count or a model "
+                    "description"});
+  } else if ((c->hypothesis_count.has_value() && c->log_hypothesis_count.has_value()) ||
+             (model && (vc || finite))) {
+    // The API's oneof gives one measure; a core caller may give the VC
+    // dimension and ln |H| of one class, never two spellings of one measure.
+    out->push_back({path,
+                    "give one of vc_dimension, hypothesis_count, log_hypothesis_count and a "
+                    "model description"});
+  } else if (model) {
+    ResolveModel(c, path + ".model", out);
+  } else if (c->hypothesis_count.has_value()) {
+    if (*c->hypothesis_count == 0) {
+      out->push_back({path + ".hypothesis_count", "must be at least 1"});
+    } else {
+      c->log_hypothesis_count = std::log(static_cast<double>(*c->hypothesis_count));
+      c->hypothesis_count.reset();
+    }
+  } else if (c->log_hypothesis_count.has_value()) {
+    CheckNonNegativeFinite(path + ".log_hypothesis_count", *c->log_hypothesis_count, out);
+  }
+  return out->size() == before;
+}
+
+bool PrepareEvidence(Evidence* evidence, const std::string& prefix,
+                     std::vector<FieldViolation>* v) {
+  const std::size_t before = v->size();
+  if (!evidence->holdout.has_value() && !evidence->training.has_value() &&
+      !evidence->bounded_loss.has_value() && !evidence->pac_bayes.has_value() &&
+      !evidence->rademacher.has_value() && !evidence->compression.has_value()) {
+    v->push_back(
+        {prefix, absl::StrCat("no evidence: give hold-out counts (", prefix,
+                              ".holdout), training counts with a capacity (", prefix,
+                              ".training), a bounded loss (", prefix,
+                              ".bounded_loss), a PAC-Bayes posterior (", prefix,
+                              ".pac_bayes), a Rademacher complexity (", prefix,
+                              ".rademacher) or a compression scheme (", prefix, ".compression)")});
+  }
+  if (evidence->holdout.has_value()) {
+    CheckSampleCounts(prefix + ".holdout", *evidence->holdout, v);
+  }
+  if (evidence->training.has_value()) {
+    CheckSampleCounts(prefix + ".training", *evidence->training, v);
+    ResolveCapacity(&evidence->training->capacity, prefix + ".training.capacity", v);
+  }
+  if (evidence->baseline_error_rate.has_value()) {
+    CheckProbabilityOpen(prefix + ".baseline_error_rate", *evidence->baseline_error_rate, v);
+  }
+  if (evidence->bounded_loss.has_value()) {
+    CheckBoundedLoss(*evidence->bounded_loss, prefix + ".bounded_loss", v);
+  }
+  if (evidence->pac_bayes.has_value()) {
+    CheckPacBayes(*evidence->pac_bayes, prefix + ".pac_bayes", v);
+  }
+  if (evidence->rademacher.has_value()) {
+    CheckRademacher(*evidence->rademacher, prefix + ".rademacher", v);
+  }
+  if (evidence->compression.has_value()) {
+    CheckCompression(*evidence->compression, prefix + ".compression", v);
+  }
+  return v->size() == before;
+}
+
+absl::Status ValidateEvidence(const Evidence& evidence, std::vector<FieldViolation>* out,
+                              const std::string& prefix) {
   std::vector<FieldViolation> local;
   std::vector<FieldViolation>* v = out != nullptr ? out : &local;
   const std::size_t before = v->size();
-  if (!evidence.holdout.has_value() && !evidence.training.has_value() &&
-      !evidence.bounded_loss.has_value() && !evidence.pac_bayes.has_value() &&
-      !evidence.rademacher.has_value() && !evidence.compression.has_value()) {
-    v->push_back({"evidence",
-                  "no evidence: give hold-out counts (evidence.holdout), training "
-                  "counts with a capacity (evidence.training), a bounded loss "
-                  "(evidence.bounded_loss), a PAC-Bayes posterior (evidence.pac_bayes), "
-                  "a Rademacher complexity (evidence.rademacher) or a compression "
-                  "scheme (evidence.compression)"});
-  }
-  if (evidence.holdout.has_value()) CheckSampleCounts("evidence.holdout", *evidence.holdout, v);
-  if (evidence.training.has_value()) {
-    const TrainingEvidence& t = *evidence.training;
-    CheckSampleCounts("evidence.training", t, v);
-    if (!t.capacity.vc_dimension.has_value() &&
-        !t.capacity.log_hypothesis_count.has_value()) {
-      v->push_back({"evidence.training.capacity",
-                    "a training-set bound needs a capacity: vc_dimension, "
-                    "hypothesis_count or log_hypothesis_count"});
-    }
-    if (t.capacity.log_hypothesis_count.has_value()) {
-      CheckNonNegativeFinite("evidence.training.capacity.log_hypothesis_count",
-                             *t.capacity.log_hypothesis_count, v);
-    }
-  }
-  if (evidence.baseline_error_rate.has_value()) {
-    CheckProbabilityOpen("evidence.baseline_error_rate", *evidence.baseline_error_rate, v);
-  }
-  if (evidence.bounded_loss.has_value()) CheckBoundedLoss(*evidence.bounded_loss, v);
-  if (evidence.pac_bayes.has_value()) CheckPacBayes(*evidence.pac_bayes, v);
-  if (evidence.rademacher.has_value()) CheckRademacher(*evidence.rademacher, v);
-  if (evidence.compression.has_value()) CheckCompression(*evidence.compression, v);
+  Evidence copy = evidence;
+  PrepareEvidence(&copy, prefix, v);
   if (out != nullptr) return v->size() == before ? absl::OkStatus() : InvalidFields(*v);
   return InvalidFields(local);
 }
 
+absl::Status ValidateCertifyRequest(const CertifyRequest& request) {
+  std::vector<FieldViolation> violations;
+  Check(request, &violations);
+  return InvalidFields(violations);
+}
+
 absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopToken& stop) {
   std::vector<FieldViolation> violations;
-  CheckProbabilityOpen("failure_probability", request.failure_probability, &violations);
-  ValidateEvidence(request.evidence, &violations).IgnoreError();
+  const Checked checked = Check(request, &violations);
   if (!violations.empty()) return InvalidFields(violations);
 
-  std::vector<const FamilySpec*> chosen;
-  switch (request.choice) {
-    case FamilyChoice::kRecommended:
-      chosen = RecommendedFamily(request.evidence);
-      break;
-    case FamilyChoice::kAllApplicable:
-      for (const FamilySpec& spec : Families()) {
-        if (spec.applies(request.evidence)) chosen.push_back(&spec);
-      }
-      break;
-    case FamilyChoice::kListed: {
-      if (request.families.empty()) {
-        violations.push_back({"listed.families", "list at least one bound family"});
-      }
-      std::set<Family> seen;
-      for (std::size_t i = 0; i < request.families.size(); ++i) {
-        const std::string field = absl::StrCat("listed.families[", i, "]");
-        const FamilySpec* spec = FindFamily(request.families[i]);
-        if (spec == nullptr) {
-          violations.push_back({field, "unknown bound family"});
-        } else if (!seen.insert(spec->family).second) {
-          violations.push_back({field, absl::StrCat(spec->slug, " is listed twice")});
-        } else if (!spec->applies(request.evidence)) {
-          violations.push_back(
-              {field, absl::StrCat(spec->slug, " needs ", spec->needs)});
-        } else {
-          chosen.push_back(spec);
-        }
-      }
-      break;
-    }
-  }
-  // kRecommended always finds one; the evidence check guarantees some family applies.
-  if (chosen.empty() && violations.empty()) {
-    violations.push_back({"evidence", "no bound family applies to this evidence"});
-  }
-
-  const std::size_t k = chosen.size();
-  std::vector<double> weights(k, k == 0 ? 0.0 : 1.0 / static_cast<double>(k));
-  const bool weighted = !request.delta_weights.empty();
-  if (weighted) {
-    if (request.choice != FamilyChoice::kListed) {
-      violations.push_back(
-          {"listed.delta_weights", "weights go with an explicit list of families"});
-    } else if (request.delta_weights.size() != request.families.size()) {
-      violations.push_back(
-          {"listed.delta_weights",
-           absl::StrCat("give one weight per listed family: ", request.families.size(),
-                        " families, ", request.delta_weights.size(), " weights")});
-    } else {
-      double sum = 0.0;
-      for (std::size_t i = 0; i < request.delta_weights.size(); ++i) {
-        const double w = request.delta_weights[i];
-        if (!std::isfinite(w) || w <= 0.0 || w > 1.0) {
-          violations.push_back({absl::StrCat("listed.delta_weights[", i, "]"),
-                                "must be a weight in (0, 1]"});
-        }
-        sum += w;
-      }
-      if (sum > 1.0 + kWeightSumSlack) {
-        violations.push_back({"listed.delta_weights",
-                              absl::StrFormat("weights must sum to at most 1, got %.12g", sum)});
-      }
-      if (violations.empty()) weights = request.delta_weights;
-    }
-  }
-  if (!violations.empty()) return InvalidFields(violations);
-
+  const std::size_t k = checked.chosen.size();
+  const bool weighted = !request.listed.delta_weights.empty();
   CertifyResult result;
+  result.requested_failure_probability = request.failure_probability;
   for (std::size_t i = 0; i < k; ++i) {
     if (stop.StopRequested()) return stop.Status();
-    const double delta_i = request.failure_probability * weights[i];
-    Certificate c = chosen[i]->compute(request.evidence, delta_i);
-    if (UsesTrainingCapacity(c.family) && request.evidence.training.has_value()) {
-      const std::vector<std::string>& n = request.evidence.training->capacity.notes;
+    const double delta_i = request.failure_probability * checked.weights[i];
+    Certificate c = checked.chosen[i]->compute(checked.evidence, delta_i);
+    if (checked.chosen[i]->capacity_measure != CapacityMeasure::kNone &&
+        checked.evidence.training.has_value()) {
+      const std::vector<std::string>& n = checked.evidence.training->capacity.notes;
       c.notes.insert(c.notes.end(), n.begin(), n.end());
     }
     // The baseline is an error rate: it says nothing about a loss in other units.
-    if (request.evidence.baseline_error_rate.has_value() && !c.loss_range.has_value() &&
-        c.risk_upper_bound >= *request.evidence.baseline_error_rate) {
+    if (checked.evidence.baseline_error_rate.has_value() && !c.loss_range.has_value() &&
+        c.risk_upper_bound >= *checked.evidence.baseline_error_rate) {
       c.vacuous = true;
     }
     result.spent_failure_probability += delta_i;
@@ -295,15 +454,16 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
   for (std::size_t i = 0; i < k; ++i) {
     const Certificate& c = result.certificates[i];
     if (any_error_rate && c.loss_range.has_value()) continue;
-    if (!found || c.risk_upper_bound < result.certificates[result.tightest_index].risk_upper_bound) {
+    if (!found ||
+        c.risk_upper_bound < result.certificates[result.tightest_index].risk_upper_bound) {
       result.tightest_index = i;
       found = true;
     }
   }
   if (stop.StopRequested()) return stop.Status();
   if (k == 1) {
-    result.rule = absl::StrFormat(
-        "one family, computed at the full failure probability delta = %g", request.failure_probability);
+    result.rule = absl::StrFormat("one family, computed at the full failure probability delta = %g",
+                                  request.failure_probability);
   } else if (weighted) {
     result.rule = absl::StrFormat(
         "union bound over %d families with the caller's weights: family j is computed "
@@ -313,7 +473,8 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
     result.rule = absl::StrFormat(
         "union bound over %d families: each computed at delta/%d = %g, so the tightest "
         "certificate holds with probability >= 1 - %g",
-        k, k, request.failure_probability / static_cast<double>(k), result.spent_failure_probability);
+        k, k, request.failure_probability / static_cast<double>(k),
+        result.spent_failure_probability);
   }
   return result;
 }

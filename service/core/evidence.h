@@ -12,6 +12,8 @@
 #include <string>
 #include <vector>
 
+#include "service/core/capacity.h"
+
 namespace riskbound::core {
 
 // Errors observed on a number of samples (0-1 loss). API: HoldoutEvidence
@@ -22,18 +24,27 @@ struct SampleCounts {
   std::uint64_t sample_count = 0;
 };
 
-// The capacity of the class a training-set bound is uniform over. At most one
-// measure is normally set; a family uses the one it needs.
+// The capacity of the class a training-set bound is uniform over. API:
+// Capacity, whose `measure` oneof sets exactly one of the first four fields.
+// ResolveCapacity (certify.h) turns hypothesis_count and model into the two
+// measures the bound families read (vc_dimension, log_hypothesis_count); the
+// core's entry points resolve before they compute.
 struct ClassCapacity {
   // VC dimension h of the class.
   std::optional<std::uint64_t> vc_dimension;
+  // Number of hypotheses |H| of a finite class, >= 1.
+  std::optional<std::uint64_t> hypothesis_count;
   // Natural logarithm of the number of hypotheses, ln |H|, of a finite class
   // fixed before the training sample was seen.
   std::optional<double> log_hypothesis_count;
-  // Where the capacity came from, in plain words (e.g. "VC dimension <= 41
-  // (upper bound) from the capacity catalogue: ..."). Certify appends these
-  // to the notes of every certificate that uses this capacity (the VC and
-  // Occam families). Empty for a capacity the caller gave as a number.
+  // The architecture of the class, turned into a capacity with the capacity
+  // catalogue (capacity.h).
+  std::optional<ModelDescription> model;
+  // Where the capacity came from, in plain words (e.g. "capacity used: VC
+  // dimension h <= 41 ... from the capacity catalogue"), set by
+  // ResolveCapacity for a model description. Certify appends these to the
+  // notes of every certificate that uses this capacity (the VC and Occam
+  // families). Empty for a capacity the caller gave as a number.
   std::vector<std::string> notes;
 };
 
@@ -52,11 +63,13 @@ struct BoundedLossEvidence {
   // Mean of the per-example losses, in the loss's own units.
   double mean_loss = 0.0;
   // Unbiased (ddof = 1) sample variance of the per-example losses, in the
-  // loss's units squared. Ignored when samples = 1.
+  // loss's units squared. Ignored when sample_count = 1.
   double sample_variance = 0.0;
   // Number of hold-out examples n.
   std::uint64_t sample_count = 0;
-  // The range every per-example loss lies in, fixed before the data were seen.
+  // The range every per-example loss lies in, fixed before the data were
+  // seen. The API's loss_min and loss_max are optional: unset is [0, 1],
+  // these defaults.
   double loss_min = 0.0;
   double loss_max = 1.0;
 };
@@ -79,7 +92,11 @@ struct PacBayesEvidence {
   double gibbs_empirical_risk = 0.0;
   // Number of training examples m (not counting data the prior was fit on).
   std::uint64_t sample_count = 0;
-  PacBayesTarget target = PacBayesTarget::kGibbs;
+  // Which classifier the certificate is about. Required: nullopt (the API's
+  // PAC_BAYES_TARGET_UNSPECIFIED, or a value this server does not know) is
+  // refused by ValidateEvidence. Core callers get the Gibbs classifier unless
+  // they say otherwise.
+  std::optional<PacBayesTarget> target = PacBayesTarget::kGibbs;
 };
 
 // Training errors plus the empirical Rademacher complexity of the hypothesis

@@ -57,90 +57,99 @@ const std::array<FamilySpec, 15> kFamilies = {{
     {Family::kHoldoutExactBinomial, "holdout-binomial",
      "Exact binomial tail inversion (one-sided Clopper-Pearson) on a hold-out set",
      "Clopper & Pearson (1934); Langford (2005), test-set bound", kHoldoutAssumptions,
-     "evidence.holdout", HasHoldout,
+     "evidence.holdout", CapacityMeasure::kNone, false, HasHoldout,
      [](const Evidence& e, double d) { return HoldoutExactBinomial(*e.holdout, d); }},
     {Family::kHoldoutHoeffding, "holdout-hoeffding", "Hoeffding bound on a hold-out set",
-     "Hoeffding (1963), Theorem 1", kHoldoutAssumptions, "evidence.holdout", HasHoldout,
+     "Hoeffding (1963), Theorem 1", kHoldoutAssumptions, "evidence.holdout", CapacityMeasure::kNone,
+     false, HasHoldout,
      [](const Evidence& e, double d) { return HoldoutHoeffding(*e.holdout, d); }},
     {Family::kHoldoutKlChernoff, "holdout-kl",
-     "kl-Chernoff bound (binary KL inverse) on a hold-out set",
-     "Chernoff (1952); Langford (2005)", kHoldoutAssumptions, "evidence.holdout",
-     HasHoldout,
+     "kl-Chernoff bound (binary KL inverse) on a hold-out set", "Chernoff (1952); Langford (2005)",
+     kHoldoutAssumptions, "evidence.holdout", CapacityMeasure::kNone, false, HasHoldout,
      [](const Evidence& e, double d) { return HoldoutKlChernoff(*e.holdout, d); }},
-    {Family::kVcAdditive, "vc-additive",
-     "Vapnik's additive VC bound on the training error",
-     "Vapnik (1995), ch. 3; Vapnik (1998), ch. 4; Burges (1998), eq. 3",
-     kTrainingAssumptions, "evidence.training with capacity.vc_dimension", HasVc,
+    {Family::kVcAdditive, "vc-additive", "Vapnik's additive VC bound on the training error",
+     "Vapnik (1995), ch. 3; Vapnik (1998), ch. 4; Burges (1998), eq. 3", kTrainingAssumptions,
+     "evidence.training with capacity.vc_dimension", CapacityMeasure::kVcDimension, false, HasVc,
      [](const Evidence& e, double d) {
        return VcAdditive(*e.training, *e.training->capacity.vc_dimension, d);
      }},
     {Family::kVcRelative, "vc-relative",
      "Vapnik's relative-deviation VC bound on the training error",
      "Vapnik (1998), ch. 4; Anthony & Shawe-Taylor (1993)", kTrainingAssumptions,
-     "evidence.training with capacity.vc_dimension", HasVc,
+     "evidence.training with capacity.vc_dimension", CapacityMeasure::kVcDimension, false, HasVc,
      [](const Evidence& e, double d) {
        return VcRelative(*e.training, *e.training->capacity.vc_dimension, d);
      }},
-    {Family::kOccamHoeffding, "occam-hoeffding",
-     "Occam bound for a finite class, Hoeffding form",
+    {Family::kOccamHoeffding, "occam-hoeffding", "Occam bound for a finite class, Hoeffding form",
      "Hoeffding (1963) with a union bound; Blumer, Ehrenfeucht, Haussler & Warmuth (1987)",
      kTrainingAssumptions,
      "evidence.training with capacity.hypothesis_count or capacity.log_hypothesis_count",
-     HasFiniteClass,
+     CapacityMeasure::kLogHypothesisCount, false, HasFiniteClass,
      [](const Evidence& e, double d) {
-       return OccamHoeffding(*e.training,
-                             *e.training->capacity.log_hypothesis_count, d);
+       return OccamHoeffding(*e.training, *e.training->capacity.log_hypothesis_count, d);
      }},
     {Family::kOccamKl, "occam-kl", "Occam bound for a finite class, kl (Chernoff) form",
      "Langford (2005), Occam's razor bound", kTrainingAssumptions,
      "evidence.training with capacity.hypothesis_count or capacity.log_hypothesis_count",
-     HasFiniteClass,
+     CapacityMeasure::kLogHypothesisCount, false, HasFiniteClass,
      [](const Evidence& e, double d) {
        return OccamKl(*e.training, *e.training->capacity.log_hypothesis_count, d);
      }},
     {Family::kBoundedHoeffding, "bounded-hoeffding",
      "Hoeffding bound on the mean of a bounded loss on a hold-out set",
      "Hoeffding (1963), Theorem 2", kBoundedLossAssumptions, "evidence.bounded_loss",
-     HasBoundedLoss,
+     CapacityMeasure::kNone, true, HasBoundedLoss,
      [](const Evidence& e, double d) { return BoundedHoeffding(*e.bounded_loss, d); }},
     {Family::kBoundedKl, "bounded-kl",
      "kl-Chernoff bound on the mean of a bounded loss (rescaled to [0, 1]) on a hold-out set",
      "Hoeffding (1963), Theorem 1 and its moment-generating-function argument; "
      "Langford (2005)",
-     kBoundedLossAssumptions, "evidence.bounded_loss", HasBoundedLoss,
+     kBoundedLossAssumptions, "evidence.bounded_loss", CapacityMeasure::kNone, true, HasBoundedLoss,
      [](const Evidence& e, double d) { return BoundedKl(*e.bounded_loss, d); }},
     {Family::kBoundedEmpiricalBernstein, "bounded-empirical-bernstein",
      "Empirical Bernstein bound on the mean of a bounded loss on a hold-out set",
      "Maurer & Pontil (2009), Theorem 4", kBoundedLossAssumptions,
-     "evidence.bounded_loss with sample_count >= 2 and sample_variance",
-     HasBoundedLossTwoSamples,
+     "evidence.bounded_loss with sample_count >= 2 and sample_variance", CapacityMeasure::kNone,
+     true, HasBoundedLossTwoSamples,
      [](const Evidence& e, double d) { return BoundedEmpiricalBernstein(*e.bounded_loss, d); }},
     {Family::kPacBayesMcAllester, "pac-bayes-mcallester", "McAllester's PAC-Bayes bound",
      "McAllester (2003), Machine Learning 51:5-21, Theorem 1", kPacBayesAssumptions,
-     "evidence.pac_bayes", HasPacBayes,
+     "evidence.pac_bayes", CapacityMeasure::kNone, false, HasPacBayes,
      [](const Evidence& e, double d) { return PacBayesMcAllester(*e.pac_bayes, d); }},
     {Family::kPacBayesKl, "pac-bayes-kl", "PAC-Bayes-kl bound (binary KL inverse)",
      "Seeger (2002), JMLR 3; Maurer (2004), A note on the PAC Bayesian theorem",
-     kPacBayesAssumptions, "evidence.pac_bayes", HasPacBayes,
+     kPacBayesAssumptions, "evidence.pac_bayes", CapacityMeasure::kNone, false, HasPacBayes,
      [](const Evidence& e, double d) { return PacBayesKl(*e.pac_bayes, d); }},
     {Family::kPacBayesCatoni, "pac-bayes-catoni",
      "Catoni's PAC-Bayes bound, minimum over a fixed grid of 9 constants",
      "Catoni (2007), Theorem 1.2.6; union bound over the grid", kPacBayesAssumptions,
-     "evidence.pac_bayes", HasPacBayes,
+     "evidence.pac_bayes", CapacityMeasure::kNone, false, HasPacBayes,
      [](const Evidence& e, double d) { return PacBayesCatoni(*e.pac_bayes, d); }},
     {Family::kRademacher, "rademacher", "Rademacher-complexity bound on the training error",
      "Mohri, Rostamizadeh & Talwalkar (2018), Theorem 3.5; McDiarmid (1989) for "
      "sampled complexities",
-     kRademacherAssumptions, "evidence.rademacher", HasRademacher,
+     kRademacherAssumptions, "evidence.rademacher", CapacityMeasure::kNone, false, HasRademacher,
      [](const Evidence& e, double d) { return RademacherBound(*e.rademacher, d); }},
     {Family::kSampleCompression, "sample-compression", "Sample-compression bound",
      "Langford (2005), sample compression bound; Littlestone & Warmuth (1986); "
      "Floyd & Warmuth (1995)",
-     kCompressionAssumptions, "evidence.compression", HasCompression,
+     kCompressionAssumptions, "evidence.compression", CapacityMeasure::kNone, false, HasCompression,
      [](const Evidence& e, double d) { return SampleCompression(*e.compression, d); }},
 }};
 
 }  // namespace
+
+absl::string_view CapacityMeasureName(CapacityMeasure measure) {
+  switch (measure) {
+    case CapacityMeasure::kVcDimension:
+      return "vc_dimension";
+    case CapacityMeasure::kLogHypothesisCount:
+      return "log_hypothesis_count";
+    case CapacityMeasure::kNone:
+      break;
+  }
+  return "";
+}
 
 absl::Span<const FamilySpec> Families() { return kFamilies; }
 
@@ -151,9 +160,9 @@ const FamilySpec* FindFamily(Family family) {
   return nullptr;
 }
 
-const FamilySpec* FindFamilyBySlug(absl::string_view slug) {
+const FamilySpec* FindFamilyByName(absl::string_view name) {
   for (const FamilySpec& spec : kFamilies) {
-    if (spec.slug == slug) return &spec;
+    if (spec.family_name == name) return &spec;
   }
   return nullptr;
 }

@@ -13,10 +13,26 @@
 
 namespace riskbound::core {
 
+// The capacity measure a training-set family reads from
+// evidence.training.capacity.
+enum class CapacityMeasure {
+  kNone,  // not a training-set family
+  kVcDimension,
+  kLogHypothesisCount,
+};
+
+// CapacityMeasureName
+// "vc_dimension", "log_hypothesis_count", or "" for kNone: the API's names
+// (SelectStructureResponse.capacity_measure).
+absl::string_view CapacityMeasureName(CapacityMeasure measure);
+
+// One registry row. API: FamilyDescription (ListFamilies) and the family
+// fields of Certificate.
 struct FamilySpec {
   Family family;
-  // Stable lower-case name used by the CLI and in docs ("holdout-binomial").
-  absl::string_view slug;
+  // Stable lower-case name, as the CLI spells it ("holdout-binomial"); the
+  // API's family_name.
+  absl::string_view family_name;
   // One line for people.
   absl::string_view title;
   // The published source of the bound.
@@ -24,7 +40,13 @@ struct FamilySpec {
   // What must hold for the bound to be valid.
   absl::string_view assumptions;
   // The evidence the family needs, in API field-path words.
-  absl::string_view needs;
+  absl::string_view evidence_needed;
+  // The capacity measure it reads: kNone except for the training-set (VC and
+  // Occam) families, the ones a structure selection or a training plan uses.
+  CapacityMeasure capacity_measure;
+  // True for the bounded-loss families: their certificates bound an expected
+  // loss in the loss's own units (Certificate::loss_range), not an error rate.
+  bool bounds_expected_loss;
   // True when the evidence holds what the family needs.
   bool (*applies)(const Evidence& evidence);
   // Computes the certificate.
@@ -41,9 +63,9 @@ absl::Span<const FamilySpec> Families();
 // Returns the registry row of `family`, or nullptr for an unregistered value.
 const FamilySpec* FindFamily(Family family);
 
-// FindFamilyBySlug
-// Returns the registry row whose slug is `slug`, or nullptr.
-const FamilySpec* FindFamilyBySlug(absl::string_view slug);
+// FindFamilyByName
+// Returns the registry row whose family_name is `name`, or nullptr.
+const FamilySpec* FindFamilyByName(absl::string_view name);
 
 }  // namespace riskbound::core
 

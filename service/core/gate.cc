@@ -57,8 +57,11 @@ struct Split {
 // REQUIRES: the policy families are known and distinct (validated).
 Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_champion) {
   Split s;
-  std::vector<Family> listed = policy.allowed_families;
-  if (listed.empty()) listed.push_back(Family::kHoldoutExactBinomial);
+  std::vector<Family> listed;
+  for (const std::optional<Family>& f : policy.allowed_families) {
+    if (f.has_value()) listed.push_back(*f);
+  }
+  if (policy.allowed_families.empty()) listed.push_back(Family::kHoldoutExactBinomial);
   for (Family f : listed) {
     const FamilySpec* spec = FindFamily(f);
     if (spec == nullptr) continue;
@@ -87,9 +90,9 @@ void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdo
     return;
   }
   if (p.sample_count > kMaxSampleCount) {
-    out->push_back({prefix + ".sample_count",
-                    absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
-                                 p.sample_count)});
+    out->push_back(
+        {prefix + ".sample_count",
+         absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ", p.sample_count)});
     return;
   }
   // Each term <= 2^53 here or it is reported, so the sum cannot overflow.
@@ -109,7 +112,8 @@ void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdo
     }
   }
   if (!each_ok) return;
-  const std::uint64_t sum = p.both_wrong_count + p.only_champion_wrong_count + p.only_challenger_wrong_count;
+  const std::uint64_t sum =
+      p.both_wrong_count + p.only_champion_wrong_count + p.only_challenger_wrong_count;
   if (sum > p.sample_count) {
     out->push_back(
         {prefix + ".sample_count",
@@ -125,36 +129,39 @@ void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdo
     return;
   }
   if (holdout->sample_count != p.sample_count) {
-    out->push_back({prefix + ".sample_count",
-                    absl::StrCat(p.sample_count,
-                                 " differs from candidate.evidence.holdout.sample_count ",
-                                 holdout->sample_count,
-                                 ": paired counts must come from the candidate's hold-out "
-                                 "set")});
+    out->push_back(
+        {prefix + ".sample_count",
+         absl::StrCat(p.sample_count, " differs from candidate.evidence.holdout.sample_count ",
+                      holdout->sample_count,
+                      ": paired counts must come from the candidate's hold-out "
+                      "set")});
   }
   const std::uint64_t candidate_errors = p.both_wrong_count + p.only_challenger_wrong_count;
   if (holdout->error_count != candidate_errors) {
-    out->push_back({prefix + ".only_challenger_wrong_count",
-                    absl::StrCat("both_wrong_count + only_challenger_wrong_count = ",
-                                 candidate_errors,
-                                 " must equal candidate.evidence.holdout.error_count ",
-                                 holdout->error_count)});
+    out->push_back(
+        {prefix + ".only_challenger_wrong_count",
+         absl::StrCat("both_wrong_count + only_challenger_wrong_count = ", candidate_errors,
+                      " must equal candidate.evidence.holdout.error_count ",
+                      holdout->error_count)});
   }
 }
 
 // Returns OK or INVALID_ARGUMENT naming every bad field (see DecideGate).
+// Leaves in *evidence the candidate's evidence with its capacity resolved.
 absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
-                      const std::optional<ChampionComparison>& champion) {
+                      const std::optional<ChampionComparison>& champion, Evidence* evidence) {
   std::vector<FieldViolation> v;
   CheckProbabilityOpen("policy.max_risk", policy.max_risk, &v);
   if (CheckProbabilityOpen("policy.failure_probability", policy.failure_probability, &v) &&
       policy.failure_probability < kMinGateDelta) {
-    v.push_back({"policy.failure_probability",
-                 absl::StrCat("must be at least ", Num(kMinGateDelta),
-                              " to be split between the gate's tests, got ",
-                              Num(policy.failure_probability))});
+    v.push_back(
+        {"policy.failure_probability", absl::StrCat("must be at least ", Num(kMinGateDelta),
+                                                    " to be split between the gate's tests, got ",
+                                                    Num(policy.failure_probability))});
   }
-  CheckProbabilityOpen("policy.plan_pass_probability", policy.plan_pass_probability, &v);
+  if (policy.plan_pass_probability.has_value()) {
+    CheckProbabilityOpen("policy.plan_pass_probability", *policy.plan_pass_probability, &v);
+  }
   if (policy.max_regression.has_value()) {
     const double t = *policy.max_regression;
     if (!std::isfinite(t) || t < -1.0 || t > 1.0) {
@@ -167,19 +174,20 @@ absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
   bool families_ok = true;
   for (std::size_t i = 0; i < policy.allowed_families.size(); ++i) {
     const std::string field = absl::StrCat("policy.allowed_families[", i, "]");
-    const FamilySpec* spec = FindFamily(policy.allowed_families[i]);
+    const std::optional<Family>& family = policy.allowed_families[i];
+    const FamilySpec* spec = family.has_value() ? FindFamily(*family) : nullptr;
     if (spec == nullptr) {
-      v.push_back({field, absl::StrCat("unknown bound family (value ",
-                                       static_cast<int>(policy.allowed_families[i]), ")")});
+      v.push_back({field,
+                   "unknown bound family (unset, or a value this server does not know; "
+                   "ListFamilies lists them)"});
       families_ok = false;
     } else if (!seen.insert(spec->family).second) {
-      v.push_back({field, absl::StrCat(spec->slug, " is listed twice")});
+      v.push_back({field, absl::StrCat(spec->family_name, " is listed twice")});
       families_ok = false;
-    } else if (spec->family == Family::kBoundedHoeffding || spec->family == Family::kBoundedKl ||
-               spec->family == Family::kBoundedEmpiricalBernstein) {
+    } else if (spec->bounds_expected_loss) {
       // Their certificates bound an expected loss in the loss's own units;
       // policy.max_risk is an error rate, so the two cannot be compared.
-      v.push_back({field, absl::StrCat(spec->slug,
+      v.push_back({field, absl::StrCat(spec->family_name,
                                        " bounds an expected loss in its own units, not the "
                                        "error rate that policy.max_risk limits")});
       families_ok = false;
@@ -187,19 +195,16 @@ absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
   }
 
   if (candidate.id.empty()) v.push_back({"candidate.id", "must name the candidate model"});
-  std::vector<FieldViolation> evidence_violations;
-  const bool evidence_ok = ValidateEvidence(candidate.evidence, &evidence_violations).ok();
-  for (FieldViolation& e : evidence_violations) {
-    v.push_back({absl::StrCat("candidate.", e.field), std::move(e.description)});
-  }
+  *evidence = candidate.evidence;
+  const bool evidence_ok = PrepareEvidence(evidence, "candidate.evidence", &v);
   if (evidence_ok && families_ok) {
-    const Split split = MakeSplit(policy, candidate.evidence, champion.has_value());
+    const Split split = MakeSplit(policy, *evidence, champion.has_value());
     if (split.families.empty()) {
       bool all_holdout = true;
       std::vector<std::string> needs;
       for (const FamilySpec* spec : split.skipped) {
-        all_holdout = all_holdout && spec->needs == "evidence.holdout";
-        needs.push_back(absl::StrCat(spec->slug, " needs ", spec->needs));
+        all_holdout = all_holdout && spec->evidence_needed == "evidence.holdout";
+        needs.push_back(absl::StrCat(spec->family_name, " needs ", spec->evidence_needed));
       }
       v.push_back({all_holdout ? "candidate.evidence.holdout" : "candidate.evidence",
                    absl::StrCat("no bound family the policy allows can use this evidence: ",
@@ -371,10 +376,10 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
                                                    double delta_upper,
                                                    double delta_lower,
                                                    const StopToken& stop) {
-  const double rate_b = static_cast<double>(p.only_challenger_wrong_count) /
-                        static_cast<double>(p.sample_count);
-  const double rate_c = static_cast<double>(p.only_champion_wrong_count) /
-                        static_cast<double>(p.sample_count);
+  const double rate_b =
+      static_cast<double>(p.only_challenger_wrong_count) / static_cast<double>(p.sample_count);
+  const double rate_c =
+      static_cast<double>(p.only_champion_wrong_count) / static_cast<double>(p.sample_count);
   const double observed = rate_b - rate_c;
   std::function<bool(std::uint64_t)> ok;
   if (observed < t) {
@@ -412,14 +417,34 @@ const char* VerdictName(Verdict verdict) {
   return "HOLD";
 }
 
+const std::vector<std::string>& GateCautions() {
+  static const std::vector<std::string>* const kCautions = [] {
+    auto* c = new std::vector<std::string>(Cautions());
+    c->push_back(
+        "A verdict holds only if the policy was fixed before the evidence was seen and the "
+        "hold-out set was used for this decision alone: gating again on the same hold-out set "
+        "after changing the policy or the model spends the failure probability again.");
+    return c;
+  }();
+  return *kCautions;
+}
+
+absl::Status ValidateGate(const GatePolicy& policy, const GateCandidate& candidate,
+                          const std::optional<ChampionComparison>& champion) {
+  Evidence resolved;
+  return Validate(policy, candidate, champion, &resolved);
+}
+
 absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
                                         const GateCandidate& candidate,
                                         const std::optional<ChampionComparison>& champion,
                                         const StopToken& stop) {
-  if (absl::Status s = Validate(policy, candidate, champion); !s.ok()) return s;
+  Evidence resolved;
+  if (absl::Status s = Validate(policy, candidate, champion, &resolved); !s.ok()) return s;
   if (stop.StopRequested()) return stop.Status();
 
-  const Evidence& evidence = candidate.evidence;
+  const Evidence& evidence = resolved;
+  const double pass = policy.plan_pass_probability.value_or(kDefaultPlanPassProbability);
   const Split split = MakeSplit(policy, evidence, champion.has_value());
   const double epsilon = policy.max_risk;
   GateDecision d;
@@ -434,20 +459,21 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
         c.risk_upper_bound >= *evidence.baseline_error_rate) {
       c.vacuous = true;
     }
-    d.delta_ledger.emplace_back(absl::StrCat("risk upper bound: ", spec->slug),
-                                split.per_family);
+    d.delta_ledger.push_back(
+        DeltaSpend{absl::StrCat("risk upper bound: ", spec->family_name), split.per_family});
     d.families_used.push_back(spec->family);
     certs.push_back(std::move(c));
-    if (certs.back().risk_upper_bound < certs[tightest].risk_upper_bound) tightest = certs.size() - 1;
+    if (certs.back().risk_upper_bound < certs[tightest].risk_upper_bound)
+      tightest = certs.size() - 1;
   }
   d.risk_certificate = certs[tightest];
   d.risk_certificate.risk_lower_bound.reset();
   const double upper = d.risk_certificate.risk_upper_bound;
-  const std::string upper_slug(split.families[tightest]->slug);
+  const std::string upper_slug(split.families[tightest]->family_name);
   const bool risk_promote = upper <= epsilon;
   for (const FamilySpec* spec : split.skipped) {
-    details.push_back(absl::StrCat("policy family ", spec->slug, " not used: it needs ",
-                                   spec->needs));
+    details.push_back(absl::StrCat("policy family ", spec->family_name, " not used: it needs ",
+                                   spec->evidence_needed));
   }
   if (certs.size() > 1) {
     details.push_back(absl::StrCat("risk upper bound is the tightest of ", certs.size(),
@@ -469,18 +495,18 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
   if (evidence.holdout.has_value()) {
     const Certificate low = HoldoutExactBinomial(*evidence.holdout, split.risk_lower);
     d.risk_lower_bound = low.risk_lower_bound.value_or(0.0);
-    d.delta_ledger.emplace_back("risk lower bound: holdout-binomial (Clopper-Pearson)",
-                                split.risk_lower);
+    d.delta_ledger.push_back(
+        DeltaSpend{"risk lower bound: holdout-binomial (Clopper-Pearson)", split.risk_lower});
     if (std::find(d.families_used.begin(), d.families_used.end(),
                   Family::kHoldoutExactBinomial) == d.families_used.end()) {
       d.families_used.push_back(Family::kHoldoutExactBinomial);
     }
     risk_reject = *d.risk_lower_bound > epsilon;
-    details.push_back(absl::StrCat(
-        "true error is at least ", Num(*d.risk_lower_bound), " (Clopper-Pearson on ",
-        evidence.holdout->error_count, " errors in ", evidence.holdout->sample_count,
-        " hold-out samples, failure probability ", Num(split.risk_lower), "), ",
-        risk_reject ? "above" : "not above", " the threshold ", Num(epsilon)));
+    details.push_back(
+        absl::StrCat("true error is at least ", Num(*d.risk_lower_bound), " (Clopper-Pearson on ",
+                     evidence.holdout->error_count, " errors in ", evidence.holdout->sample_count,
+                     " hold-out samples, failure probability ", Num(split.risk_lower), "), ",
+                     risk_reject ? "above" : "not above", " the threshold ", Num(epsilon)));
   } else {
     details.push_back(
         "no hold-out counts: no lower bound on the true error, so the risk test "
@@ -520,10 +546,10 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
           "exact one-sided McNemar p-value ", Num(*d.mcnemar_p_value),
           " that the candidate is better than the champion (informational, not used by "
           "the verdict, spends no failure probability)"));
-      d.delta_ledger.emplace_back("difference upper bound: paired Clopper-Pearson pair",
-                                  split.difference_upper);
-      d.delta_ledger.emplace_back("difference lower bound: paired Clopper-Pearson pair",
-                                  split.difference_lower);
+      d.delta_ledger.push_back(DeltaSpend{"difference upper bound: paired Clopper-Pearson pair",
+                                          split.difference_upper});
+      d.delta_ledger.push_back(DeltaSpend{"difference lower bound: paired Clopper-Pearson pair",
+                                          split.difference_lower});
     } else {
       const SampleCounts& ch = *champion->champion_holdout;
       du = UnpairedDifferenceUpper(*evidence.holdout, ch, split.difference_upper);
@@ -534,10 +560,10 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
       details.push_back(
           "champion and candidate were scored on different hold-out sets: this "
           "comparison is weaker than a paired one on a shared set");
-      d.delta_ledger.emplace_back(
-          "difference upper bound: unpaired Clopper-Pearson limits", split.difference_upper);
-      d.delta_ledger.emplace_back(
-          "difference lower bound: unpaired Clopper-Pearson limits", split.difference_lower);
+      d.delta_ledger.push_back(DeltaSpend{"difference upper bound: unpaired Clopper-Pearson limits",
+                                          split.difference_upper});
+      d.delta_ledger.push_back(DeltaSpend{"difference lower bound: unpaired Clopper-Pearson limits",
+                                          split.difference_lower});
     }
     d.difference_upper_bound = du.value;
     d.difference_lower_bound = dl.value;
@@ -634,17 +660,17 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
         req.target_risk = epsilon;
         req.expected_risk = rate;
         req.failure_probability = next.per_family;
-        req.pass_probability = policy.plan_pass_probability;
+        req.pass_probability = pass;
         req.held_sample_count = held;
         absl::StatusOr<HoldoutPlan> plan = PlanHoldout(req, stop);
         if (stop.StopRequested()) return stop.Status();
         if (plan.ok() && plan->reachable) {
           need = std::max(need, plan->additional_sample_count);
-          details.push_back(absl::StrCat(
-              "if the error rate stays near ", rate_words, " ", Num(rate), ", about ",
-              plan->additional_sample_count, " more labelled hold-out samples (", plan->sample_count,
-              " in all) give a PROMOTE on risk with probability ",
-              Num(plan->pass_probability_at_plan)));
+          details.push_back(absl::StrCat("if the error rate stays near ", rate_words, " ",
+                                         Num(rate), ", about ", plan->additional_sample_count,
+                                         " more labelled hold-out samples (", plan->sample_count,
+                                         " in all) give a PROMOTE on risk with probability ",
+                                         Num(plan->pass_probability_at_plan)));
         } else {
           plannable = false;
           details.push_back(absl::StrCat(
@@ -652,16 +678,16 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
               plan.ok() ? plan->reason : std::string(plan.status().message())));
         }
       } else {
-        absl::StatusOr<std::uint64_t> n = PlanRejection(
-            epsilon, rate, next.risk_lower, policy.plan_pass_probability, held, stop);
+        absl::StatusOr<std::uint64_t> n =
+            PlanRejection(epsilon, rate, next.risk_lower, pass, held, stop);
         if (stop.StopRequested()) return stop.Status();
         if (n.ok()) {
           need = std::max(need, *n - std::min(*n, held));
-          details.push_back(absl::StrCat(
-              rate_words, " ", Num(rate), " is at or above the threshold: about ",
-              *n - std::min(*n, held), " more labelled hold-out samples (", *n,
-              " in all) would show it with probability ", Num(policy.plan_pass_probability),
-              " if the rate stays there (a REJECT)"));
+          details.push_back(
+              absl::StrCat(rate_words, " ", Num(rate), " is at or above the threshold: about ",
+                           *n - std::min(*n, held), " more labelled hold-out samples (", *n,
+                           " in all) would show it with probability ", Num(pass),
+                           " if the rate stays there (a REJECT)"));
         } else if (n.status().code() == absl::StatusCode::kResourceExhausted) {
           plannable = false;
           details.push_back(absl::StrCat("no REJECT plan: ", rate_words, " ", Num(rate),
@@ -715,10 +741,13 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
   for (std::string& s : details) d.reasons.push_back(std::move(s));
 
   double spent = 0.0;
-  for (const auto& [name, delta] : d.delta_ledger) spent += delta;
+  for (const DeltaSpend& entry : d.delta_ledger) spent += entry.failure_probability;
+  d.spent_failure_probability = spent;
+  d.cautions = GateCautions();
   if (!(spent <= policy.failure_probability)) {
     return absl::InternalError(absl::StrCat("delta ledger sums to ", Num(spent),
-                                            ", more than the policy's ", Num(policy.failure_probability)));
+                                            ", more than the policy's ",
+                                            Num(policy.failure_probability)));
   }
   return d;
 }

@@ -9,7 +9,7 @@
 // Failure-probability (delta) accounting. Every confidence statement the
 // verdict rests on gets an explicit share of policy.failure_probability, listed in
 // GateDecision::delta_ledger; the shares sum to at most policy.failure_probability, so by
-// the union bound (Bonferroni; bounds.md 11.3) ALL the reported bounds hold
+// the union bound (Bonferroni; Boole's inequality) ALL the reported bounds hold
 // together with probability >= 1 - policy.failure_probability. The split depends only on
 // the policy and on which kinds of evidence are present (never on their
 // values), so it is fixed before the data is seen:
@@ -22,7 +22,7 @@
 //
 //  * The risk upper bound is the tightest of the K policy families that apply
 //    to the candidate's evidence, each computed at (its share)/K (the minimum
-//    over K bounds needs the union bound, bounds.md 11.3).
+//    over K bounds needs the union bound).
 //  * The risk lower bound is the one-sided Clopper-Pearson lower limit on the
 //    hold-out counts. Without hold-out counts there is no lower bound (a
 //    training-set bound cannot show that a model is bad); its share then goes
@@ -30,7 +30,7 @@
 //  * Each difference bound is a Bonferroni Clopper-Pearson pair (paired.h), so
 //    its share is again halved between the two binomial limits it uses.
 //  * Upper and lower bounds on the same quantity form a two-sided interval:
-//    "for a two-sided interval, spend delta/2 on each side" (bounds.md 0.1).
+//    a two-sided interval spends delta/2 on each side (common practice).
 //  * The McNemar p-value is reported for information only: no verdict rule
 //    uses it, so it spends no delta.
 //
@@ -66,8 +66,10 @@ struct GatePolicy {
   // The bound families the risk upper bound may use. Those that apply to the
   // candidate's evidence are used (union bound over them); at least one must
   // apply. Empty: the hold-out exact binomial (Clopper-Pearson) only, the
-  // recommended gate bound (bounds.md 12).
-  std::vector<Family> allowed_families;
+  // recommended gate bound. nullopt stands for an entry that names no family
+  // (the API's BOUND_FAMILY_UNSPECIFIED, or a value this server does not
+  // know); DecideGate refuses it at its position.
+  std::vector<std::optional<Family>> allowed_families;
   // Fewer hold-out samples than this: HOLD (more data needed), whatever the
   // bounds say. 0: no minimum.
   std::uint64_t min_holdout_sample_count = 0;
@@ -76,9 +78,13 @@ struct GatePolicy {
   // negative = better by at least that much. Unset with a champion: 0.
   std::optional<double> max_regression;
   // Probability, in (0, 1), with which the planned extra hold-out samples of
-  // a HOLD should settle the verdict (bounds.md 9.6).
-  double plan_pass_probability = 0.8;
+  // a HOLD should settle the verdict (a power calculation, plan.h). nullopt:
+  // kDefaultPlanPassProbability.
+  std::optional<double> plan_pass_probability;
 };
+
+// The plan pass probability used when the policy leaves it unset.
+inline constexpr double kDefaultPlanPassProbability = 0.8;
 
 // The model asking for promotion. API paths: candidate.id, candidate.evidence.*
 struct GateCandidate {
@@ -99,19 +105,31 @@ struct ChampionComparison {
   std::optional<SampleCounts> champion_holdout;
 };
 
+// API: Verdict.
 enum class Verdict {
   kPromote = 1,
   kHold = 2,
   kReject = 3,
 };
 
+// One confidence statement of a verdict and the failure probability it
+// spent. API: DeltaSpend.
+struct DeltaSpend {
+  // The statement, in plain words ("risk upper bound: holdout-binomial").
+  std::string test;
+  double failure_probability = 0.0;
+};
+
+// API: GateResponse (the audit record's digest, timestamp and engine version
+// are the caller's).
 struct GateDecision {
   Verdict verdict = Verdict::kHold;
   // Why, in plain words, each naming the numbers it compares. The first
   // reason states the verdict's deciding rule.
   std::vector<std::string> reasons;
   // The tightest risk upper bound (the one the verdict used). Its
-  // lower_bound is cleared: the gate's lower bound is risk_lower_bound.
+  // risk_lower_bound is cleared: the gate's lower bound is risk_lower_bound
+  // below.
   Certificate risk_certificate;
   // Clopper-Pearson lower limit on the true error (hold-out evidence only).
   std::optional<double> risk_lower_bound;
@@ -126,12 +144,27 @@ struct GateDecision {
   std::optional<std::uint64_t> additional_sample_count;
   // Every confidence statement the verdict used and the delta it spent, in
   // the order computed; the deltas sum to at most policy.failure_probability.
-  std::vector<std::pair<std::string, double>> delta_ledger;
+  std::vector<DeltaSpend> delta_ledger;
+  // The sum of delta_ledger's failure probabilities: <= policy's.
+  double spent_failure_probability = 0.0;
   // The bound families the risk bounds used, for the audit record: those of
   // the risk upper bound in policy order, then kHoldoutExactBinomial for the
   // risk lower bound when there are hold-out counts (each at most once).
   std::vector<Family> families_used;
+  // Cautions that apply to every verdict (GateCautions).
+  std::vector<std::string> cautions;
 };
+
+// GateCautions
+// The cautions every gate answer carries: Cautions() (certify.h) and the
+// gate's own (policy fixed in advance, hold-out set used once).
+const std::vector<std::string>& GateCautions();
+
+// ValidateGate
+// Returns OK, or INVALID_ARGUMENT naming every bad field at once (the checks
+// of DecideGate, without computing any bound).
+absl::Status ValidateGate(const GatePolicy& policy, const GateCandidate& candidate,
+                          const std::optional<ChampionComparison>& champion);
 
 // VerdictName
 // Returns "PROMOTE", "HOLD" or "REJECT" (for reasons and logs).
@@ -154,7 +187,7 @@ const char* VerdictName(Verdict verdict);
 //      - risk unsettled, observed hold-out rate p < epsilon: PlanHoldout
 //        (plan.h) with target epsilon, expected rate p, the delta share of
 //        the exact binomial upper bound, policy.plan_pass_probability and
-//        the samples already held (bounds.md 9.6);
+//        the samples already held (a power calculation);
 //      - risk unsettled, p >= epsilon: the mirror-image plan for a REJECT: the
 //        smallest total n at which P(Bin(n, p) >= k_min(n)) reaches the pass
 //        probability, k_min(n) being the fewest errors whose Clopper-Pearson
@@ -163,8 +196,8 @@ const char* VerdictName(Verdict verdict);
 //        with no plan, past a work budget of 150 ms of CPU);
 //      - champion comparison unsettled (paired only): the smallest total n at
 //        which the difference limits, with the observed disagreement rates
-//        held fixed, settle the comparison (anticipated-rate plan, bounds.md
-//        9.5 style: about even odds, no pass-probability margin; given up
+//        held fixed, settle the comparison (an anticipated-rate plan as in plan.h:
+//        about even odds, no pass-probability margin; given up
 //        past a work budget of 50 ms of CPU);
 //      - below the minimum: at least the samples missing to reach it.
 //    The largest of these is reported.

@@ -10,9 +10,10 @@
 #include <utility>
 #include <vector>
 
-
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
+#include "absl/strings/str_join.h"
+#include "service/core/certify.h"
 #include "service/core/families.h"
 #include "service/core/field_violation.h"
 #include "service/core/numeric.h"
@@ -85,6 +86,16 @@ class CountedBound {
   mutable bool stopped_ = false;
 };
 
+// The samples after a plan's n over which the bound must stay at or below
+// the target: ceil(2 / rate), at most kPlanMaxSamples; 0 for rate 0 (no
+// sawtooth without errors).
+std::uint64_t SawtoothWindow(double rate) {
+  if (rate <= 0.0) return 0;
+  const double w = std::ceil(2.0 / rate);
+  return w >= static_cast<double>(kPlanMaxSamples) ? kPlanMaxSamples
+                                                   : static_cast<std::uint64_t>(w);
+}
+
 // Smallest n in [lo, kPlanMaxSamples] with ok(n, k(n)) and ok(s, k(s)) for
 // every tooth start s (first n' with k(n') > k(n'-1)) in (n, n + ceil(2/rate)]:
 // the sawtooth-robust answer of the file comment. Within a tooth k is fixed
@@ -92,12 +103,7 @@ class CountedBound {
 // NOT_FOUND when even kPlanMaxSamples fails.
 absl::StatusOr<std::uint64_t> RobustSmallest(double rate, std::uint64_t lo,
                                              const CountedBound& ok) {
-  std::uint64_t window = 0;
-  if (rate > 0.0) {
-    const double w = std::ceil(2.0 / rate);
-    window = w >= static_cast<double>(kPlanMaxSamples) ? kPlanMaxSamples
-                                                        : static_cast<std::uint64_t>(w);
-  }
+  const std::uint64_t window = SawtoothWindow(rate);
   const Predicate robust = [&](std::uint64_t n) {
     if (!ok(n, ErrorsAt(rate, n))) return false;
     const std::uint64_t end = n + std::min(window, kPlanMaxSamples - n);
@@ -169,19 +175,35 @@ std::string Unreachable(double target, double expected, absl::string_view what) 
       std::string(what), expected, target);
 }
 
-void CheckHeld(std::uint64_t held, std::vector<FieldViolation>* v) {
+void CheckHeld(const std::string& prefix, std::uint64_t held, std::vector<FieldViolation>* v) {
   if (held > kPlanMaxSamples) {
-    v->push_back({"held_sample_count", absl::StrCat("must be at most 2^53 = ", kPlanMaxSamples,
-                                               ", got ", held)});
+    v->push_back({prefix + ".held_sample_count",
+                  absl::StrCat("must be at most 2^53 = ", kPlanMaxSamples, ", got ", held)});
   }
 }
 
-void CheckTarget(double target, std::vector<FieldViolation>* v) {
+void CheckTarget(const std::string& prefix, double target, std::vector<FieldViolation>* v) {
   if (!std::isfinite(target) || target <= 0.0) {
-    v->push_back({"target_risk", absl::StrCat("must be a finite risk above 0, got ",
-                                              std::isnan(target) ? std::string("NaN")
-                                                                 : absl::StrCat(target))});
+    v->push_back({prefix + ".target_risk",
+                  absl::StrCat("must be a finite risk above 0, got ",
+                               std::isnan(target) ? std::string("NaN") : absl::StrCat(target))});
   }
+}
+
+// The rule of an anticipated-rate plan, with every value substituted:
+// `bound` names the bound ("exact binomial (Clopper-Pearson) bound"), `n`
+// the sample size's letter.
+std::string AnticipatedRateRule(absl::string_view bound, absl::string_view n, double rate,
+                                double target, absl::string_view source) {
+  if (rate <= 0.0) {
+    return absl::StrFormat("smallest %s at which the %s with no errors is <= %g (%s)", n, bound,
+                           target, source);
+  }
+  return absl::StrFormat(
+      "smallest %s at which the %s at ceil(%g %s) errors is <= %g, and stays <= %g for the "
+      "next %d samples (2/%g rounded up: the count grows by one every 1/%g samples, which "
+      "makes the bound a sawtooth in %s) (%s)",
+      n, bound, rate, n, target, target, SawtoothWindow(rate), rate, rate, n, source);
 }
 
 // ceil(ln delta / log1p(-eps)), or nullopt when it exceeds kPlanMaxSamples.
@@ -192,18 +214,71 @@ std::optional<std::uint64_t> ZeroFailureSamples(double eps, double delta) {
   return std::max<std::uint64_t>(1, static_cast<std::uint64_t>(n));
 }
 
+void CheckHoldoutRequest(const HoldoutPlanRequest& request, const std::string& prefix,
+                         std::vector<FieldViolation>* violations) {
+  CheckTarget(prefix, request.target_risk, violations);
+  CheckProbabilityClosed(prefix + ".expected_risk", request.expected_risk, violations);
+  CheckProbabilityOpen(prefix + ".failure_probability", request.failure_probability, violations);
+  if (request.pass_probability.has_value()) {
+    CheckProbabilityOpen(prefix + ".pass_probability", *request.pass_probability, violations);
+  }
+  CheckHeld(prefix, request.held_sample_count, violations);
+}
+
+// The training-set families' names, for messages.
+std::string TrainingFamilies() {
+  std::vector<std::string> names;
+  for (const FamilySpec& spec : Families()) {
+    if (spec.capacity_measure != CapacityMeasure::kNone) {
+      names.push_back(std::string(spec.family_name));
+    }
+  }
+  return absl::StrJoin(names, ", ");
+}
+
+// Checks a training plan request; resolves its capacity in `capacity` (a
+// copy of the request's). Returns the family's row when it is a training-set
+// family.
+const FamilySpec* CheckTrainingRequest(const TrainingPlanRequest& request,
+                                       const std::string& prefix, ClassCapacity* capacity,
+                                       std::vector<FieldViolation>* violations) {
+  const FamilySpec* spec = request.family.has_value() ? FindFamily(*request.family) : nullptr;
+  if (spec == nullptr) {
+    violations->push_back(
+        {prefix + ".family", absl::StrCat("required: a training-set family (", TrainingFamilies(),
+                                          "); unset, or a value this server does not know")});
+  } else if (spec->capacity_measure == CapacityMeasure::kNone) {
+    violations->push_back(
+        {prefix + ".family",
+         absl::StrCat(
+             spec->family_name, " is not a training-set family (", TrainingFamilies(),
+             "); plan a hold-out set with the hold-out planner (PlanSamplesRequest.holdout)")});
+    spec = nullptr;
+  }
+  const bool resolved = ResolveCapacity(capacity, prefix + ".capacity", violations);
+  if (spec != nullptr && resolved) {
+    const bool has = spec->capacity_measure == CapacityMeasure::kVcDimension
+                         ? capacity->vc_dimension.has_value()
+                         : capacity->log_hypothesis_count.has_value();
+    if (!has) {
+      violations->push_back({prefix + ".capacity",
+                             absl::StrCat(spec->family_name, " needs ", spec->evidence_needed)});
+    }
+  }
+  CheckProbabilityClosed(prefix + ".expected_empirical_risk", request.expected_empirical_risk,
+                         violations);
+  CheckTarget(prefix, request.target_risk, violations);
+  CheckProbabilityOpen(prefix + ".failure_probability", request.failure_probability, violations);
+  CheckHeld(prefix, request.held_sample_count, violations);
+  return spec;
+}
+
 }  // namespace
 
-absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
-                                        const StopToken& stop) {
+absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const StopToken& stop,
+                                        const std::string& prefix) {
   std::vector<FieldViolation> violations;
-  CheckTarget(request.target_risk, &violations);
-  CheckProbabilityClosed("expected_risk", request.expected_risk, &violations);
-  CheckProbabilityOpen("failure_probability", request.failure_probability, &violations);
-  if (request.pass_probability.has_value()) {
-    CheckProbabilityOpen("pass_probability", *request.pass_probability, &violations);
-  }
-  CheckHeld(request.held_sample_count, &violations);
+  CheckHoldoutRequest(request, prefix, &violations);
   if (!violations.empty()) return InvalidFields(violations);
 
   const double eps = request.target_risk;
@@ -241,10 +316,8 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
   }
   plan.expected_rate_sample_count = *n95;
   plan.sample_count = *n95;
-  plan.rule = absl::StrFormat(
-      "smallest n at which the exact binomial bound at ceil(%g n) errors is <= %g, and "
-      "stays so for the next ceil(2/p) samples (formula sheet 9.5)",
-      p, eps);
+  plan.rule = AnticipatedRateRule("exact binomial (Clopper-Pearson) bound", "n", p, eps,
+                                  "Clopper & Pearson 1934; exact integer search");
 
   // k_max(n) = max { k : Binbar(n, k) <= eps }, given a count `known` that
   // certifies eps at n (so k_max >= known); the search runs upward from it.
@@ -358,7 +431,8 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
     }
     plan.rule = absl::StrFormat(
         "smallest n at which a model with true error rate %g passes (exact binomial "
-        "bound <= %g) with probability >= %g (formula sheet 9.6)",
+        "bound <= %g) with probability >= %g (a power calculation on the binomial "
+        "distribution of the error count; exact integer search)",
         p, eps, target);
     plan.notes.emplace_back(
         "the pass probability is a sawtooth in n: a few samples more than planned can "
@@ -372,8 +446,9 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
   HoldoutUpper(plan.sample_count, plan.tolerated_error_count, delta, &exact);
   plan.pass_probability_at_plan =
       PassProbability(plan.sample_count, plan.tolerated_error_count, p, &exact);
-  plan.additional_sample_count =
-      plan.sample_count > request.held_sample_count ? plan.sample_count - request.held_sample_count : 0;
+  plan.additional_sample_count = plan.sample_count > request.held_sample_count
+                                     ? plan.sample_count - request.held_sample_count
+                                     : 0;
   if (!exact) {
     plan.notes.emplace_back(
         "at this size the exact binomial computations did not converge; the "
@@ -382,50 +457,23 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
   return plan;
 }
 
-absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
-                                          const StopToken& stop) {
+absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request, const StopToken& stop,
+                                          const std::string& prefix) {
   std::vector<FieldViolation> violations;
-  const FamilySpec* spec = FindFamily(request.family);
-  bool uses_vc = false;
-  if (spec == nullptr) {
-    violations.push_back({"family", "unknown bound family"});
-  } else {
-    Evidence probe;
-    probe.training = TrainingEvidence{{0, 1}, request.capacity};
-    Evidence vc_probe;
-    vc_probe.training = TrainingEvidence{{0, 1}, {}};
-    vc_probe.training->capacity.vc_dimension = 1;
-    Evidence finite_probe;
-    finite_probe.training = TrainingEvidence{{0, 1}, {}};
-    finite_probe.training->capacity.log_hypothesis_count = 0.0;
-    uses_vc = spec->applies(vc_probe);
-    if (!uses_vc && !spec->applies(finite_probe)) {
-      violations.push_back(
-          {"family", absl::StrCat(spec->slug,
-                                  " is not a training-set family; plan a hold-out set "
-                                  "with the hold-out planner")});
-    } else if (!spec->applies(probe)) {
-      violations.push_back({"capacity", absl::StrCat(spec->slug, " needs ", spec->needs)});
-    } else if (!uses_vc) {
-      CheckNonNegativeFinite("capacity.log_hypothesis_count",
-                             *request.capacity.log_hypothesis_count, &violations);
-    }
-  }
-  CheckProbabilityClosed("expected_empirical_risk", request.expected_empirical_risk,
-                         &violations);
-  CheckTarget(request.target_risk, &violations);
-  CheckProbabilityOpen("failure_probability", request.failure_probability, &violations);
-  CheckHeld(request.held_sample_count, &violations);
+  ClassCapacity capacity = request.capacity;
+  const FamilySpec* spec = CheckTrainingRequest(request, prefix, &capacity, &violations);
   if (!violations.empty()) return InvalidFields(violations);
+  const bool uses_vc = spec->capacity_measure == CapacityMeasure::kVcDimension;
 
   const double eps = request.target_risk;
   const double r = request.expected_empirical_risk;
   const double delta = request.failure_probability;
   TrainingPlan plan;
+  plan.family = spec->family;
   plan.notes.push_back(absl::StrFormat(
       "the bound is evaluated at m samples with ceil(%g m) training errors (at least the "
       "anticipated count), through the %s family as a certificate would be",
-      r, std::string(spec->slug)));
+      r, std::string(spec->family_name)));
 
   // Comparisons from the literature (different guarantees; see plan.h).
   const auto fits = [](double m) -> std::optional<std::uint64_t> {
@@ -434,11 +482,11 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
   };
   if (eps < 1.0) {
     if (uses_vc) {
-      const double h = static_cast<double>(*request.capacity.vc_dimension);
+      const double h = static_cast<double>(*capacity.vc_dimension);
       // Blumer, Ehrenfeucht, Haussler & Warmuth (1989), Thm 2.1(ii)(b).
-      plan.realizable_sample_count = fits(std::max(4.0 / eps * std::log2(2.0 / delta),
-                                                8.0 * h / eps * std::log2(13.0 / eps)));
-      // Formula sheet 9.2: VC confidence (our conservative form, +1/m) <= eps/2.
+      plan.realizable_sample_count =
+          fits(std::max(4.0 / eps * std::log2(2.0 / delta), 8.0 * h / eps * std::log2(13.0 / eps)));
+      // Vapnik's VC confidence term (our conservative form, +1/m) <= eps/2.
       // Falls in m for m > h/2 and exceeds 1 below, so the predicate is monotone.
       if (stop.StopRequested()) return stop.Status();
       const absl::StatusOr<std::uint64_t> agn =
@@ -448,28 +496,33 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
           });
       if (agn.ok()) plan.agnostic_sample_count = *agn;
       plan.notes.emplace_back(
-          "realizable_sample_count: Blumer, Ehrenfeucht, Haussler & Warmuth (1989) sample "
-          "size for a consistent learner to reach error <= target (comparison only)");
+          "comparison only, realizable case: the Blumer, Ehrenfeucht, Haussler & Warmuth "
+          "(1989, Theorem 2.1) sample size at which a learner with no training errors "
+          "reaches true error <= target; a different guarantee from this plan's");
       plan.notes.emplace_back(
-          "agnostic_sample_count: smallest m with VC confidence (with +1/m) <= target/2, so "
-          "that ERM is within the target of the best in the class (comparison only)");
+          "comparison only, agnostic case: the smallest m at which Vapnik's VC confidence "
+          "term (with its +1/m) is <= target/2, so that empirical risk minimization lands "
+          "within the target of the best model in the class (Vapnik 1998, ch. 4)");
       plan.notes.emplace_back(
           "VC bounds fall with m only once m > h/2; below that they are vacuous");
     } else {
-      const double log_h = *request.capacity.log_hypothesis_count;
+      const double log_h = *capacity.log_hypothesis_count;
       // Shalev-Shwartz & Ben-David (2014), Cor. 2.3 and Cor. 4.6.
       plan.realizable_sample_count = fits((log_h - std::log(delta)) / eps);
       plan.agnostic_sample_count = fits(2.0 * (log_h + std::log(2.0 / delta)) / (eps * eps));
       plan.notes.emplace_back(
-          "realizable_sample_count: ceil((ln|H| + ln(1/delta)) / target), a consistent "
-          "hypothesis of a finite class (Blumer et al. 1987) (comparison only)");
+          "comparison only, realizable case: ceil((ln|H| + ln(1/delta)) / target), the "
+          "sample size at which a hypothesis of a finite class with no training errors "
+          "reaches true error <= target (Blumer, Ehrenfeucht, Haussler & Warmuth 1987; "
+          "Shalev-Shwartz & Ben-David 2014, Corollary 2.3)");
       plan.notes.emplace_back(
-          "agnostic_sample_count: ceil(2 (ln|H| + ln(2/delta)) / target^2), ERM within the "
-          "target of the best in the class (Shalev-Shwartz & Ben-David 2014, Cor. 4.6) "
-          "(comparison only)");
+          "comparison only, agnostic case: ceil(2 (ln|H| + ln(2/delta)) / target^2), at "
+          "which empirical risk minimization lands within the target of the best model in "
+          "the class (Shalev-Shwartz & Ben-David 2014, Corollary 4.6)");
     }
   }
 
+  plan.notes.insert(plan.notes.end(), capacity.notes.begin(), capacity.notes.end());
   if (eps >= 1.0 || r >= eps) {
     plan.reason = Unreachable(eps, r, "expected empirical risk");
     return plan;
@@ -477,7 +530,7 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
   const CountedBound ok(
       [&](std::uint64_t m, std::uint64_t k) {
         Evidence e;
-        e.training = TrainingEvidence{{k, m}, request.capacity};
+        e.training = TrainingEvidence{{k, m}, capacity};
         return spec->compute(e, delta).risk_upper_bound <= eps;
       },
       &plan.bound_evaluation_count, stop);
@@ -493,9 +546,48 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
   }
   plan.reachable = true;
   plan.sample_count = *m;
-  plan.additional_sample_count =
-      plan.sample_count > request.held_sample_count ? plan.sample_count - request.held_sample_count : 0;
+  plan.rule = AnticipatedRateRule(absl::StrCat(spec->family_name, " bound"), "m", r, eps,
+                                  absl::StrCat(spec->source, "; exact integer search"));
+  plan.additional_sample_count = plan.sample_count > request.held_sample_count
+                                     ? plan.sample_count - request.held_sample_count
+                                     : 0;
   return plan;
+}
+
+}  // namespace riskbound::core
+
+namespace riskbound::core {
+
+absl::Status ValidatePlanSamplesRequest(const PlanSamplesRequest& request) {
+  std::vector<FieldViolation> violations;
+  if (request.holdout.has_value() == request.training.has_value()) {
+    violations.push_back({"plan", request.holdout.has_value()
+                                      ? "give holdout or training, not both"
+                                      : "required: give holdout (a hold-out set) or training "
+                                        "(a training sample)"});
+  } else if (request.holdout.has_value()) {
+    CheckHoldoutRequest(*request.holdout, "holdout", &violations);
+  } else {
+    ClassCapacity capacity = request.training->capacity;
+    CheckTrainingRequest(*request.training, "training", &capacity, &violations);
+  }
+  return InvalidFields(violations);
+}
+
+absl::StatusOr<PlanSamplesResult> PlanSamples(const PlanSamplesRequest& request,
+                                              const StopToken& stop) {
+  if (absl::Status valid = ValidatePlanSamplesRequest(request); !valid.ok()) return valid;
+  PlanSamplesResult result;
+  if (request.holdout.has_value()) {
+    absl::StatusOr<HoldoutPlan> plan = PlanHoldout(*request.holdout, stop, "holdout");
+    if (!plan.ok()) return plan.status();
+    result.holdout = *std::move(plan);
+  } else {
+    absl::StatusOr<TrainingPlan> plan = PlanTraining(*request.training, stop, "training");
+    if (!plan.ok()) return plan.status();
+    result.training = *std::move(plan);
+  }
+  return result;
 }
 
 }  // namespace riskbound::core

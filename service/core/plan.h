@@ -15,7 +15,8 @@
 // falls while k stays fixed and jumps up when k grows. A plain "first n with
 // bound <= target" can be followed by failures, so the plans take the smallest
 // n from which the bound stays <= target for a further window of ceil(2/r)
-// samples (formula sheet 9.3, 9.5). Within a tooth the bound falls, so the
+// samples (the count grows by one every ~1/r samples, so such a window holds
+// about two more errors). Within a tooth the bound falls, so the
 // window is checked at n and at each tooth start (first n' with a larger
 // k(n')) inside it. At the answer n the bound is <= target and at n - 1 it is
 // above it.
@@ -38,6 +39,7 @@ namespace riskbound::core {
 // doubles (the largest count Certify accepts).
 inline constexpr std::uint64_t kPlanMaxSamples = kMaxSampleCount;
 
+// API: HoldoutPlanRequest.
 struct HoldoutPlanRequest {
   // epsilon: the risk the exact binomial (Clopper-Pearson) bound must reach.
   // In (0, 1); 1 or more is reported unreachable (no bound says anything there).
@@ -48,12 +50,13 @@ struct HoldoutPlanRequest {
   // Failure probability of the bound, in (0, 1).
   double failure_probability = 0.05;
   // If set, in (0, 1): plan for this probability that the bound will in fact
-  // reach the target when the true error rate is p (formula sheet 9.6).
+  // reach the target when the true error rate is p (a power calculation).
   std::optional<double> pass_probability;
   // Hold-out examples the caller already has (for additional_sample_count).
   std::uint64_t held_sample_count = 0;
 };
 
+// API: PlanSamplesResponse with HoldoutPlanDetail.
 struct HoldoutPlan {
   // False when no sample size up to kPlanMaxSamples reaches the target;
   // samples, tolerated_error_count and additional_sample_count are then 0 (the other
@@ -68,7 +71,8 @@ struct HoldoutPlan {
   // errors the hold-out set may show and still certify the target.
   std::uint64_t tolerated_error_count = 0;
   // ceil(ln delta / ln(1 - target)): enough when no error at all is expected
-  // (formula sheet 9.4; Hanley & Lippman-Hand 1983). 0 when beyond 2^53.
+  // (Clopper & Pearson 1934 at zero errors; Hanley & Lippman-Hand 1983).
+  // 0 when beyond 2^53.
   std::uint64_t zero_failure_sample_count = 0;
   // max(0, samples - held_sample_count).
   std::uint64_t additional_sample_count = 0;
@@ -76,10 +80,10 @@ struct HoldoutPlan {
   // true error rate p passes at the planned size.
   double pass_probability_at_plan = 0.0;
   // Smallest n with Binbar(n, ceil(p n), delta) <= target, robust to the
-  // sawtooth (formula sheet 9.5).
+  // sawtooth (see the file comment).
   std::uint64_t expected_rate_sample_count = 0;
   // With pass_probability: smallest n with P(pass at n) >= pass_probability
-  // (formula sheet 9.6); the pass probability is itself a sawtooth in n, so it
+  // (a power calculation); the pass probability is itself a sawtooth in n, so it
   // can dip below the request again for a few samples after this n.
   std::optional<std::uint64_t> pass_probability_sample_count;
   // Which rule set `samples`, in plain words.
@@ -92,26 +96,30 @@ struct HoldoutPlan {
 
 // PlanHoldout
 // Plans the size of a hold-out set for the exact binomial bound
-// (HoldoutExactBinomial; formula sheet 9.4-9.6).
+// (HoldoutExactBinomial: Clopper & Pearson 1934).
 // Returns OK with reachable = false and a reason when target_risk >= 1,
 // expected_risk >= target_risk, the answer exceeds kPlanMaxSamples, or the
 // searches would take more than a work budget of 100 ms of CPU (only an
 // expected rate within a hair of the target, whose answer lies near 2^53).
-// Errors: INVALID_ARGUMENT naming each bad field: target_risk (NaN, <= 0),
-// expected_risk (NaN, outside [0, 1]), failure_probability (outside (0, 1)),
-// pass_probability (outside (0, 1)), held_sample_count (> 2^53).
+// Errors: INVALID_ARGUMENT naming every bad field at once under `prefix`
+// (the request's path: "holdout" in PlanSamples): <prefix>.target_risk (NaN,
+// <= 0), .expected_risk (NaN, outside [0, 1]), .failure_probability (outside
+// (0, 1)), .pass_probability (outside (0, 1)), .held_sample_count (> 2^53).
 // Stops early when `stop` does and returns its status (CANCELLED or
 // DEADLINE_EXCEEDED), never a partial plan.
 // Never returns NaN or Inf. Thread-safe; no shared state.
 absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request,
-                                        const StopToken& stop = StopToken::Never());
+                                        const StopToken& stop = StopToken::Never(),
+                                        const std::string& prefix = "holdout");
 
+// API: TrainingPlanRequest.
 struct TrainingPlanRequest {
-  // kVcAdditive, kVcRelative, kOccamHoeffding or kOccamKl (any registered
-  // family that works on training evidence alone).
-  Family family = Family::kVcAdditive;
-  // The capacity measure the family reads (vc_dimension or
-  // log_hypothesis_count).
+  // A training-set family (FamilySpec::capacity_measure set): kVcAdditive,
+  // kVcRelative, kOccamHoeffding or kOccamKl. Required: nullopt (unset, or a
+  // value this server does not know) is refused.
+  std::optional<Family> family;
+  // The capacity of the class, in the measure the family reads (or one that
+  // resolves to it: hypothesis_count, a model description).
   ClassCapacity capacity;
   // The training error rate the caller expects, in [0, 1].
   double expected_empirical_risk = 0.0;
@@ -122,9 +130,14 @@ struct TrainingPlanRequest {
   std::uint64_t held_sample_count = 0;
 };
 
+// API: PlanSamplesResponse with TrainingPlanDetail.
 struct TrainingPlan {
   bool reachable = false;
   std::string reason;
+  // Which rule set sample_count, in plain words (empty when unreachable).
+  std::string rule;
+  // The family planned for.
+  Family family = Family::kVcAdditive;
   // Smallest m with family bound(m, ceil(r m)) <= target, robust to the
   // sawtooth (see the file comment), by exact integer search.
   std::uint64_t sample_count = 0;
@@ -137,10 +150,11 @@ struct TrainingPlan {
   std::optional<std::uint64_t> realizable_sample_count;
   // Comparison only (ERM within target of the best in the class): finite
   // classes, ceil(2 (ln|H| + ln(2/delta)) / target^2) (Shalev-Shwartz &
-  // Ben-David 2014, Cor. 4.6); VC families, the smallest m with our VC
-  // confidence (with its +1/m) <= target/2 (formula sheet 9.2).
+  // Ben-David 2014, Cor. 4.6); VC families, the smallest m with Vapnik's VC
+  // confidence term (with its +1/m, Vapnik 1998 ch. 4) <= target/2.
   std::optional<std::uint64_t> agnostic_sample_count;
-  // Remarks: the counting convention, regime warnings, what the references mean.
+  // Remarks: the counting convention, regime warnings, what the comparison
+  // sizes mean, where the capacity came from (ClassCapacity::notes).
   std::vector<std::string> notes;
   std::uint64_t bound_evaluation_count = 0;
 };
@@ -153,15 +167,42 @@ struct TrainingPlan {
 // Returns OK with reachable = false and a reason when target_risk >= 1,
 // expected_empirical_risk >= target_risk, the answer exceeds
 // kPlanMaxSamples, or the search would exceed the 100 ms CPU work budget.
-// Errors: INVALID_ARGUMENT naming each bad field: family (unknown or not a
-// training-set family), capacity (missing the measure the family uses) /
-// capacity.log_hypothesis_count (not finite, < 0), expected_empirical_risk,
-// target_risk, failure_probability, held_sample_count.
+// Errors: INVALID_ARGUMENT naming every bad field at once under `prefix`
+// ("training" in PlanSamples): <prefix>.family (unset, unknown or not a
+// training-set family), <prefix>.capacity (missing, or not the measure the
+// family uses) and what ResolveCapacity (certify.h) names under it,
+// .expected_empirical_risk, .target_risk, .failure_probability,
+// .held_sample_count.
 // Stops early when `stop` does and returns its status (CANCELLED or
 // DEADLINE_EXCEEDED), never a partial plan.
 // Never returns NaN or Inf. Thread-safe; no shared state.
 absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request,
-                                          const StopToken& stop = StopToken::Never());
+                                          const StopToken& stop = StopToken::Never(),
+                                          const std::string& prefix = "training");
+
+// API: PlanSamplesRequest, whose `plan` oneof sets exactly one of the two.
+struct PlanSamplesRequest {
+  std::optional<HoldoutPlanRequest> holdout;
+  std::optional<TrainingPlanRequest> training;
+};
+
+// API: PlanSamplesResponse: the plan of the kind requested.
+struct PlanSamplesResult {
+  std::optional<HoldoutPlan> holdout;
+  std::optional<TrainingPlan> training;
+};
+
+// ValidatePlanSamplesRequest
+// Returns OK, or INVALID_ARGUMENT naming every bad field at once by its API
+// path: "plan" when neither kind (or both) is given, else the checks of
+// PlanHoldout under "holdout" or PlanTraining under "training".
+absl::Status ValidatePlanSamplesRequest(const PlanSamplesRequest& request);
+
+// PlanSamples
+// The plan of the kind requested: PlanHoldout or PlanTraining, with the
+// errors of ValidatePlanSamplesRequest. Thread-safe.
+absl::StatusOr<PlanSamplesResult> PlanSamples(const PlanSamplesRequest& request,
+                                              const StopToken& stop = StopToken::Never());
 
 }  // namespace riskbound::core
 

@@ -7,6 +7,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
+#include "absl/strings/str_join.h"
 #include "service/core/certify.h"
 #include "service/core/families.h"
 #include "service/core/field_violation.h"
@@ -22,37 +23,31 @@ constexpr double kWeightSumSlack = 1e-12;
 // microseconds at most).
 constexpr std::size_t kStopCheckEvery = 16;
 
-// Which capacity measure a family reads.
-enum class Measure { kVcDimension, kLogHypothesisCount };
-
-// Probes the registry: a training-set family applies to training evidence
-// that carries only the measure it needs. Returns nullopt for a family that
-// does not work on training evidence alone (hold-out families).
-std::optional<Measure> MeasureOf(const FamilySpec& spec) {
-  Evidence probe;
-  probe.training = TrainingEvidence{{0, 1}, {}};
-  probe.training->capacity.vc_dimension = 1;
-  if (spec.applies(probe)) return Measure::kVcDimension;
-  probe.training->capacity = ClassCapacity{};
-  probe.training->capacity.log_hypothesis_count = 0.0;
-  if (spec.applies(probe)) return Measure::kLogHypothesisCount;
-  return std::nullopt;
+// The training-set families' names, for messages.
+std::string TrainingFamilies() {
+  std::vector<std::string> names;
+  for (const FamilySpec& spec : Families()) {
+    if (spec.capacity_measure != CapacityMeasure::kNone) {
+      names.push_back(std::string(spec.family_name));
+    }
+  }
+  return absl::StrJoin(names, ", ");
 }
 
 // The candidate's capacity in the family's measure, or nullopt when missing.
-std::optional<double> CapacityOf(const Candidate& c, Measure measure) {
-  if (measure == Measure::kVcDimension) {
+std::optional<double> CapacityOf(const StructureCandidate& c, CapacityMeasure measure) {
+  if (measure == CapacityMeasure::kVcDimension) {
     if (!c.capacity.vc_dimension.has_value()) return std::nullopt;
     return static_cast<double>(*c.capacity.vc_dimension);
   }
   return c.capacity.log_hypothesis_count;
 }
 
-std::vector<double> Weights(const SelectRequest& request) {
-  const std::size_t k = request.candidates.size();
+std::vector<double> Weights(const SelectRequest& request, DeltaSpread spread) {
+  const std::size_t k = request.structure.size();
   std::vector<double> w(k);
   for (std::size_t i = 0; i < k; ++i) {
-    switch (request.spread) {
+    switch (spread) {
       case DeltaSpread::kUniform:
         w[i] = 1.0 / static_cast<double>(k);
         break;
@@ -69,48 +64,41 @@ std::vector<double> Weights(const SelectRequest& request) {
   return w;
 }
 
-void CheckCandidates(const SelectRequest& request, std::optional<Measure> measure,
+// Checks every candidate and resolves its capacity in `structure` (a copy of
+// the request's). `measure` is kNone when the family is unknown (then the
+// capacities are resolved but not judged against it).
+void CheckCandidates(std::vector<StructureCandidate>* structure, CapacityMeasure measure,
                      std::vector<FieldViolation>* v) {
-  if (request.candidates.empty()) {
-    v->push_back({"candidates", "give at least one candidate class"});
+  if (structure->empty()) {
+    v->push_back({"structure", "give at least one candidate class"});
     return;
   }
   std::set<std::string> ids;
   std::optional<double> previous;  // capacity of the previous well-formed candidate
-  for (std::size_t i = 0; i < request.candidates.size(); ++i) {
-    const Candidate& c = request.candidates[i];
-    const std::string prefix = absl::StrCat("candidates[", i, "]");
+  for (std::size_t i = 0; i < structure->size(); ++i) {
+    StructureCandidate& c = (*structure)[i];
+    const std::string prefix = absl::StrCat("structure[", i, "]");
     if (c.id.empty()) {
       v->push_back({prefix + ".id", "give each candidate a non-empty id"});
     } else if (!ids.insert(c.id).second) {
       v->push_back({prefix + ".id", absl::StrCat("id \"", c.id, "\" is used twice")});
     }
-    if (c.training.sample_count == 0) {
-      v->push_back({prefix + ".training.sample_count", "must be at least 1"});
-    } else if (c.training.sample_count > kMaxSampleCount) {
-      v->push_back({prefix + ".training.sample_count",
-                    absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
-                                 c.training.sample_count)});
-    }
-    if (c.training.error_count > c.training.sample_count) {
-      v->push_back({prefix + ".training.error_count",
-                    absl::StrCat(c.training.error_count, " errors exceed the ",
-                                 c.training.sample_count, " samples they were counted on")});
-    }
-    if (!measure.has_value()) continue;  // the family is reported instead
-    const std::optional<double> cap = CapacityOf(c, *measure);
-    const char* name = *measure == Measure::kVcDimension ? "vc_dimension"
-                                                         : "log_hypothesis_count";
+    const std::string capacity_path = prefix + ".capacity";
+    const bool resolved = ResolveCapacity(&c.capacity, capacity_path, v);
+    CheckSampleCounts(prefix, c, v);
+    if (!resolved || measure == CapacityMeasure::kNone) continue;
+    const std::optional<double> cap = CapacityOf(c, measure);
+    const std::string name(CapacityMeasureName(measure));
     if (!cap.has_value()) {
-      v->push_back({prefix + ".capacity",
-                    absl::StrCat("the chosen family needs capacity.", name)});
-      continue;
-    }
-    if (!CheckNonNegativeFinite(absl::StrCat(prefix, ".capacity.", name), *cap, v)) {
+      v->push_back({capacity_path, absl::StrCat("the chosen family needs capacity.", name,
+                                                measure == CapacityMeasure::kVcDimension
+                                                    ? " (or a model of finite VC dimension)"
+                                                    : " or hypothesis_count (or a finite "
+                                                      "class model)")});
       continue;
     }
     if (previous.has_value() && *cap < *previous) {
-      v->push_back({absl::StrCat(prefix, ".capacity.", name),
+      v->push_back({absl::StrCat(capacity_path, ".", name),
                     absl::StrFormat("capacity %g is smaller than the previous candidate's "
                                     "%g: a structure must be nested, so list the "
                                     "candidates by non-decreasing capacity",
@@ -120,21 +108,21 @@ void CheckCandidates(const SelectRequest& request, std::optional<Measure> measur
   }
 }
 
-void CheckWeights(const SelectRequest& request, std::vector<FieldViolation>* v) {
-  if (request.spread != DeltaSpread::kCallerWeights) {
+void CheckWeights(const SelectRequest& request, DeltaSpread spread,
+                  std::vector<FieldViolation>* v) {
+  if (spread != DeltaSpread::kCallerWeights) {
     if (!request.weights.empty()) {
       v->push_back({"weights", "weights go with the caller-weights spread"});
     }
-    if (request.spread != DeltaSpread::kUniform &&
-        request.spread != DeltaSpread::kInverseSquare) {
-      v->push_back({"spread", "unknown delta spread"});
+    if (spread != DeltaSpread::kUniform && spread != DeltaSpread::kInverseSquare) {
+      v->push_back({"delta_spread", "unknown delta spread"});
     }
     return;
   }
-  if (request.weights.size() != request.candidates.size()) {
-    v->push_back({"weights", absl::StrCat("give one weight per candidate: ",
-                                          request.candidates.size(), " candidates, ",
-                                          request.weights.size(), " weights")});
+  if (request.weights.size() != request.structure.size()) {
+    v->push_back(
+        {"weights", absl::StrCat("give one weight per candidate: ", request.structure.size(),
+                                 " candidates, ", request.weights.size(), " weights")});
     return;
   }
   double sum = 0.0;
@@ -151,9 +139,9 @@ void CheckWeights(const SelectRequest& request, std::vector<FieldViolation>* v) 
   }
 }
 
-std::string DeltaRule(const SelectRequest& request, double total) {
-  const std::size_t k = request.candidates.size();
-  switch (request.spread) {
+std::string DeltaRule(const SelectRequest& request, DeltaSpread spread, double total) {
+  const std::size_t k = request.structure.size();
+  switch (spread) {
     case DeltaSpread::kUniform:
       return absl::StrFormat(
           "union bound over %d candidates: each bound at delta/%d = %g; the chosen "
@@ -175,46 +163,78 @@ std::string DeltaRule(const SelectRequest& request, double total) {
       total);
 }
 
+// A request after its checks: the structure with resolved capacities, the
+// family, its measure and the spread.
+struct Checked {
+  std::vector<StructureCandidate> structure;
+  const FamilySpec* spec = nullptr;
+  DeltaSpread spread = kDefaultDeltaSpread;
+  double fragility_tolerance = kDefaultFragilityTolerance;
+};
+
+// Appends every violation of `request` to `v`; the result is usable only
+// when it appended none.
+Checked Check(const SelectRequest& request, std::vector<FieldViolation>* v) {
+  Checked out;
+  out.structure = request.structure;
+  out.spread = request.delta_spread.value_or(kDefaultDeltaSpread);
+  out.fragility_tolerance = request.fragility_tolerance.value_or(kDefaultFragilityTolerance);
+  CheckProbabilityOpen("failure_probability", request.failure_probability, v);
+  CheckNonNegativeFinite("fragility_tolerance", out.fragility_tolerance, v);
+  out.spec = request.family.has_value() ? FindFamily(*request.family) : nullptr;
+  CapacityMeasure measure = CapacityMeasure::kNone;
+  if (out.spec == nullptr) {
+    v->push_back({"family", absl::StrCat("required: a training-set family (", TrainingFamilies(),
+                                         "); unset, or a value this server does not know")});
+  } else if (out.spec->capacity_measure == CapacityMeasure::kNone) {
+    v->push_back({"family", absl::StrCat(out.spec->family_name,
+                                         " is not a training-set family; selection along a "
+                                         "structure needs a bound uniform over each class (",
+                                         TrainingFamilies(), ")")});
+  } else {
+    measure = out.spec->capacity_measure;
+  }
+  CheckCandidates(&out.structure, measure, v);
+  CheckWeights(request, out.spread, v);
+  return out;
+}
+
 }  // namespace
+
+absl::Status ValidateSelectRequest(const SelectRequest& request) {
+  std::vector<FieldViolation> violations;
+  Check(request, &violations);
+  return InvalidFields(violations);
+}
 
 absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
                                              const StopToken& stop) {
   if (stop.StopRequested()) return stop.Status();
   std::vector<FieldViolation> violations;
-  CheckProbabilityOpen("failure_probability", request.failure_probability, &violations);
-  CheckNonNegativeFinite("fragility_tolerance", request.fragility_tolerance, &violations);
-  const FamilySpec* spec = FindFamily(request.family);
-  std::optional<Measure> measure;
-  if (spec == nullptr) {
-    violations.push_back({"family", "unknown bound family"});
-  } else {
-    measure = MeasureOf(*spec);
-    if (!measure.has_value()) {
-      violations.push_back(
-          {"family", absl::StrCat(spec->slug,
-                                  " is not a training-set family; selection along a "
-                                  "structure needs a bound uniform over each class "
-                                  "(vc-additive, vc-relative, occam-hoeffding, occam-kl)")});
-    }
-  }
-  CheckCandidates(request, measure, &violations);
-  CheckWeights(request, &violations);
+  const Checked checked = Check(request, &violations);
   if (!violations.empty()) return InvalidFields(violations);
   if (stop.StopRequested()) return stop.Status();
 
-  const std::vector<double> weights = Weights(request);
+  const FamilySpec* spec = checked.spec;
+  const CapacityMeasure measure = spec->capacity_measure;
+  const std::vector<double> weights = Weights(request, checked.spread);
   SelectResult result;
-  result.candidates.reserve(request.candidates.size());
-  for (std::size_t i = 0; i < request.candidates.size(); ++i) {
+  result.family = spec->family;
+  result.capacity_measure = std::string(CapacityMeasureName(measure));
+  result.delta_spread = checked.spread;
+  result.fragility_tolerance = checked.fragility_tolerance;
+  result.requested_failure_probability = request.failure_probability;
+  result.candidates.reserve(checked.structure.size());
+  for (std::size_t i = 0; i < checked.structure.size(); ++i) {
     if (i % kStopCheckEvery == 0 && stop.StopRequested()) return stop.Status();
-    const Candidate& c = request.candidates[i];
+    const StructureCandidate& c = checked.structure[i];
     Evidence evidence;
-    evidence.training = TrainingEvidence{c.training, c.capacity};
+    evidence.training = TrainingEvidence{c, c.capacity};
     const double delta_i = request.failure_probability * weights[i];
     const Certificate cert = spec->compute(evidence, delta_i);
-    CandidateResult row;
+    CandidateBound row;
     row.id = c.id;
-    row.capacity = *CapacityOf(c, *measure);
+    row.capacity = *CapacityOf(c, measure);
     row.empirical_risk = cert.empirical_risk;
     row.penalty = cert.penalty;
     row.risk_upper_bound = cert.risk_upper_bound;
@@ -223,6 +243,7 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
     row.delta_weight = weights[i];
     row.exact = cert.exact;
     row.notes = cert.notes;
+    row.notes.insert(row.notes.end(), c.capacity.notes.begin(), c.capacity.notes.end());
     result.spent_failure_probability += delta_i;
     result.candidates.push_back(std::move(row));
   }
@@ -232,25 +253,26 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
       result.chosen_index = i;
     }
   }
+  result.chosen_id = rows[result.chosen_index].id;
   const double best = rows[result.chosen_index].risk_upper_bound;
   for (std::size_t i = 0; i < rows.size(); ++i) {
     if (i != result.chosen_index &&
-        rows[i].risk_upper_bound - best <= request.fragility_tolerance) {
-      result.within_tolerance.push_back(i);
+        rows[i].risk_upper_bound - best <= checked.fragility_tolerance) {
+      result.within_tolerance_ids.push_back(rows[i].id);
     }
   }
   if (stop.StopRequested()) return stop.Status();
-  result.fragile = !result.within_tolerance.empty();
-  result.delta_rule = DeltaRule(request, result.spent_failure_probability);
+  result.fragile = !result.within_tolerance_ids.empty();
+  result.delta_rule = DeltaRule(request, checked.spread, result.spent_failure_probability);
   if (rows[result.chosen_index].vacuous) {
     result.notes.emplace_back(
         "every candidate's bound is vacuous (>= 1): the structure says nothing about "
         "the true error; the choice is arbitrary");
   } else if (result.fragile) {
-    result.notes.push_back(absl::StrFormat(
-        "%d other candidate(s) are within %g of the chosen bound: the data do not "
-        "clearly separate them",
-        result.within_tolerance.size(), request.fragility_tolerance));
+    result.notes.push_back(
+        absl::StrFormat("%d other candidate(s) are within %g of the chosen bound: the data do not "
+                        "clearly separate them",
+                        result.within_tolerance_ids.size(), checked.fragility_tolerance));
   }
   return result;
 }

@@ -17,6 +17,7 @@
 #define RISKBOUND_SERVICE_CORE_SELECT_H_
 
 #include <cstddef>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -26,18 +27,20 @@
 
 namespace riskbound::core {
 
-// One class of the structure and the model fitted in it.
-struct Candidate {
+// One class of the structure and the model fitted in it. API:
+// StructureCandidate: its training counts (error_count, sample_count), id and
+// capacity.
+struct StructureCandidate : SampleCounts {
   // Caller's name for the candidate; non-empty and unique in the request.
   std::string id;
-  // Errors of the fitted model on the training sample.
-  SampleCounts training;
   // Capacity of the class: vc_dimension for the VC families,
-  // log_hypothesis_count for the finite-class (Occam) families.
+  // log_hypothesis_count (or hypothesis_count) for the finite-class (Occam)
+  // families, or a model description (resolved with ResolveCapacity).
   ClassCapacity capacity;
 };
 
-// How the failure probability delta is spread over the candidates.
+// How the failure probability delta is spread over the candidates. API:
+// DeltaSpread.
 enum class DeltaSpread {
   // w_k = 1/K for K candidates.
   kUniform = 1,
@@ -49,76 +52,107 @@ enum class DeltaSpread {
   kCallerWeights = 3,
 };
 
+// The spread used when the request leaves it unset.
+inline constexpr DeltaSpread kDefaultDeltaSpread = DeltaSpread::kInverseSquare;
+// The fragility tolerance used when the request leaves it unset.
+inline constexpr double kDefaultFragilityTolerance = 0.01;
+
+// API: SelectStructureRequest; every field path SelectStructure reports is
+// its API path ("structure[3].capacity.vc_dimension", "delta_spread").
 struct SelectRequest {
   // The structure, ordered by growing (non-decreasing) capacity.
-  std::vector<Candidate> candidates;
-  // A training-set family: kVcAdditive, kVcRelative, kOccamHoeffding, kOccamKl
-  // (any registered family that works on training evidence alone).
-  Family family = Family::kVcAdditive;
+  std::vector<StructureCandidate> structure;
+  // A training-set family: kVcAdditive, kVcRelative, kOccamHoeffding,
+  // kOccamKl (any registered family with a capacity measure). Required:
+  // nullopt (unset, or a value this server does not know) is refused.
+  std::optional<Family> family;
   // Failure probability of the selected bound, in (0, 1).
   double failure_probability = 0.05;
-  DeltaSpread spread = DeltaSpread::kInverseSquare;
+  // nullopt: kDefaultDeltaSpread.
+  std::optional<DeltaSpread> delta_spread;
   // kCallerWeights only: one weight per candidate, each in (0, 1], sum <= 1.
   std::vector<double> weights;
   // Absolute distance on the bound within which another candidate counts as
-  // a near tie (the choice is then "fragile"). Finite, >= 0.
-  double fragility_tolerance = 0.01;
+  // a near tie (the choice is then "fragile"). Finite, >= 0. nullopt:
+  // kDefaultFragilityTolerance.
+  std::optional<double> fragility_tolerance;
 };
 
-struct CandidateResult {
+// One candidate's bound. API: CandidateBound.
+struct CandidateBound {
   std::string id;
   // The capacity the family used (h, or ln |H|).
   double capacity = 0.0;
   double empirical_risk = 0.0;
-  // upper_bound - empirical_risk.
+  // risk_upper_bound - empirical_risk.
   double penalty = 0.0;
-  // The candidate's bound at delta (below), clipped to [0, 1].
+  // The candidate's bound at failure_probability (below), clipped to [0, 1].
   double risk_upper_bound = 1.0;
-  // delta * weight: the failure probability spent on this candidate.
+  // The request's failure probability * delta_weight: spent on this candidate.
   double failure_probability = 0.0;
   // True when the bound says nothing (>= 1).
   bool vacuous = true;
-  // The weight w_k (delta = request delta * weight).
+  // The weight w_k.
   double delta_weight = 0.0;
   // False when a conservative relaxation stood in for an exact computation.
   bool exact = true;
-  // The family's remarks on this candidate.
+  // The family's remarks on this candidate, then where its capacity came
+  // from (ClassCapacity::notes).
   std::vector<std::string> notes;
 };
 
+// API: SelectStructureResponse (cautions and engine version are the
+// caller's).
 struct SelectResult {
   // One row per candidate, in request order.
-  std::vector<CandidateResult> candidates;
-  // Index of the smallest bound; ties go to the earlier (smaller-capacity)
-  // candidate.
+  std::vector<CandidateBound> candidates;
+  // The candidate with the smallest bound; ties go to the earlier
+  // (smaller-capacity) candidate.
+  std::string chosen_id;
   std::size_t chosen_index = 0;
   // True when some other candidate's bound is within fragility_tolerance of
   // the chosen one: the data do not clearly separate them.
   bool fragile = false;
-  // Indices (ascending, chosen excluded) of the candidates whose bound is
-  // within fragility_tolerance of the chosen bound.
-  std::vector<std::size_t> within_tolerance;
+  // Ids of those candidates, in request order (chosen excluded).
+  std::vector<std::string> within_tolerance_ids;
+  // The tolerance used.
+  double fragility_tolerance = kDefaultFragilityTolerance;
   // How delta was spread, in plain words.
   std::string delta_rule;
-  // sum_k delta_k: the chosen bound holds with probability >= 1 - total_delta.
+  // sum_k delta_k: the chosen bound holds with probability
+  // >= 1 - spent_failure_probability.
   double spent_failure_probability = 0.0;
-  // Plain-words remarks (every bound vacuous, ...).
+  // The family used.
+  Family family = Family::kVcAdditive;
+  // What `capacity` means: "vc_dimension" or "log_hypothesis_count".
+  std::string capacity_measure;
+  // Plain-words remarks (every bound vacuous, near ties, ...).
   std::vector<std::string> notes;
+  // The spread used.
+  DeltaSpread delta_spread = kDefaultDeltaSpread;
+  // The request's failure_probability.
+  double requested_failure_probability = 0.0;
 };
+
+// ValidateSelectRequest
+// Returns OK, or INVALID_ARGUMENT naming every bad field of `request` at once
+// (the checks of SelectStructure, without computing any bound).
+absl::Status ValidateSelectRequest(const SelectRequest& request);
 
 // SelectStructure
 // Computes every candidate's bound with the registered family (so a
 // candidate's bound equals a Certify call with that family at delta_k) and
 // selects the smallest.
-// Errors: INVALID_ARGUMENT naming every bad field by path: candidates (empty),
-// candidates[i].id (empty or duplicated), candidates[i].training.sample_count
-// (0 or > 2^53), candidates[i].training.error_count (> sample_count),
-// candidates[i].capacity (missing the measure the family uses, or not finite
-// and >= 0), candidates[i].capacity.vc_dimension /
-// .log_hypothesis_count (smaller than the previous candidate's: a structure
-// must be nested), family (unknown, or not a training-set family), weights /
-// weights[i] (wrong size, outside (0, 1], sum above 1, or given without
-// kCallerWeights), failure_probability (outside (0, 1)), fragility_tolerance.
+// Errors: INVALID_ARGUMENT naming every bad field at once by its API path:
+// structure (empty), structure[i].id (empty or duplicated),
+// structure[i].capacity (missing, more than one measure, not the measure the
+// family uses), structure[i].capacity.<measure> (bad, or smaller than the
+// previous candidate's: a structure must be nested), structure[i].capacity.model...
+// (a model description the catalogue refuses), structure[i].sample_count
+// (0 or > 2^53), structure[i].error_count (> sample_count), family (unset,
+// unknown, or not a training-set family), weights / weights[i] (wrong size,
+// outside (0, 1], sum above 1, or given without kCallerWeights),
+// failure_probability (outside (0, 1)), fragility_tolerance (not finite, < 0).
 // Never returns NaN or Inf.
 // Cost: linear in the number of candidates (a bounded amount per candidate);
 // `stop` is checked every few candidates, and a stopped call returns

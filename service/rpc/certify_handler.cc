@@ -7,11 +7,13 @@ namespace riskbound::rpc {
 
 absl::StatusOr<v1::CertifyResponse> HandleCertify(const v1::CertifyRequest& request,
                                                   const core::StopToken& stop) {
-  absl::StatusOr<core::CertifyRequest> core_request = CertifyRequestFromProto(request);
-  if (!core_request.ok()) return core_request.status();
-  absl::StatusOr<core::CertifyResult> result = core::Certify(*core_request, stop);
+  const Converted<core::CertifyRequest> in = CertifyRequestFromProto(request);
+  if (!in.refusals.empty()) {
+    return WithRefusals(in.refusals, core::ValidateCertifyRequest(in.request));
+  }
+  absl::StatusOr<core::CertifyResult> result = core::Certify(in.request, stop);
   if (!result.ok()) return result.status();
-  return CertifyResponseToProto(*result, core_request->failure_probability);
+  return CertifyResponseToProto(*result);
 }
 
 }  // namespace riskbound::rpc

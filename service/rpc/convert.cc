@@ -1,62 +1,47 @@
 #include "service/rpc/convert.h"
 
-#include <cmath>
 #include <string>
 #include <vector>
 
 #include "service/core/families.h"
-#include "service/core/field_violation.h"
 #include "service/core/limits.h"
 #include "service/rpc/capacity_convert.h"
+#include "service/rpc/enums.h"
 
 namespace riskbound::rpc {
-namespace {
 
-using core::FieldViolation;
-
-core::SampleCounts Counts(std::uint64_t errors, std::uint64_t samples) {
-  return core::SampleCounts{errors, samples};
-}
-
-}  // namespace
-
-void CapacityFromProto(const v1::Capacity& in, const std::string& prefix,
-                       core::ClassCapacity* out, std::vector<FieldViolation>* violations) {
+void CapacityFromProto(const v1::Capacity& in, const std::string& path, core::ClassCapacity* out,
+                       Refusals* refusals) {
   switch (in.measure_case()) {
     case v1::Capacity::kVcDimension:
       out->vc_dimension = in.vc_dimension();
       break;
     case v1::Capacity::kHypothesisCount:
-      if (in.hypothesis_count() == 0) {
-        violations->push_back({prefix + ".hypothesis_count", "must be at least 1"});
-      } else {
-        out->log_hypothesis_count = std::log(static_cast<double>(in.hypothesis_count()));
-      }
+      out->hypothesis_count = in.hypothesis_count();
       break;
     case v1::Capacity::kLogHypothesisCount:
       out->log_hypothesis_count = in.log_hypothesis_count();
       break;
     case v1::Capacity::kModel:
-      // Through the capacity catalogue; violations named "<prefix>.model...".
-      ModelCapacityFromProto(in.model(), prefix + ".model", out, violations);
+      out->model = ModelDescriptionFromProto(in.model(), path + ".model", refusals);
       break;
     case v1::Capacity::MEASURE_NOT_SET:
-      break;  // core::ValidateEvidence names the missing capacity.
+      break;  // the core names the missing capacity
   }
 }
 
 void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::Evidence* out,
-                       std::vector<FieldViolation>* violations) {
+                       Refusals* refusals) {
   if (e.has_holdout()) {
-    out->holdout = Counts(e.holdout().error_count(), e.holdout().sample_count());
+    out->holdout = core::SampleCounts{e.holdout().error_count(), e.holdout().sample_count()};
   }
   if (e.has_training()) {
     core::TrainingEvidence t;
     t.error_count = e.training().error_count();
     t.sample_count = e.training().sample_count();
     CapacityFromProto(e.training().capacity(), prefix + ".training.capacity", &t.capacity,
-                      violations);
-    out->training = t;
+                      refusals);
+    out->training = std::move(t);
   }
   if (e.has_baseline_error_rate()) out->baseline_error_rate = e.baseline_error_rate();
   if (e.has_bounded_loss()) {
@@ -65,6 +50,7 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
     c.mean_loss = b.mean_loss();
     c.sample_variance = b.sample_variance();
     c.sample_count = b.sample_count();
+    // Unset: the core's default range.
     if (b.has_loss_min()) c.loss_min = b.loss_min();
     if (b.has_loss_max()) c.loss_max = b.loss_max();
     out->bounded_loss = c;
@@ -75,18 +61,7 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
     c.kl_divergence = p.kl_divergence();
     c.gibbs_empirical_risk = p.gibbs_empirical_risk();
     c.sample_count = p.sample_count();
-    switch (p.target()) {
-      case v1::PAC_BAYES_TARGET_GIBBS:
-        c.target = core::PacBayesTarget::kGibbs;
-        break;
-      case v1::PAC_BAYES_TARGET_MAJORITY_VOTE:
-        c.target = core::PacBayesTarget::kMajorityVote;
-        break;
-      default:
-        violations->push_back({prefix + ".pac_bayes.target",
-                               "say which classifier is bounded: PAC_BAYES_TARGET_GIBBS or "
-                               "PAC_BAYES_TARGET_MAJORITY_VOTE"});
-    }
+    c.target = PacBayesTargetFromProto(p.target());
     out->pac_bayes = c;
   }
   if (e.has_rademacher()) {
@@ -109,49 +84,42 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
   }
 }
 
-absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
-  std::vector<FieldViolation> violations;
-  core::CertifyRequest out;
-  // Sizes first: an oversized list gets one violation and its entries are
-  // never looked at (core/limits.h).
-  const bool families_fit =
-      core::CheckListSize("listed.families", in.listed().families_size(),
-                          core::kMaxListedFamilies, &violations);
-  const bool weights_fit =
-      core::CheckListSize("listed.delta_weights", in.listed().delta_weights_size(),
-                          core::kMaxListedDeltaWeights, &violations);
-  EvidenceFromProto(in.evidence(), "evidence", &out.evidence, &violations);
-  out.failure_probability = in.failure_probability();
+Converted<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
+  Converted<core::CertifyRequest> out;
+  core::CertifyRequest& r = out.request;
+  EvidenceFromProto(in.evidence(), "evidence", &r.evidence, &out.refusals);
+  r.failure_probability = in.failure_probability();
   switch (in.family_choice_case()) {
     case v1::CertifyRequest::kListed: {
-      out.choice = core::FamilyChoice::kListed;
+      r.family_choice = core::FamilyChoice::kListed;
+      // Sizes first: an oversized list is refused and no entry is copied;
+      // the other list cannot be judged without it.
+      const bool families_fit = out.refusals.RefuseList(
+          "listed.families", in.listed().families_size(), core::kMaxListedFamilies, "listed");
+      const bool weights_fit =
+          out.refusals.RefuseList("listed.delta_weights", in.listed().delta_weights_size(),
+                                  core::kMaxListedDeltaWeights, "listed");
       if (families_fit && weights_fit) {
-        for (int f : in.listed().families()) {
-          out.families.push_back(static_cast<core::Family>(f));
-        }
-        out.delta_weights.assign(in.listed().delta_weights().begin(),
-                                 in.listed().delta_weights().end());
+        for (int f : in.listed().families()) r.listed.families.push_back(FamilyFromProto(f));
+        r.listed.delta_weights.assign(in.listed().delta_weights().begin(),
+                                      in.listed().delta_weights().end());
       }
       break;
     }
     case v1::CertifyRequest::kAllApplicable:
-      out.choice = core::FamilyChoice::kAllApplicable;
+      r.family_choice = core::FamilyChoice::kAllApplicable;
       break;
     case v1::CertifyRequest::FAMILY_CHOICE_NOT_SET:
-      out.choice = core::FamilyChoice::kRecommended;
+      r.family_choice = core::FamilyChoice::kRecommended;
       break;
   }
-  core::CheckProbabilityOpen("failure_probability", out.failure_probability, &violations);
-  core::ValidateEvidence(out.evidence, &violations).IgnoreError();
-  DropRedundantCapacityViolations(&violations);
-  if (!violations.empty()) return core::InvalidFields(violations);
   return out;
 }
 
 void CertificateToProto(const core::Certificate& in, v1::Certificate* out) {
-  out->set_family(static_cast<v1::BoundFamily>(in.family));
+  out->set_family(FamilyToProto(in.family));
   if (const core::FamilySpec* spec = core::FindFamily(in.family)) {
-    out->set_family_name(std::string(spec->slug));
+    out->set_family_name(std::string(spec->family_name));
     out->set_source(std::string(spec->source));
     out->set_assumptions(std::string(spec->assumptions));
   }
@@ -169,8 +137,7 @@ void CertificateToProto(const core::Certificate& in, v1::Certificate* out) {
   }
 }
 
-v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result,
-                                           double requested_delta) {
+v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result) {
   v1::CertifyResponse out;
   for (const core::Certificate& c : result.certificates) {
     CertificateToProto(c, out.add_certificates());
@@ -179,7 +146,7 @@ v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result,
     CertificateToProto(result.certificates[result.tightest_index], out.mutable_tightest());
   }
   v1::DeltaAccounting* ledger = out.mutable_delta_accounting();
-  ledger->set_requested_failure_probability(requested_delta);
+  ledger->set_requested_failure_probability(result.requested_failure_probability);
   ledger->set_spent_failure_probability(result.spent_failure_probability);
   ledger->set_family_count(static_cast<std::uint32_t>(result.certificates.size()));
   ledger->set_rule(result.rule);

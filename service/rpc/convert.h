@@ -1,56 +1,50 @@
-// Conversion between the riskbound.v1 messages and the core structs, with the
-// request checks that only the wire shape can fail (a zero hypothesis count,
-// a missing capacity oneof). Semantic checks live in the core
-// (core::ValidateEvidence, core::Certify) and run here too, so one call
-// returns every violation of a request at once.
+// Conversion between the riskbound.v1 messages and the core structs, both
+// ways: a total, mechanical copy of every field (the core's structs carry the
+// proto's field names, so a field path the core reports is its wire path),
+// enum values through the tables of enums.h. The only checks here are the
+// size caps of refusals.h; everything else is the core's to check and decide
+// (core::Certify, core::ValidateEvidence, core::ResolveCapacity, ...).
 #ifndef RISKBOUND_SERVICE_RPC_CONVERT_H_
 #define RISKBOUND_SERVICE_RPC_CONVERT_H_
 
 #include <string>
-#include <vector>
 
-#include "absl/status/statusor.h"
 #include "riskbound/v1/certify.pb.h"
 #include "riskbound/v1/common.pb.h"
 #include "service/core/certify.h"
-#include "service/core/field_violation.h"
+#include "service/rpc/refusals.h"
 
 namespace riskbound::rpc {
 
 // CapacityFromProto
-// Fills `out` from the capacity oneof; appends violations named
-// "<prefix>.<field>" (e.g. prefix "evidence.training.capacity"). A missing
-// measure is left for the core's validation to name. A model description goes
-// through the capacity catalogue (ModelCapacityFromProto, capacity_convert.h):
-// a finite VC dimension or ln |H| with a provenance note in out->notes, or a
-// violation named "<prefix>.model..." (infinite VC dimension, a bound beyond
-// 2^64, or a bad model field such as "<prefix>.model.layer_widths[1]").
-void CapacityFromProto(const v1::Capacity& in, const std::string& prefix,
-                       core::ClassCapacity* out, std::vector<core::FieldViolation>* violations);
+// Copies the capacity oneof (nothing set when it is unset) into `out`; a
+// model description through ModelDescriptionFromProto (capacity_convert.h)
+// at "<path>.model". `path` is the capacity's API path (e.g.
+// "evidence.training.capacity").
+void CapacityFromProto(const v1::Capacity& in, const std::string& path, core::ClassCapacity* out,
+                       Refusals* refusals);
 
 // EvidenceFromProto
-// Fills `out` from the evidence message; appends the violations only the
-// wire shape can show, named "<prefix>.<field>" (e.g. prefix "evidence" or
-// "candidate.evidence"). The semantic checks are core::ValidateEvidence's.
+// Copies every kind of evidence present; `prefix` is the evidence's API path
+// ("evidence", "candidate.evidence").
 void EvidenceFromProto(const v1::Evidence& in, const std::string& prefix, core::Evidence* out,
-                       std::vector<core::FieldViolation>* violations);
+                       Refusals* refusals);
 
 // CertifyRequestFromProto
-// Returns the core request, or INVALID_ARGUMENT listing every bad field by its
-// path (see core/field_violation.h). Lists over their caps (core/limits.h:
-// listed.families, listed.delta_weights, a model's layer_widths) are refused
-// with one violation each before their entries are looked at. Thread-safe.
-absl::StatusOr<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in);
+// The core request. listed.families and listed.delta_weights over their caps
+// (core/limits.h) are refused, before any entry is copied, with everything
+// under "listed" left to them. Thread-safe.
+Converted<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in);
 
 // CertificateToProto
-// Fills the proto certificate, with the family's name, source and assumptions.
+// Copies a certificate, with the family's name, source and assumptions from
+// the core's registry (families.h).
 void CertificateToProto(const core::Certificate& in, v1::Certificate* out);
 
 // CertifyResponseToProto
-// Returns the response for a core result: certificates, the tightest, the
-// delta accounting, the cautions and the engine version.
-v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result,
-                                           double requested_delta);
+// Copies a core result: certificates, the tightest, the accounting, the
+// cautions (core::Cautions) and the engine version.
+v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result);
 
 }  // namespace riskbound::rpc
 

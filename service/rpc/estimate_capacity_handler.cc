@@ -1,6 +1,5 @@
 // RiskBound.EstimateCapacity: convert -> core::EstimateCapacity -> convert.
-// The core names bad fields "model.<field>", which is their path in the
-// request, so its errors pass through unchanged.
+// The core names bad fields "model.<field>", their path in the request.
 #include "service/core/capacity.h"
 #include "service/rpc/capacity_convert.h"
 #include "service/rpc/handlers.h"
@@ -9,9 +8,11 @@ namespace riskbound::rpc {
 
 absl::StatusOr<v1::EstimateCapacityResponse> HandleEstimateCapacity(
     const v1::EstimateCapacityRequest& request, const core::StopToken& stop) {
-  absl::StatusOr<core::ModelDescription> model = EstimateCapacityRequestFromProto(request);
-  if (!model.ok()) return model.status();
-  absl::StatusOr<core::CapacityEstimate> estimate = core::EstimateCapacity(*model, stop);
+  const Converted<core::ModelDescription> in = EstimateCapacityRequestFromProto(request);
+  // An oversized model is refused as a whole: nothing else of it is judged.
+  if (!in.refusals.empty()) return WithRefusals(in.refusals, absl::OkStatus());
+  absl::StatusOr<core::CapacityEstimate> estimate =
+      core::EstimateCapacity(in.request, stop, "model");
   if (!estimate.ok()) return estimate.status();
   return EstimateCapacityResponseToProto(*estimate);
 }

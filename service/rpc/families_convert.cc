@@ -8,11 +8,11 @@ namespace riskbound::rpc {
 
 void FamilyDescriptionToProto(const core::FamilySpec& spec, v1::FamilyDescription* out) {
   out->set_family(FamilyToProto(spec.family));
-  out->set_family_name(std::string(spec.slug));
+  out->set_family_name(std::string(spec.family_name));
   out->set_title(std::string(spec.title));
   out->set_source(std::string(spec.source));
   out->set_assumptions(std::string(spec.assumptions));
-  out->set_evidence_needed(std::string(spec.needs));
+  out->set_evidence_needed(std::string(spec.evidence_needed));
 }
 
 v1::ListFamiliesResponse ListFamiliesResponseToProto(absl::Span<const core::FamilySpec> families) {

@@ -1,6 +1,7 @@
 // Conversion between the riskbound.v1 gate messages (gate.proto) and the core
-// gate (service/core/gate.h), the canonical request digest, and the audit
-// record. The decision itself is core::DecideGate; nothing here decides.
+// gate (service/core/gate.h), a mechanical copy both ways; the canonical
+// request digest and the audit record. The decision, its checks, defaults
+// and cautions are core::DecideGate's; nothing here decides.
 #ifndef RISKBOUND_SERVICE_RPC_GATE_CONVERT_H_
 #define RISKBOUND_SERVICE_RPC_GATE_CONVERT_H_
 
@@ -13,6 +14,7 @@
 #include "absl/time/time.h"
 #include "riskbound/v1/gate.pb.h"
 #include "service/core/gate.h"
+#include "service/rpc/refusals.h"
 
 namespace riskbound::rpc {
 
@@ -24,16 +26,14 @@ struct GateInputs {
 };
 
 // GateInputsFromProto
-// Returns the core inputs, or INVALID_ARGUMENT listing every bad field the
-// wire shape alone can show (e.g. policy.allowed_families[i] out of the enum,
-// a missing comparison oneof is left to the core), together with every
-// violation core::DecideGate's validation finds, so one call names them all.
-// Paths: policy.*, candidate.*, champion.*. Sizes are checked first
-// (core/limits.h): more than kMaxAllowedFamilies allowed families is one
-// violation "policy.allowed_families" and nothing else of the policy is
-// judged; candidate.id or champion.champion_id over kMaxIdBytes is named.
-// Thread-safe.
-absl::StatusOr<GateInputs> GateInputsFromProto(const v1::GateRequest& in);
+// The core inputs. Sizes are checked first (core/limits.h): more than
+// kMaxAllowedFamilies allowed families is refused at
+// "policy.allowed_families" (none copied; the core's findings on the list,
+// and on whether the policy's families can use the evidence, are left out);
+// candidate.id or champion.champion_id over kMaxIdBytes is refused and copied
+// cut to the cap; a model's layer_widths over its cap as in
+// ModelDescriptionFromProto. Thread-safe.
+Converted<GateInputs> GateInputsFromProto(const v1::GateRequest& in);
 
 // CanonicalGateRequestBytes
 // Returns the canonical byte form of `request`: a copy with unknown fields
@@ -51,15 +51,10 @@ std::string Sha256Hex(absl::string_view bytes);
 // ("2026-03-01T12:00:00Z", "2026-03-01T12:00:00.25Z"). Thread-safe.
 std::string FormatAuditTimestamp(absl::Time t);
 
-// GateCautions
-// The cautions every gate answer carries: core::Cautions() and the gate's
-// own (policy fixed in advance, hold-out set used once).
-const std::vector<std::string>& GateCautions();
-
 // GateResponseToProto
-// Returns the response for `decision` on `request`: verdict, reasons, bounds,
-// ledger, and the audit record (engine version, digest of the canonical
-// request, families used, failure probability spent, `now` as the timestamp,
+// Copies `decision` on `request`: verdict, reasons, bounds, ledger, and the
+// audit record (engine version, digest of the canonical request, families
+// used, failure probability spent, `now` as the timestamp, the core's
 // cautions). `now` is a parameter so tests can fix it. Thread-safe.
 v1::GateResponse GateResponseToProto(const core::GateDecision& decision,
                                      const v1::GateRequest& request, absl::Time now);

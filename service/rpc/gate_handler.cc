@@ -9,10 +9,13 @@ namespace riskbound::rpc {
 
 absl::StatusOr<v1::GateResponse> HandleGate(const v1::GateRequest& request,
                                             const core::StopToken& stop) {
-  absl::StatusOr<GateInputs> inputs = GateInputsFromProto(request);
-  if (!inputs.ok()) return inputs.status();
+  const Converted<GateInputs> in = GateInputsFromProto(request);
+  const GateInputs& g = in.request;
+  if (!in.refusals.empty()) {
+    return WithRefusals(in.refusals, core::ValidateGate(g.policy, g.candidate, g.champion));
+  }
   absl::StatusOr<core::GateDecision> decision =
-      core::DecideGate(inputs->policy, inputs->candidate, inputs->champion, stop);
+      core::DecideGate(g.policy, g.candidate, g.champion, stop);
   if (!decision.ok()) return decision.status();
   return GateResponseToProto(*decision, request, absl::Now());
 }

@@ -7,11 +7,13 @@ namespace riskbound::rpc {
 
 absl::StatusOr<v1::SelectStructureResponse> HandleSelectStructure(
     const v1::SelectStructureRequest& request, const core::StopToken& stop) {
-  absl::StatusOr<core::SelectRequest> core_request = SelectRequestFromProto(request);
-  if (!core_request.ok()) return core_request.status();
-  absl::StatusOr<core::SelectResult> result = core::SelectStructure(*core_request, stop);
-  if (!result.ok()) return MergeViolations({}, result.status(), SelectPathToWire);
-  return SelectResponseToProto(*core_request, *result);
+  const Converted<core::SelectRequest> in = SelectRequestFromProto(request);
+  if (!in.refusals.empty()) {
+    return WithRefusals(in.refusals, core::ValidateSelectRequest(in.request));
+  }
+  absl::StatusOr<core::SelectResult> result = core::SelectStructure(in.request, stop);
+  if (!result.ok()) return result.status();
+  return SelectResponseToProto(*result);
 }
 
 }  // namespace riskbound::rpc

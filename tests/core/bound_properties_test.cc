@@ -49,7 +49,7 @@ TEST(BoundPropertiesTest, RangeAndMonotonicity) {
     // This grid holds hold-out and training counts only; families that need
     // other evidence have their own tests.
     if (!spec.applies(Make(1, 10, 1, 0.0))) continue;
-    SCOPED_TRACE(std::string(spec.slug));
+    SCOPED_TRACE(std::string(spec.family_name));
     for (double rate : rates) {
       for (std::uint64_t h : caps) {
         for (double delta : deltas) {

@@ -395,11 +395,12 @@ TEST(CapacityTest, InfiniteFamiliesAreAnsweredNotRejected) {
     EXPECT_TRUE(AnyNoteHas(e, "compression"));
   }
   EXPECT_TRUE(AnyNoteHas(Ok(Model(ModelKind::kRbfKernelNoMargin)), "margin"));
-  // A margin given to the no-margin kind points to margin_linear.
+  // A margin given to the no-margin kind points to the large-margin kind.
   ModelDescription m = Model(ModelKind::kRbfKernelNoMargin);
   m.margin = 0.1;
   absl::StatusOr<CapacityEstimate> e = EstimateCapacity(m);
-  EXPECT_THAT(e, StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("margin_linear")));
+  EXPECT_THAT(e,
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("large-margin linear kind")));
 }
 
 // Bad input: INVALID_ARGUMENT naming each field by its path.
@@ -485,7 +486,8 @@ TEST(CapacityTest, MalformedArchitecturesNameTheField) {
   finite.hypothesis_count = 0;
   EXPECT_THAT(BadFields(finite), Contains("model.hypothesis_count"));
 
-  ModelDescription unknown = Model(static_cast<ModelKind>(99));
+  // Unset (the API's unspecified, or a value the server does not know).
+  ModelDescription unknown;
   EXPECT_THAT(BadFields(unknown), Contains("model.kind"));
 }
 

@@ -60,7 +60,7 @@ TEST(CertifyTest, AllApplicableSplitsDelta) {
   CertifyRequest req;
   req.evidence = Full();
   req.failure_probability = 0.06;
-  req.choice = FamilyChoice::kAllApplicable;
+  req.family_choice = FamilyChoice::kAllApplicable;
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
   // Hold-out and training evidence: the 7 hold-out, VC and Occam families apply.
@@ -80,9 +80,9 @@ TEST(CertifyTest, ListedWithWeights) {
   CertifyRequest req;
   req.evidence = HoldoutOnly(20, 1000);
   req.failure_probability = 0.05;
-  req.choice = FamilyChoice::kListed;
-  req.families = {Family::kHoldoutKlChernoff, Family::kHoldoutExactBinomial};
-  req.delta_weights = {0.2, 0.8};
+  req.family_choice = FamilyChoice::kListed;
+  req.listed.families = {Family::kHoldoutKlChernoff, Family::kHoldoutExactBinomial};
+  req.listed.delta_weights = {0.2, 0.8};
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
   EXPECT_DOUBLE_EQ(got->certificates[0].failure_probability, 0.01);
@@ -142,26 +142,26 @@ TEST(CertifyTest, TrainingWithoutCapacityOrBadCapacity) {
 TEST(CertifyTest, ListedFamilyProblems) {
   CertifyRequest req;
   req.evidence = HoldoutOnly(1, 100);
-  req.choice = FamilyChoice::kListed;
+  req.family_choice = FamilyChoice::kListed;
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      HasSubstr("listed.families")));
-  req.families = {Family::kHoldoutHoeffding, Family::kHoldoutHoeffding};
+  req.listed.families = {Family::kHoldoutHoeffding, Family::kHoldoutHoeffding};
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      HasSubstr("listed.families[1]: holdout-hoeffding is listed twice")));
-  req.families = {Family::kVcAdditive};
+  req.listed.families = {Family::kVcAdditive};
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      HasSubstr("listed.families[0]: vc-additive needs")));
-  req.families = {static_cast<Family>(0)};
+  req.listed.families = {std::nullopt};  // unset, or unknown on the wire
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      HasSubstr("unknown bound family")));
-  req.families = {Family::kHoldoutHoeffding, Family::kHoldoutKlChernoff};
-  req.delta_weights = {0.7, 0.7};
+  req.listed.families = {Family::kHoldoutHoeffding, Family::kHoldoutKlChernoff};
+  req.listed.delta_weights = {0.7, 0.7};
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      HasSubstr("sum to at most 1")));
-  req.delta_weights = {0.5};
+  req.listed.delta_weights = {0.5};
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      HasSubstr("one weight per listed family")));
-  req.delta_weights = {0.5, NAN};
+  req.listed.delta_weights = {0.5, NAN};
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      HasSubstr("listed.delta_weights[1]")));
 }
@@ -169,11 +169,11 @@ TEST(CertifyTest, ListedFamilyProblems) {
 TEST(FamiliesTest, RegistryIsConsistent) {
   for (const FamilySpec& spec : Families()) {
     EXPECT_EQ(FindFamily(spec.family), &spec);
-    EXPECT_EQ(FindFamilyBySlug(spec.slug), &spec);
+    EXPECT_EQ(FindFamilyByName(spec.family_name), &spec);
     EXPECT_FALSE(spec.source.empty());
     EXPECT_FALSE(spec.assumptions.empty());
   }
-  EXPECT_EQ(FindFamilyBySlug("no-such-family"), nullptr);
+  EXPECT_EQ(FindFamilyByName("no-such-family"), nullptr);
 }
 
 TEST(CautionsTest, MentionIidShiftAndReview) {

@@ -66,11 +66,11 @@ TEST(EvidenceKindsTest, RegistryRows) {
     EXPECT_EQ(static_cast<int>(family), value++);
     const FamilySpec* spec = FindFamily(family);
     ASSERT_NE(spec, nullptr) << slug;
-    EXPECT_EQ(spec->slug, slug);
-    EXPECT_EQ(FindFamilyBySlug(slug), spec);
+    EXPECT_EQ(spec->family_name, slug);
+    EXPECT_EQ(FindFamilyByName(slug), spec);
     EXPECT_FALSE(spec->source.empty());
     EXPECT_FALSE(spec->assumptions.empty());
-    EXPECT_FALSE(spec->needs.empty());
+    EXPECT_FALSE(spec->evidence_needed.empty());
   }
   // The empirical Bernstein row needs two samples.
   const FamilySpec* eb = FindFamily(Family::kBoundedEmpiricalBernstein);
@@ -126,7 +126,7 @@ TEST(EvidenceKindsTest, PacBayesRademacherCompressionValidation) {
               ElementsAre("evidence.pac_bayes.kl_divergence",
                           "evidence.pac_bayes.gibbs_empirical_risk"));
   Evidence bad_target = PacBayes(1, 0.1, 10);
-  bad_target.pac_bayes->target = static_cast<PacBayesTarget>(7);
+  bad_target.pac_bayes->target = std::nullopt;  // unset, or unknown on the wire
   EXPECT_THAT(Fields(ValidateEvidence(bad_target)), ElementsAre("evidence.pac_bayes.target"));
 
   EXPECT_THAT(Fields(ValidateEvidence(Rademacher(11, 10, 1.5))),
@@ -176,14 +176,14 @@ TEST(EvidenceKindsTest, RecommendedFamilyByKind) {
 TEST(EvidenceKindsTest, EmpiricalBernsteinNeedsTwoSamples) {
   CertifyRequest req;
   req.evidence = Bounded(0.3, 0.0, 1);
-  req.choice = FamilyChoice::kListed;
-  req.families = {Family::kBoundedEmpiricalBernstein};
+  req.family_choice = FamilyChoice::kListed;
+  req.listed.families = {Family::kBoundedEmpiricalBernstein};
   EXPECT_THAT(Certify(req),
               StatusIs(absl::StatusCode::kInvalidArgument,
                        HasSubstr("listed.families[0]: bounded-empirical-bernstein needs "
                                  "evidence.bounded_loss with sample_count >= 2")));
-  req.choice = FamilyChoice::kAllApplicable;
-  req.families.clear();
+  req.family_choice = FamilyChoice::kAllApplicable;
+  req.listed.families.clear();
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
   EXPECT_EQ(got->certificates.size(), 2u);  // Hoeffding and kl only
@@ -198,7 +198,7 @@ TEST(EvidenceKindsTest, MixedUnitsAreNotCompared) {
   req.evidence = Bounded(0.001, 0.0, 100000);  // a small Brier-type loss in [0, 1]
   req.evidence.holdout = SampleCounts{40, 100};
   req.evidence.baseline_error_rate = 0.3;
-  req.choice = FamilyChoice::kAllApplicable;
+  req.family_choice = FamilyChoice::kAllApplicable;
   req.failure_probability = 0.06;
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
@@ -243,7 +243,7 @@ TEST(EvidenceKindsTest, CertifyAllNewKindsExtremeInputs) {
   for (double delta : {1e-300, 0.5, 1 - 1e-12}) {
     CertifyRequest req;
     req.failure_probability = delta;
-    req.choice = FamilyChoice::kAllApplicable;
+    req.family_choice = FamilyChoice::kAllApplicable;
     req.evidence = Bounded(-5, 0, 2, -5, 5);
     req.evidence.pac_bayes = PacBayesEvidence{0, 1, 1, PacBayesTarget::kMajorityVote};
     req.evidence.rademacher = RademacherEvidence{{1, 1}, 1.0, 1};
@@ -287,7 +287,7 @@ TEST(EvidenceKindsTest, PropertyGrid) {
   int checked = 0;
   for (const FamilySpec& spec : Families()) {
     if (static_cast<int>(spec.family) < 8) continue;
-    SCOPED_TRACE(std::string(spec.slug));
+    SCOPED_TRACE(std::string(spec.family_name));
     const bool compression = spec.family == Family::kSampleCompression;
     for (double rate : rates) {
       for (double cap : caps) {

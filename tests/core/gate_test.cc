@@ -112,8 +112,8 @@ TEST(GateTest, PromoteReportsBoundsAndLedger) {
   EXPECT_FALSE(d->risk_certificate.risk_lower_bound.has_value());
   EXPECT_EQ(d->risk_certificate.family, Family::kHoldoutExactBinomial);
   ASSERT_EQ(d->delta_ledger.size(), 2u);
-  EXPECT_EQ(d->delta_ledger[0].second, 0.025);
-  EXPECT_EQ(d->delta_ledger[1].second, 0.025);
+  EXPECT_EQ(d->delta_ledger[0].failure_probability, 0.025);
+  EXPECT_EQ(d->delta_ledger[1].failure_probability, 0.025);
   EXPECT_LE(LedgerSum(*d), 0.05);
   EXPECT_FALSE(d->additional_sample_count.has_value());
   EXPECT_FALSE(d->difference_upper_bound.has_value());
@@ -435,7 +435,7 @@ TEST(GateTest, TrainingEvidenceOnly) {
   EXPECT_EQ(d->verdict, Verdict::kPromote);
   EXPECT_FALSE(d->risk_lower_bound.has_value());
   ASSERT_EQ(d->delta_ledger.size(), 1u);
-  EXPECT_EQ(d->delta_ledger[0].second, 0.05);
+  EXPECT_EQ(d->delta_ledger[0].failure_probability, 0.05);
 
   p.max_risk = 0.06;
   d = DecideGate(p, c, std::nullopt);
@@ -537,8 +537,7 @@ TEST(GateTest, InvalidPolicyNamesFields) {
   p = Policy(0.05, 0.05);
   p.max_regression = NAN;
   p.plan_pass_probability = 1.0;
-  p.allowed_families = {Family::kHoldoutHoeffding, static_cast<Family>(99),
-                        Family::kHoldoutHoeffding};
+  p.allowed_families = {Family::kHoldoutHoeffding, std::nullopt, Family::kHoldoutHoeffding};
   d = DecideGate(p, Candidate(1, 10), std::nullopt);
   EXPECT_THAT(d, StatusIs(absl::StatusCode::kInvalidArgument));
   const auto fields = Fields(d.status());

@@ -39,8 +39,8 @@ double CertifiedUpper(const Evidence& evidence, Family family, double delta) {
   CertifyRequest req;
   req.evidence = evidence;
   req.failure_probability = delta;
-  req.choice = FamilyChoice::kListed;
-  req.families = {family};
+  req.family_choice = FamilyChoice::kListed;
+  req.listed.families = {family};
   auto got = Certify(req);
   EXPECT_TRUE(got.ok()) << got.status();
   return got.ok() ? got->certificates[0].risk_upper_bound : -1.0;
@@ -300,14 +300,15 @@ TEST(PlanHoldoutTest, InvalidFieldsAreNamed) {
   req.held_sample_count = (1ULL << 53) + 1;
   auto plan = PlanHoldout(req);
   EXPECT_THAT(plan, StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("NaN")));
-  EXPECT_THAT(Fields(plan.status()),
-              ElementsAre("target_risk", "expected_risk", "failure_probability",
-                          "pass_probability", "held_sample_count"));
+  EXPECT_THAT(
+      Fields(plan.status()),
+      ElementsAre("holdout.target_risk", "holdout.expected_risk", "holdout.failure_probability",
+                  "holdout.pass_probability", "holdout.held_sample_count"));
   req = HoldoutPlanRequest{};
   req.target_risk = -0.1;
-  EXPECT_THAT(Fields(PlanHoldout(req).status()), ElementsAre("target_risk"));
+  EXPECT_THAT(Fields(PlanHoldout(req).status()), ElementsAre("holdout.target_risk"));
   req.target_risk = INFINITY;
-  EXPECT_THAT(Fields(PlanHoldout(req).status()), ElementsAre("target_risk"));
+  EXPECT_THAT(Fields(PlanHoldout(req).status()), ElementsAre("holdout.target_risk"));
 }
 
 // ---------------------------------------------------------------- training
@@ -474,8 +475,8 @@ TEST(PlanTrainingTest, HugeSampleSizesWithoutOverflow) {
   ASSERT_TRUE(plan->reachable) << plan->reason;
   const double closed = std::ceil((2e13 + std::log(20.0)) / 0.02);
   EXPECT_NEAR(static_cast<double>(plan->sample_count), closed, 2.0);  // rounding at 1e15
-  EXPECT_LE(TrainingUpper(req.family, req.capacity, 0, plan->sample_count, 0.05), 0.1);
-  EXPECT_GT(TrainingUpper(req.family, req.capacity, 0, plan->sample_count - 1, 0.05), 0.1);
+  EXPECT_LE(TrainingUpper(*req.family, req.capacity, 0, plan->sample_count, 0.05), 0.1);
+  EXPECT_GT(TrainingUpper(*req.family, req.capacity, 0, plan->sample_count - 1, 0.05), 0.1);
   EXPECT_LE(plan->bound_evaluation_count, 2 * 50 + 2);  // about 2 log2(1e15) = 100
   EXPECT_EQ(plan->realizable_sample_count,
             static_cast<std::uint64_t>(std::ceil((2e13 + std::log(20.0)) / 0.1)));
@@ -491,8 +492,8 @@ TEST(PlanTrainingTest, HugeSampleSizesWithoutOverflow) {
   ASSERT_TRUE(plan->reachable) << plan->reason;
   EXPECT_GT(plan->sample_count, 5e14);
   EXPECT_LT(plan->sample_count, 5e15);
-  EXPECT_LE(TrainingUpper(req.family, req.capacity, 0, plan->sample_count, 0.05), 0.5);
-  EXPECT_GT(TrainingUpper(req.family, req.capacity, 0, plan->sample_count - 1, 0.05), 0.5);
+  EXPECT_LE(TrainingUpper(*req.family, req.capacity, 0, plan->sample_count, 0.05), 0.5);
+  EXPECT_GT(TrainingUpper(*req.family, req.capacity, 0, plan->sample_count - 1, 0.05), 0.5);
   EXPECT_LE(plan->bound_evaluation_count, 2 * 53 + 2);
 }
 
@@ -534,19 +535,23 @@ TEST(PlanTrainingTest, InvalidFieldsAreNamed) {
   req.held_sample_count = ~0ULL;
   auto plan = PlanTraining(req);
   EXPECT_THAT(plan, StatusIs(absl::StatusCode::kInvalidArgument));
-  EXPECT_THAT(Fields(plan.status()),
-              ElementsAre("capacity", "expected_empirical_risk", "target_risk",
-                          "failure_probability", "held_sample_count"));
+  EXPECT_THAT(
+      Fields(plan.status()),
+      ElementsAre("training.capacity", "training.expected_empirical_risk", "training.target_risk",
+                  "training.failure_probability", "training.held_sample_count"));
   req = TrainingPlanRequest{};
   req.family = Family::kHoldoutExactBinomial;
   EXPECT_THAT(PlanTraining(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                           HasSubstr("not a training-set family")));
-  req.family = static_cast<Family>(999);
-  EXPECT_THAT(Fields(PlanTraining(req).status()), ElementsAre("family"));
+  // Unset (the API's unspecified, or a value the server does not know): the
+  // family and the missing capacity, both at once.
+  req.family = std::nullopt;
+  EXPECT_THAT(Fields(PlanTraining(req).status()),
+              ElementsAre("training.family", "training.capacity"));
   req.family = Family::kOccamKl;
   req.capacity.log_hypothesis_count = -2.0;
   EXPECT_THAT(Fields(PlanTraining(req).status()),
-              ElementsAre("capacity.log_hypothesis_count"));
+              ElementsAre("training.capacity.log_hypothesis_count"));
 }
 
 }  // namespace

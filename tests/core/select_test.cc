@@ -21,20 +21,22 @@ using ::testing::ElementsAre;
 using ::testing::HasSubstr;
 using ::testing::IsEmpty;
 
-Candidate Vc(const std::string& id, std::uint64_t errors, std::uint64_t samples,
-             std::uint64_t h) {
-  Candidate c;
+StructureCandidate Vc(const std::string& id, std::uint64_t errors, std::uint64_t samples,
+                      std::uint64_t h) {
+  StructureCandidate c;
   c.id = id;
-  c.training = {errors, samples};
+  c.error_count = errors;
+  c.sample_count = samples;
   c.capacity.vc_dimension = h;
   return c;
 }
 
-Candidate Finite(const std::string& id, std::uint64_t errors, std::uint64_t samples,
-                 double log_h) {
-  Candidate c;
+StructureCandidate Finite(const std::string& id, std::uint64_t errors, std::uint64_t samples,
+                          double log_h) {
+  StructureCandidate c;
   c.id = id;
-  c.training = {errors, samples};
+  c.error_count = errors;
+  c.sample_count = samples;
   c.capacity.log_hypothesis_count = log_h;
   return c;
 }
@@ -49,9 +51,9 @@ TEST(SelectTest, OccamStructureHandWorked) {
   SelectRequest req;
   req.family = Family::kOccamHoeffding;
   req.failure_probability = 0.06;
-  req.spread = DeltaSpread::kUniform;
-  req.candidates = {Finite("A", 300, 1000, 10), Finite("B", 100, 1000, 50),
-                    Finite("C", 90, 1000, 200)};
+  req.delta_spread = DeltaSpread::kUniform;
+  req.structure = {Finite("A", 300, 1000, 10), Finite("B", 100, 1000, 50),
+                   Finite("C", 90, 1000, 200)};
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
   ASSERT_EQ(got->candidates.size(), 3u);
@@ -63,10 +65,10 @@ TEST(SelectTest, OccamStructureHandWorked) {
   EXPECT_DOUBLE_EQ(got->candidates[1].capacity, 50.0);
   EXPECT_DOUBLE_EQ(got->candidates[1].empirical_risk, 0.1);
   EXPECT_NEAR(got->candidates[1].penalty, 0.164183, 1e-6);
-  for (const CandidateResult& c : got->candidates) EXPECT_DOUBLE_EQ(c.failure_probability, 0.02);
+  for (const CandidateBound& c : got->candidates) EXPECT_DOUBLE_EQ(c.failure_probability, 0.02);
   EXPECT_NEAR(got->spent_failure_probability, 0.06, 1e-15);
   EXPECT_FALSE(got->fragile);
-  EXPECT_THAT(got->within_tolerance, IsEmpty());
+  EXPECT_THAT(got->within_tolerance_ids, IsEmpty());
   EXPECT_THAT(got->delta_rule, HasSubstr("delta/3"));
 }
 
@@ -80,9 +82,9 @@ TEST(SelectTest, VcStructureInverseSquareHandWorked) {
   SelectRequest req;
   req.family = Family::kVcAdditive;
   req.failure_probability = 0.05;
-  req.spread = DeltaSpread::kInverseSquare;
-  req.candidates = {Vc("h10", 2500, 10000, 10), Vc("h100", 500, 10000, 100),
-                    Vc("h1000", 100, 10000, 1000)};
+  req.delta_spread = DeltaSpread::kInverseSquare;
+  req.structure = {Vc("h10", 2500, 10000, 10), Vc("h100", 500, 10000, 100),
+                   Vc("h1000", 100, 10000, 1000)};
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
   EXPECT_NEAR(got->candidates[0].risk_upper_bound, 0.345436, 1e-6);
@@ -102,9 +104,9 @@ TEST(SelectTest, InverseSquareWeightsMatchFormulaSheet) {
   SelectRequest req;
   req.family = Family::kOccamKl;
   req.failure_probability = 0.1;
-  req.spread = DeltaSpread::kInverseSquare;
+  req.delta_spread = DeltaSpread::kInverseSquare;
   for (int i = 0; i < 5; ++i) {
-    req.candidates.push_back(Finite(absl::StrCat("c", i), 10, 500, 2.0 * (i + 1)));
+    req.structure.push_back(Finite(absl::StrCat("c", i), 10, 500, 2.0 * (i + 1)));
   }
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
@@ -132,23 +134,22 @@ TEST(SelectTest, EveryBoundEqualsCertifyAtItsShare) {
       SelectRequest req;
       req.family = family;
       req.failure_probability = 0.05;
-      req.spread = spread;
+      req.delta_spread = spread;
       if (spread == DeltaSpread::kCallerWeights) req.weights = {0.5, 0.25, 0.125, 0.125};
       for (int i = 0; i < 4; ++i) {
-        Candidate c = Vc(absl::StrCat("k", i), 400 - 80 * i, 5000, 5 * (i + 1) * (i + 1));
+        StructureCandidate c = Vc(absl::StrCat("k", i), 400 - 80 * i, 5000, 5 * (i + 1) * (i + 1));
         c.capacity.log_hypothesis_count = 3.0 * (i + 1) * (i + 1);
-        req.candidates.push_back(c);
+        req.structure.push_back(c);
       }
       auto got = SelectStructure(req);
       ASSERT_TRUE(got.ok()) << got.status();
-      for (std::size_t i = 0; i < req.candidates.size(); ++i) {
+      for (std::size_t i = 0; i < req.structure.size(); ++i) {
         CertifyRequest cert;
-        cert.evidence.training =
-            TrainingEvidence{req.candidates[i].training, req.candidates[i].capacity};
+        cert.evidence.training = TrainingEvidence{req.structure[i], req.structure[i].capacity};
         cert.failure_probability = req.failure_probability;
-        cert.choice = FamilyChoice::kListed;
-        cert.families = {family};
-        cert.delta_weights = {got->candidates[i].delta_weight};
+        cert.family_choice = FamilyChoice::kListed;
+        cert.listed.families = {family};
+        cert.listed.delta_weights = {got->candidates[i].delta_weight};
         auto c = Certify(cert);
         ASSERT_TRUE(c.ok()) << c.status();
         EXPECT_EQ(got->candidates[i].risk_upper_bound, c->certificates[0].risk_upper_bound)
@@ -172,14 +173,14 @@ TEST(SelectTest, EveryBoundEqualsCertifyAtItsShare) {
 TEST(SelectTest, TiesGoToSmallerCapacity) {
   SelectRequest req;
   req.family = Family::kVcRelative;
-  req.spread = DeltaSpread::kUniform;
-  req.candidates = {Vc("a", 50, 20000, 20), Vc("b", 50, 20000, 20), Vc("c", 50, 20000, 40)};
+  req.delta_spread = DeltaSpread::kUniform;
+  req.structure = {Vc("a", 50, 20000, 20), Vc("b", 50, 20000, 20), Vc("c", 50, 20000, 40)};
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
   EXPECT_EQ(got->candidates[0].risk_upper_bound, got->candidates[1].risk_upper_bound);
   EXPECT_EQ(got->chosen_index, 0u);
   EXPECT_TRUE(got->fragile);
-  EXPECT_THAT(got->within_tolerance, ::testing::Contains(1u));
+  EXPECT_THAT(got->within_tolerance_ids, ::testing::Contains("b"));
 }
 
 // Fragility: the flag follows the absolute tolerance on the bound. From the
@@ -189,9 +190,9 @@ TEST(SelectTest, FragileFlagFollowsTolerance) {
   SelectRequest req;
   req.family = Family::kOccamHoeffding;
   req.failure_probability = 0.06;
-  req.spread = DeltaSpread::kUniform;
-  req.candidates = {Finite("A", 300, 1000, 10), Finite("B", 100, 1000, 50),
-                    Finite("C", 90, 1000, 200)};
+  req.delta_spread = DeltaSpread::kUniform;
+  req.structure = {Finite("A", 300, 1000, 10), Finite("B", 100, 1000, 50),
+                   Finite("C", 90, 1000, 200)};
   req.fragility_tolerance = 0.119;
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok());
@@ -200,17 +201,17 @@ TEST(SelectTest, FragileFlagFollowsTolerance) {
   got = SelectStructure(req);
   ASSERT_TRUE(got.ok());
   EXPECT_TRUE(got->fragile);
-  EXPECT_THAT(got->within_tolerance, ElementsAre(0u));
+  EXPECT_THAT(got->within_tolerance_ids, ElementsAre("A"));
   req.fragility_tolerance = 0.2;  // C is 0.145123 above B
   got = SelectStructure(req);
-  EXPECT_THAT(got->within_tolerance, ElementsAre(0u, 2u));
+  EXPECT_THAT(got->within_tolerance_ids, ElementsAre("A", "C"));
   EXPECT_EQ(got->chosen_index, 1u);
 }
 
 TEST(SelectTest, AllVacuousSaysSo) {
   SelectRequest req;
   req.family = Family::kVcAdditive;
-  req.candidates = {Vc("a", 10, 100, 500), Vc("b", 0, 100, 1000)};
+  req.structure = {Vc("a", 10, 100, 500), Vc("b", 0, 100, 1000)};
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
   EXPECT_TRUE(got->candidates[0].vacuous);
@@ -218,7 +219,7 @@ TEST(SelectTest, AllVacuousSaysSo) {
   EXPECT_EQ(got->chosen_index, 0u);
   ASSERT_FALSE(got->notes.empty());
   EXPECT_THAT(got->notes[0], HasSubstr("vacuous"));
-  for (const CandidateResult& c : got->candidates) {
+  for (const CandidateBound& c : got->candidates) {
     EXPECT_TRUE(std::isfinite(c.risk_upper_bound));
     EXPECT_TRUE(std::isfinite(c.penalty));
   }
@@ -234,34 +235,32 @@ TEST(SelectTest, InvalidInputNamesTheField) {
   SelectRequest req;
   req.family = Family::kVcAdditive;
   EXPECT_THAT(SelectStructure(req),
-              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("candidates")));
+              StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("structure")));
 
   // Empty and duplicate ids, bad counts, a missing capacity.
-  req.candidates = {Vc("", 1, 10, 1), Vc("x", 11, 10, 2), Vc("x", 0, 0, 3),
-                    Finite("y", 0, 10, 1.0)};
+  req.structure = {Vc("", 1, 10, 1), Vc("x", 11, 10, 2), Vc("x", 0, 0, 3), Finite("y", 0, 10, 1.0)};
   auto got = SelectStructure(req);
   EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument));
   EXPECT_THAT(Fields(got.status()),
-              ElementsAre("candidates[0].id", "candidates[1].training.error_count",
-                          "candidates[2].id", "candidates[2].training.sample_count",
-                          "candidates[3].capacity"));
+              ElementsAre("structure[0].id", "structure[1].error_count", "structure[2].id",
+                          "structure[2].sample_count", "structure[3].capacity"));
 
   // Not nested.
-  req.candidates = {Vc("a", 1, 100, 10), Vc("b", 1, 100, 5)};
+  req.structure = {Vc("a", 1, 100, 10), Vc("b", 1, 100, 5)};
   got = SelectStructure(req);
   EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("nested")));
-  EXPECT_THAT(Fields(got.status()), ElementsAre("candidates[1].capacity.vc_dimension"));
+  EXPECT_THAT(Fields(got.status()), ElementsAre("structure[1].capacity.vc_dimension"));
 
   // A bad ln|H| for a finite-class family.
   req.family = Family::kOccamKl;
-  req.candidates = {Finite("a", 1, 100, -1.0), Finite("b", 1, 100, NAN)};
+  req.structure = {Finite("a", 1, 100, -1.0), Finite("b", 1, 100, NAN)};
   EXPECT_THAT(Fields(SelectStructure(req).status()),
-              ElementsAre("candidates[0].capacity.log_hypothesis_count",
-                          "candidates[1].capacity.log_hypothesis_count"));
+              ElementsAre("structure[0].capacity.log_hypothesis_count",
+                          "structure[1].capacity.log_hypothesis_count"));
 
   // Hold-out family, delta, tolerance.
   req = SelectRequest{};
-  req.candidates = {Vc("a", 1, 100, 10)};
+  req.structure = {Vc("a", 1, 100, 10)};
   req.family = Family::kHoldoutExactBinomial;
   req.failure_probability = 1.0;
   req.fragility_tolerance = -0.1;
@@ -270,15 +269,17 @@ TEST(SelectTest, InvalidInputNamesTheField) {
                             HasSubstr("not a training-set family")));
   EXPECT_THAT(Fields(got.status()),
               ElementsAre("failure_probability", "fragility_tolerance", "family"));
-  req.family = static_cast<Family>(999);
+  // Unset (the API's unspecified, or a value the server does not know).
+  req.family = std::nullopt;
   req.failure_probability = 0.05;
   req.fragility_tolerance = 0.0;
   EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("family"));
 
   // Weights.
   req = SelectRequest{};
-  req.candidates = {Vc("a", 1, 100, 10), Vc("b", 1, 100, 20)};
-  req.spread = DeltaSpread::kCallerWeights;
+  req.family = Family::kVcAdditive;
+  req.structure = {Vc("a", 1, 100, 10), Vc("b", 1, 100, 20)};
+  req.delta_spread = DeltaSpread::kCallerWeights;
   req.weights = {0.5};
   EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("weights"));
   req.weights = {0.0, 1.5};
@@ -289,7 +290,7 @@ TEST(SelectTest, InvalidInputNamesTheField) {
               StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("sum to at most 1")));
   req.weights = {0.6, 0.4};
   EXPECT_TRUE(SelectStructure(req).ok());
-  req.spread = DeltaSpread::kUniform;
+  req.delta_spread = DeltaSpread::kUniform;
   EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("weights"));
 }
 

@@ -28,7 +28,7 @@ using ::riskbound::testing::StatusIs;
 
 CertifyRequest AllFamiliesRequest() {
   CertifyRequest req;
-  req.choice = FamilyChoice::kAllApplicable;
+  req.family_choice = FamilyChoice::kAllApplicable;
   req.evidence.holdout = SampleCounts{212, 5000};
   TrainingEvidence t;
   t.error_count = 270;
@@ -43,11 +43,12 @@ SelectRequest LargeSelect(std::size_t candidates) {
   SelectRequest req;
   req.family = Family::kOccamKl;
   for (std::size_t i = 0; i < candidates; ++i) {
-    Candidate c;
+    StructureCandidate c;
     c.id = "c" + std::to_string(i);
-    c.training = {300 + i % 50, 10000};
+    c.error_count = 300 + i % 50;
+    c.sample_count = 10000;
     c.capacity.log_hypothesis_count = static_cast<double>(i);
-    req.candidates.push_back(c);
+    req.structure.push_back(c);
   }
   return req;
 }

@@ -27,6 +27,7 @@ namespace riskbound::rpc {
 namespace {
 
 using ::testing::Contains;
+using ::testing::ElementsAre;
 using ::testing::HasSubstr;
 
 class CapacityRpcTest : public ::riskbound::testing::LoopbackServerTest {
@@ -285,8 +286,9 @@ TEST_F(CapacityRpcTest, MalformedArchitecturesNameTheField) {
   EXPECT_THAT(EstimateBadFields(Model(static_cast<v1::ModelKind>(99))), Contains("model.kind"));
   v1::EstimateCapacityResponse resp;
   grpc::ClientContext ctx;
+  // No model at all: its kind is what is missing.
   EXPECT_THAT(BadFields(stub_->EstimateCapacity(&ctx, v1::EstimateCapacityRequest(), &resp)),
-              Contains("model"));
+              ElementsAre("model.kind"));
 }
 
 // --- Certify with a model description ---------------------------------------
@@ -423,14 +425,15 @@ TEST(CapacityConvertTest, EveryKindRoundTrips) {
     v1::ModelDescription in = Model(wire);
     in.set_dimension(3);
     in.add_layer_widths(4);
-    std::vector<core::FieldViolation> violations;
-    auto core_model = ModelDescriptionFromProto(in, "model", &violations);
-    ASSERT_TRUE(core_model.has_value()) << kinds->value(i)->name();
+    Refusals refusals;
+    const core::ModelDescription core_model = ModelDescriptionFromProto(in, "model", &refusals);
+    ASSERT_TRUE(refusals.empty());
+    ASSERT_TRUE(core_model.kind.has_value()) << kinds->value(i)->name();
     // The core's name of the kind is the wire name without the prefix.
-    EXPECT_EQ("MODEL_KIND_" + absl::AsciiStrToUpper(core::ModelKindName(core_model->kind)),
+    EXPECT_EQ("MODEL_KIND_" + absl::AsciiStrToUpper(core::ModelKindName(*core_model.kind)),
               kinds->value(i)->name());
     v1::ModelDescription back;
-    ModelDescriptionToProto(*core_model, &back);
+    ModelDescriptionToProto(core_model, &back);
     EXPECT_EQ(back.SerializeAsString(), in.SerializeAsString());
   }
 }

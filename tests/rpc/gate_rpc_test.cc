@@ -315,9 +315,10 @@ TEST(GateConvertTest, TimestampFromInjectedClock) {
   EXPECT_EQ(FormatAuditTimestamp(absl::FromUnixSeconds(0)), "1970-01-01T00:00:00Z");
   EXPECT_EQ(FormatAuditTimestamp(absl::FromUnixSeconds(1772366400) + absl::Milliseconds(250)),
             "2026-03-01T12:00:00.25Z");
-  auto inputs = GateInputsFromProto(ReferenceRequest());
-  ASSERT_TRUE(inputs.ok()) << inputs.status();
-  auto decision = core::DecideGate(inputs->policy, inputs->candidate, inputs->champion);
+  const auto inputs = GateInputsFromProto(ReferenceRequest());
+  ASSERT_TRUE(inputs.refusals.empty());
+  auto decision =
+      core::DecideGate(inputs.request.policy, inputs.request.candidate, inputs.request.champion);
   ASSERT_TRUE(decision.ok()) << decision.status();
   const v1::GateResponse resp =
       GateResponseToProto(*decision, ReferenceRequest(), absl::FromUnixSeconds(1772366400));

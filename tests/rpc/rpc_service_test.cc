@@ -57,7 +57,8 @@ TEST_F(ServiceTest, InvalidArgumentCarriesFieldViolations) {
   EXPECT_THAT(status.error_message(),
               HasSubstr("evidence.training.capacity.hypothesis_count: must be at least 1"));
   const auto violations = ::riskbound::testing::ViolationsOf(status);
-  ASSERT_GE(violations.size(), 1u);
+  // Exactly one: the core resolves the capacity and names it once.
+  ASSERT_EQ(violations.size(), 1u);
   EXPECT_EQ(violations[0].first, "evidence.training.capacity.hypothesis_count");
   EXPECT_EQ(violations[0].second, "must be at least 1");
 }
@@ -101,16 +102,21 @@ TEST_F(ServiceTest, UnknownEnumValueIsNamed) {
   EXPECT_THAT(status.error_message(), HasSubstr("listed.families[0]: unknown bound family"));
 }
 
-TEST(ConvertTest, HypothesisCountBecomesLog) {
+// The conversion copies the wire as it is: the hypothesis count stays a
+// count (the core resolves it to ln |H|), an unset choice is the core's
+// recommended one.
+TEST(ConvertTest, CopiesTheWireAsItIs) {
   v1::CertifyRequest req;
   auto* t = req.mutable_evidence()->mutable_training();
   t->set_sample_count(100);
   t->mutable_capacity()->set_hypothesis_count(1000);
   req.set_failure_probability(0.1);
-  auto got = CertifyRequestFromProto(req);
-  ASSERT_TRUE(got.ok());
-  EXPECT_NEAR(*got->evidence.training->capacity.log_hypothesis_count, std::log(1000.0), 1e-15);
-  EXPECT_EQ(got->choice, core::FamilyChoice::kRecommended);
+  const auto got = CertifyRequestFromProto(req);
+  EXPECT_TRUE(got.refusals.empty());
+  EXPECT_EQ(got.request.evidence.training->capacity.hypothesis_count, 1000u);
+  EXPECT_FALSE(got.request.evidence.training->capacity.log_hypothesis_count.has_value());
+  EXPECT_EQ(got.request.family_choice, core::FamilyChoice::kRecommended);
+  EXPECT_EQ(got.request.failure_probability, 0.1);
 }
 
 TEST(StatusTest, CodesAreCopied) {

@@ -28,6 +28,7 @@ using ::riskbound::testing::Num;
 using ::riskbound::testing::ReadFixture;
 using ::testing::ElementsAre;
 using ::testing::HasSubstr;
+using ::testing::Not;
 using ::testing::UnorderedElementsAreArray;
 
 // Vapnik's additive VC bound, conservative form with +1/m, written out here
@@ -315,6 +316,9 @@ TEST_F(SelectPlanTest, HoldoutPlansMatchFormulaSheet) {
   EXPECT_EQ(resp.sample_count(), 299u);
   EXPECT_EQ(resp.holdout().zero_failure_sample_count(), 299u);
   EXPECT_EQ(resp.holdout().tolerated_error_count(), 0u);
+  // No errors expected: no sawtooth, no "ceil(0 n)" in the rule.
+  EXPECT_THAT(resp.rule(), HasSubstr("with no errors is <= 0.01"));
+  EXPECT_THAT(resp.rule(), Not(HasSubstr("ceil(")));
   EXPECT_LE(CertifyHoldout(0, 299, 0.05), 0.01);
   EXPECT_GT(CertifyHoldout(0, 298, 0.05), 0.01);
   EXPECT_EQ(resp.cautions_size(), 3);
@@ -326,7 +330,10 @@ TEST_F(SelectPlanTest, HoldoutPlansMatchFormulaSheet) {
   EXPECT_EQ(resp.holdout().expected_rate_sample_count(), 410u);
   EXPECT_EQ(resp.additional_sample_count(), 160u);
   EXPECT_FALSE(resp.holdout().has_pass_probability_sample_count());
-  EXPECT_THAT(resp.rule(), HasSubstr("9.5"));
+  // The rule with its values substituted: 2/0.03 rounded up is 67.
+  EXPECT_THAT(resp.rule(), HasSubstr("at ceil(0.03 n) errors is <= 0.05"));
+  EXPECT_THAT(resp.rule(), HasSubstr("for the next 67 samples"));
+  EXPECT_THAT(resp.rule(), HasSubstr("Clopper & Pearson 1934"));
   // ceil(.03 * 410) = 13 errors; at 409, ceil(12.27) = 13 as well.
   EXPECT_NEAR(CertifyHoldout(13, 410, 0.05), 0.049939, 5e-7);
   EXPECT_GT(CertifyHoldout(13, 409, 0.05), 0.05);
@@ -368,6 +375,16 @@ TEST_F(SelectPlanTest, TrainingPlansAndComparisonReferences) {
   EXPECT_EQ(resp.additional_sample_count(), m - 100000);
   EXPECT_EQ(resp.training().family_name(), "vc-additive");
   EXPECT_THAT(resp.rule(), HasSubstr("vc-additive"));
+  // Substituted: 2/0.05 = 40; the family's published source, no unsubstituted
+  // "ceil(2/" and no internal field name.
+  EXPECT_THAT(resp.rule(), HasSubstr("at ceil(0.05 m) errors is <= 0.1"));
+  EXPECT_THAT(resp.rule(), HasSubstr("for the next 40 samples"));
+  EXPECT_THAT(resp.rule(), HasSubstr("Vapnik (1995)"));
+  EXPECT_THAT(resp.rule(), Not(HasSubstr("ceil(2/")));
+  for (const std::string& note : resp.notes()) {
+    EXPECT_THAT(note, Not(HasSubstr("_sample_count:"))) << note;
+    EXPECT_THAT(note, Not(HasSubstr("_reference:"))) << note;
+  }
   const auto k = [](std::uint64_t n) {
     return static_cast<std::uint64_t>(std::ceil(0.05 * static_cast<double>(n)));
   };

@@ -237,7 +237,7 @@ std::pair<double, std::size_t> CertifyHoldoutAll(std::uint64_t k, std::uint64_t 
   core::CertifyRequest req;
   req.evidence.holdout = SampleCounts{k, n};
   req.failure_probability = delta;
-  req.choice = core::FamilyChoice::kAllApplicable;
+  req.family_choice = core::FamilyChoice::kAllApplicable;
   const absl::StatusOr<core::CertifyResult> r = core::Certify(req);
   if (!r.ok()) return {std::numeric_limits<double>::quiet_NaN(), 0};
   return {r->certificates[r->tightest_index].risk_upper_bound, r->certificates.size()};
@@ -439,7 +439,7 @@ core::CertifyRequest TrainingRequest(std::uint64_t k, std::uint64_t m, double de
   t.capacity.log_hypothesis_count = kLogClassSize;
   req.evidence.training = t;
   req.failure_probability = delta;
-  req.choice = choice;
+  req.family_choice = choice;
   return req;
 }
 
@@ -476,7 +476,7 @@ std::vector<CoverageRow> RunThresholdClass(std::int64_t trials, std::uint64_t se
   PerCountCache certify_rec(m, [&](std::uint64_t k) {
     const auto r = core::Certify(TrainingRequest(k, m, kDelta, core::FamilyChoice::kRecommended));
     if (!r.ok()) return std::numeric_limits<double>::quiet_NaN();
-    recommended_slug = std::string(core::FindFamily(r->certificates[0].family)->slug);
+    recommended_slug = std::string(core::FindFamily(r->certificates[0].family)->family_name);
     return r->certificates[0].risk_upper_bound;
   });
   Tally all_tally;
@@ -580,8 +580,9 @@ Tightest CertifyTightest(const core::Evidence& evidence, double delta,
   core::CertifyRequest req;
   req.evidence = evidence;
   req.failure_probability = delta;
-  req.choice = listed.empty() ? core::FamilyChoice::kAllApplicable : core::FamilyChoice::kListed;
-  req.families = listed;
+  req.family_choice =
+      listed.empty() ? core::FamilyChoice::kAllApplicable : core::FamilyChoice::kListed;
+  req.listed.families.assign(listed.begin(), listed.end());
   const absl::StatusOr<core::CertifyResult> r = core::Certify(req);
   Tightest t;
   if (!r.ok()) return t;
