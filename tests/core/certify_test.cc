@@ -2,6 +2,7 @@
 
 #include <cmath>
 
+#include "absl/strings/match.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "service/core/families.h"
@@ -164,6 +165,66 @@ TEST(CertifyTest, ListedFamilyProblems) {
   req.listed.delta_weights = {0.5, NAN};
   EXPECT_THAT(Certify(req), StatusIs(absl::StatusCode::kInvalidArgument,
                                      HasSubstr("listed.delta_weights[1]")));
+}
+
+// The core checks the whole request before it computes: a bad failure
+// probability does not hide a duplicated family, and a model description
+// inside the evidence is named at its API path (the core's path is the
+// wire's).
+TEST(CertifyTest, EveryBadFieldAtOnceAtItsApiPath) {
+  CertifyRequest req;
+  req.evidence = HoldoutOnly(1, 100);
+  TrainingEvidence t;
+  t.error_count = 1;
+  t.sample_count = 100;
+  t.capacity.model = ModelDescription{};
+  t.capacity.model->kind = ModelKind::kDecisionTree;  // leaf_count and feature_count missing
+  req.evidence.training = t;
+  req.failure_probability = 2.0;
+  req.family_choice = FamilyChoice::kListed;
+  req.listed.families = {Family::kHoldoutHoeffding, Family::kHoldoutHoeffding};
+  std::vector<std::string> fields;
+  for (const FieldViolation& v : FieldViolationsOf(Certify(req).status())) {
+    fields.push_back(v.field);
+  }
+  EXPECT_THAT(fields, ::testing::ElementsAre("failure_probability",
+                                             "evidence.training.capacity.model.leaf_count",
+                                             "evidence.training.capacity.model.feature_count",
+                                             "listed.families[1]"));
+  EXPECT_EQ(ValidateCertifyRequest(req).message(), Certify(req).status().message());
+}
+
+// A model description is resolved by the core, with a note that names the
+// kind in words and the catalogue's published source.
+TEST(CertifyTest, ModelCapacityResolvedWithItsProvenance) {
+  CertifyRequest req;
+  TrainingEvidence t;
+  t.error_count = 10;
+  t.sample_count = 10000;
+  t.capacity.model = ModelDescription{};
+  t.capacity.model->kind = ModelKind::kHalfspace;
+  t.capacity.model->dimension = 20;
+  req.evidence.training = t;
+  req.failure_probability = 0.05;
+  auto got = Certify(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  ASSERT_EQ(got->certificates.size(), 1u);
+  EXPECT_EQ(got->certificates[0].family, Family::kVcAdditive);
+  // Source: Cover (1965): halfspaces with a bias in R^20 have VC dimension 21.
+  TrainingEvidence explicit_h = t;
+  explicit_h.capacity = ClassCapacity{};
+  explicit_h.capacity.vc_dimension = 21;
+  Evidence e;
+  e.training = explicit_h;
+  EXPECT_EQ(got->certificates[0].risk_upper_bound,
+            FindFamily(Family::kVcAdditive)->compute(e, 0.05).risk_upper_bound);
+  bool noted = false;
+  for (const std::string& note : got->certificates[0].notes) {
+    noted |= absl::StrContains(note, "VC dimension h = 21 (exact)") &&
+             absl::StrContains(note, "model kind: halfspace") &&
+             absl::StrContains(note, "Cover (1965)");
+  }
+  EXPECT_TRUE(noted);
 }
 
 TEST(FamiliesTest, RegistryIsConsistent) {
