@@ -19,7 +19,7 @@ namespace riskbound::core {
 
 // BoundedHoeffding
 // E[X] <= Xbar + (b - a) sqrt(ln(1/delta) / (2n)).
-// Source: Hoeffding (1963), Theorem 2 (formula sheet 4.2, bounded losses).
+// Source: Hoeffding (1963), Theorem 2 (bounded variables).
 // REQUIRES: evidence valid per ValidateEvidence (samples >= 1,
 //           loss_min < loss_max, mean in range), 0 < delta < 1.
 Certificate BoundedHoeffding(const BoundedLossEvidence& evidence, double delta);
@@ -28,15 +28,15 @@ Certificate BoundedHoeffding(const BoundedLossEvidence& evidence, double delta);
 // E[z] <= kl^{-1}_+(zbar, ln(1/delta) / n) on the rescaled loss. Valid for
 // any loss in [0, 1]: a [0, 1] variable with mean mu has a moment-generating
 // function no larger than Bernoulli(mu)'s, so the Chernoff-kl tail holds.
-// Source: Hoeffding (1963), proof of Theorem 1 (formula sheet 4.3, bounded
-// losses).
+// Source: Hoeffding (1963), proof of Theorem 1 (the moment-generating-function
+// comparison with a Bernoulli variable).
 // REQUIRES: as BoundedHoeffding.
 Certificate BoundedKl(const BoundedLossEvidence& evidence, double delta);
 
 // BoundedEmpiricalBernstein
 // E[z] <= zbar + sqrt(2 V ln(2/delta) / n) + 7 ln(2/delta) / (3 (n - 1)),
 // V the unbiased sample variance of z = sample_variance / (b - a)^2.
-// Source: Maurer & Pontil (2009), Theorem 4 (formula sheet 4.4).
+// Source: Maurer & Pontil (2009), Theorem 4.
 // REQUIRES: as BoundedHoeffding and samples >= 2 (the registry's applies()
 //           and ValidateEvidence's family check enforce it; called with
 //           samples = 1 it returns the trivial certificate [loss_min,

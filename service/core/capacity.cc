@@ -443,10 +443,11 @@ absl::StatusOr<CapacityEstimate> Tree(const ModelDescription& m, absl::string_vi
   SetUpperBound(static_cast<double>(*first_fail - 1), &e);
   e.vc_dimension_lower_bound = L;
   e.source =
-      "counting bound derived in the formula sheet (bounds.md 10.4): Cat(L-1) tree shapes "
-      "x (feature, threshold) per split x leaf labels; cf. Leboeuf, LeBlanc & Marchand "
-      "(2020) O(N log(N l)) for a fixed structure. Lower bound L: splits on one feature "
-      "realize every labeling of L points";
+      "a counting argument (derived for this catalogue): on m points a tree with at most L "
+      "leaves realizes at most Cat(L-1) shapes x (d (m+1))^(L-1) (feature, threshold) "
+      "choices x 2^L leaf labelings, and shattering needs 2^m; cf. Leboeuf, LeBlanc & "
+      "Marchand (2020), O(N log(N l)) for a fixed structure. Lower bound L: splits on one "
+      "feature realize every labeling of L points";
   e.formula = absl::StrCat("h <= max{m : 2^m <= Cat(L-1) (d(m+1))^(L-1) 2^L}, L = ", *leaves,
                            ", d = ", *d);
   e.notes.push_back("covers every tree with at most L leaves; L must be fixed before the "
@@ -600,9 +601,9 @@ absl::StatusOr<CapacityEstimate> ReluNet(const ModelDescription& m, absl::string
   e.formula = absl::StrCat("h <= L + Lbar W log2(4 e p R log2(2 e p R)) with W = ", Num(w),
                            ", L = ", Num(layers), ", Lbar = ", Num(lbar), ", R = ", Num(r),
                            ", p = 2 (= ", Num(value), ")");
-  e.notes.push_back("explicit constant recalled from memory (bounds.md 10.7): verify "
-                    "before relying on it; p = 2 pieces for ReLU, conservative if the "
-                    "paper counts breakpoints");
+  e.notes.push_back("explicit constant of Bartlett, Harvey, Liaw & Mehrabian (2019), "
+                    "Theorem 7, recalled from memory: verify before relying on it; p = 2 "
+                    "pieces for ReLU, conservative if the paper counts breakpoints");
   if (!s->shape.has_value()) {
     e.notes.push_back("layer widths not given: Lbar <= L and R = sum_i i k_i <= L U were "
                       "used; the bound increases in both, so it stays an upper bound");
@@ -626,8 +627,8 @@ absl::StatusOr<CapacityEstimate> SigmoidNet(const ModelDescription& m,
              "(1999) Thm 8.13 (from memory)";
   e.formula = absl::StrCat("h <= (W k)^2 + 11 W k log2(18 W k^2) with W = ", Num(w),
                            ", k = ", Num(k), " (= ", Num(value), ")");
-  e.notes.push_back("explicit constants recalled from memory (bounds.md 10.8): verify "
-                    "before relying on them");
+  e.notes.push_back("explicit constants of Anthony & Bartlett (1999), Theorem 8.13, "
+                    "recalled from memory: verify before relying on them");
   HalfspaceLowerBound(*s, &e);
   e.notes.push_back("the lower bound Omega(W^2) (Koiran & Sontag 1997) has no stated "
                     "constant, so no numeric value is derived from it");
@@ -668,9 +669,10 @@ absl::StatusOr<CapacityEstimate> Finite(const ModelDescription& m, absl::string_
   }
   e.source = "shattering h points needs 2^h distinct hypotheses, so h <= log2 |H| "
              "(Shalev-Shwartz & Ben-David 2014 Ch. 6)";
-  e.notes.push_back("use log_hypothesis_count with the Occam families (bounds.md 3), "
-                    "which are tighter than a VC bound at this capacity; the class must be "
-                    "fixed before the training sample is seen");
+  e.notes.push_back("use log_hypothesis_count with the Occam families (Blumer, "
+                    "Ehrenfeucht, Haussler & Warmuth 1987; Langford 2005), which are "
+                    "tighter than a VC bound at this capacity; the class must be fixed "
+                    "before the training sample is seen");
   return e;
 }
 
@@ -681,8 +683,9 @@ absl::StatusOr<CapacityEstimate> Infinite(const ModelDescription& m, absl::strin
   CapacityEstimate e;
   e.status = CapacityStatus::kInfinite;
   if (m.kind == ModelKind::kNearestNeighbour) {
-    e.source = "bounds.md 10.10: storing any set of distinct points with arbitrary labels "
-               "realizes every labeling";
+    e.source = "a direct argument: a nearest-neighbour rule (Cover & Hart 1967) storing "
+               "any set of distinct points with arbitrary labels realizes every labeling "
+               "of them";
     e.formula = "h = infinity (nearest-neighbour rules over all stored sets)";
     e.notes.push_back(
         "no VC bound applies; use a hold-out bound (always valid, the default for gating), "

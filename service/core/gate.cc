@@ -297,7 +297,7 @@ double UpperTail(std::uint64_t n, std::uint64_t k, double p) {
   return BinomialUpperTailLowerBound(n, k, p, nullptr);
 }
 
-// The mirror image of bounds.md 9.6 for a REJECT: smallest total n (found by
+// The mirror image of the pass-probability plan (plan.h) for a REJECT: smallest total n (found by
 // exponential search and bisection) with P(Bin(n, p) >= k_min(n)) >= pass,
 // where k_min(n) is the fewest errors whose Clopper-Pearson lower limit at
 // `delta` exceeds epsilon. NOT_FOUND when no n up to 2^53 does it.

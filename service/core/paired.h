@@ -47,8 +47,7 @@ struct PairedCounts {
 // (regularized incomplete beta, its work capped) or the exact tail summed in
 // log space (numeric.h LogBinomialCdf), never a normal approximation; where
 // neither settles it (counts far above 2^32), an upper bound on the p-value.
-// Source: McNemar (1947), exact conditional binomial version; formula sheet
-// bounds.md 11.1.
+// Source: McNemar (1947), exact conditional binomial version.
 // REQUIRES: b + c <= 2^53 (exact in a double). Thread-safe.
 double McNemarExactOneSidedPValue(std::uint64_t b, std::uint64_t c);
 
@@ -61,8 +60,8 @@ double McNemarExactOneSidedPValue(std::uint64_t b, std::uint64_t c);
 // Bin(n, p_b) and Bin(n, p_c) marginally, whatever their dependence, which is
 // all this construction needs. value is in [-1, 1]; exact is false when a
 // conservative relaxation stood in for a Clopper-Pearson limit (still valid).
-// Source: Clopper & Pearson (1934) with a Bonferroni union bound; bounds.md
-// 11.2(a) (derived there; coverage 0.9972 at nominal 0.95 in its row 11.2).
+// Source: Clopper & Pearson (1934) with a Bonferroni union bound (the
+// construction is conservative: its coverage exceeds the nominal level).
 // REQUIRES: counts.sample_count >= 1, b <= n, c <= n, 0 < delta < 1. Thread-safe.
 TailLimit PairedDifferenceUpper(const PairedCounts& counts, double delta);
 
@@ -81,8 +80,8 @@ TailLimit PairedDifferenceLower(const PairedCounts& counts, double delta);
 // NOTE: weaker than the paired limit on the same number of examples: each
 // model's whole error rate carries sampling noise, where the paired limit only
 // pays for the disagreements. Prefer paired evidence.
-// Source: Clopper & Pearson (1934) with a Bonferroni union bound (bounds.md
-// 11.2(a) applied to two separate samples).
+// Source: Clopper & Pearson (1934) with a Bonferroni union bound, on two
+// separate samples.
 // REQUIRES: both samples >= 1, errors <= samples, 0 < delta < 1. Thread-safe.
 TailLimit UnpairedDifferenceUpper(const SampleCounts& challenger,
                                   const SampleCounts& champion, double delta);

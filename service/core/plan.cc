@@ -470,10 +470,16 @@ absl::StatusOr<TrainingPlan> PlanTraining(const TrainingPlanRequest& request, co
   const double delta = request.failure_probability;
   TrainingPlan plan;
   plan.family = spec->family;
-  plan.notes.push_back(absl::StrFormat(
-      "the bound is evaluated at m samples with ceil(%g m) training errors (at least the "
-      "anticipated count), through the %s family as a certificate would be",
-      r, std::string(spec->family_name)));
+  plan.notes.push_back(
+      r > 0.0 ? absl::StrFormat(
+                    "the bound is evaluated at m samples with ceil(%g m) training errors (at "
+                    "least the anticipated count), through the %s family as a certificate "
+                    "would be",
+                    r, std::string(spec->family_name))
+              : absl::StrFormat(
+                    "the bound is evaluated at m samples with no training errors, through the "
+                    "%s family as a certificate would be",
+                    std::string(spec->family_name)));
 
   // Comparisons from the literature (different guarantees; see plan.h).
   const auto fits = [](double m) -> std::optional<std::uint64_t> {

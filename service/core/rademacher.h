@@ -1,7 +1,7 @@
 // Rademacher-complexity bound family (binary classification, 0-1 loss).
 //
 // Holds uniformly over the hypothesis class, so it is valid for a model
-// chosen on the same sample. Convention (formula sheet 6): Mohri,
+// chosen on the same sample. Convention: Mohri,
 // Rostamizadeh & Talwalkar, Rhat_S(H) = E_sigma sup_h (1/m) sum sigma_i
 // h(x_i) for the {-1, +1}-valued hypothesis class, no absolute value, no
 // factor 2. A complexity in Bartlett & Mendelson's convention is at least
@@ -22,8 +22,8 @@ namespace riskbound::core {
 // (McDiarmid: each sigma_ij moves the average by at most 2/(mN); the slack
 // is at delta' = delta/2; the exact Rhat_S(H) is never negative). A note
 // records the split. Upper bound only.
-// Source: Mohri, Rostamizadeh & Talwalkar (2018), Theorem 3.5 (formula
-// sheet 6.2); McDiarmid (1989) for the slack (formula sheet 6.3).
+// Source: Mohri, Rostamizadeh & Talwalkar (2018), Theorem 3.5; McDiarmid
+// (1989) for the slack.
 // REQUIRES: evidence valid per ValidateEvidence (samples >= 1, errors <=
 //           samples, empirical_rademacher finite in [0, 1], or [-1, 1] for
 //           N > 0), 0 < delta < 1. The supremum inside Rhat must be exact

@@ -12,7 +12,7 @@
 // Source: Vapnik (1995, 1998), the SRM principle (chapter numbers from
 // memory); Shalev-Shwartz & Ben-David (2014) ch. 7 (SRM with weights w_k,
 // Theorem 7.4 from memory); weights
-// 6/(pi^2 k^2) from sum_k 1/k^2 = pi^2/6 (formula sheet 11.3-11.4).
+// 6/(pi^2 k^2) from sum_k 1/k^2 = pi^2/6 (Euler's Basel sum).
 #ifndef RISKBOUND_SERVICE_CORE_SELECT_H_
 #define RISKBOUND_SERVICE_CORE_SELECT_H_
 

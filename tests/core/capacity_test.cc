@@ -249,7 +249,7 @@ TEST(CapacityTest, DecisionTreeCountingBound) {
   EXPECT_EQ(e.vc_dimension, 92.0);
   EXPECT_EQ(e.status, CapacityStatus::kUpperBound);
   EXPECT_EQ(e.vc_dimension_lower_bound, 8.0);
-  EXPECT_THAT(e.source, HasSubstr("derived in the formula sheet"));
+  EXPECT_THAT(e.source, HasSubstr("derived for this catalogue"));
   m.leaf_count = 32;
   m.feature_count = 100;
   EXPECT_EQ(Ok(m).vc_dimension, 575.0);
