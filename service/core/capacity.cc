@@ -914,49 +914,4 @@ absl::StatusOr<CapacityEstimate> EstimateCapacity(const ModelDescription& model,
   return e;
 }
 
-double LogGrowthFunctionBound(std::uint64_t h, std::uint64_t m) {
-  if (m == 0 || h == 0) return 0.0;
-  const double md = static_cast<double>(m);
-  const double all = md * kLn2;
-  if (h >= m) return all;
-  const double hd = static_cast<double>(h);
-  if (m <= (1ULL << 20)) {
-    // Exact: log-sum-exp over i = 0..h of ln C(m, i) (lgamma, numeric.h),
-    // scaled by the largest term, at i = min(h, floor(m/2)).
-    const double top = LogChoose(md, static_cast<double>(std::min(h, m / 2)));
-    double sum = 0.0;
-    for (std::uint64_t i = 0; i <= h; ++i) {
-      sum += std::exp(LogChoose(md, static_cast<double>(i)) - top);
-    }
-    return std::min(top + std::log(sum), all);
-  }
-  if (2 * h >= m) return all;  // the sum is >= 2^(m-1): at most ln 2 above it
-  // h < m/2: C(m, i) increases up to i = h. Sum t_i / t_h downward, then
-  // bound the rest by a geometric series with the current ratio.
-  double sum = 1.0;
-  double term = 1.0;
-  double i = hd;
-  constexpr int kMaxTerms = 1 << 20;
-  for (int step = 0; step < kMaxTerms && i >= 1.0; ++step) {
-    term *= i / (md - i + 1.0);  // t_{i-1} / t_h
-    sum += term;
-    i -= 1.0;
-    if (term < 1e-18 * sum) break;
-  }
-  if (i >= 1.0) {
-    const double ratio = i / (md - i + 1.0);  // every later ratio is smaller
-    sum += term * ratio / (1.0 - ratio);
-  }
-  const double bound = LogChooseUpper(md, hd) + std::log(sum);
-  return std::min({bound * (1.0 + kUpwardNudge), all, LogSauerShelahClosedForm(h, m)});
-}
-
-double LogSauerShelahClosedForm(std::uint64_t h, std::uint64_t m) {
-  if (h == 0) return 0.0;
-  const double md = static_cast<double>(m);
-  if (m < h) return md * kLn2;
-  const double hd = static_cast<double>(h);
-  return hd * (1.0 + std::log(md / hd));
-}
-
 }  // namespace riskbound::core

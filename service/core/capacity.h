@@ -230,25 +230,6 @@ absl::StatusOr<CapacityEstimate> EstimateCapacity(const ModelDescription& model,
                                                   const StopToken& stop = StopToken::Never(),
                                                   absl::string_view model_path = "model");
 
-// LogGrowthFunctionBound
-// Returns ln sum_{i=0}^{min(h, m)} C(m, i), the Sauer-Shelah bound on ln
-// Pi_H(m) for a class of VC dimension h (Sauer 1972; Shelah 1972; Vapnik &
-// Chervonenkis 1971). Summed by log-sum-exp over ln C(m, i): exact to about
-// 1e-9 relative for m <= 2^20. For larger m it stays an upper bound: the
-// terms near i = h are summed, the rest bounded by a geometric series, ln C
-// from Robbins' Stirling bounds (overestimate below 1e-4 in the log), and
-// for h >= m/2 the value m ln 2 (at most ln 2 above the sum). h >= m gives
-// m ln 2; m = 0 or h = 0 gives 0.
-// REQUIRES: nothing (any h, m). Thread-safe.
-double LogGrowthFunctionBound(std::uint64_t h, std::uint64_t m);
-
-// LogSauerShelahClosedForm
-// Returns h ln(e m / h) = ln (e m / h)^h, the closed-form relaxation of the
-// Sauer-Shelah sum, valid for m >= h >= 1. h = 0 returns 0; m < h returns
-// m ln 2 (the sum is then 2^m exactly).
-// REQUIRES: nothing (any h, m). Thread-safe.
-double LogSauerShelahClosedForm(std::uint64_t h, std::uint64_t m);
-
 }  // namespace riskbound::core
 
 #endif  // RISKBOUND_SERVICE_CORE_CAPACITY_H_

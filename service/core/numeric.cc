@@ -465,15 +465,6 @@ double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p) {
       .upper;
 }
 
-double BinomialCdfLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact) {
-  if (k >= n || p <= 0.0) return 1.0;
-  if (p >= 1.0) return 0.0;
-  const LogBounds b = AnyTailBounds(n, k, p, /*upper_tail=*/false,
-                                    std::numeric_limits<double>::infinity());
-  if (!b.Converged() && exact != nullptr) *exact = false;
-  const double v = std::exp(b.lower);
-  return v >= 0.0 ? std::min(v, 1.0) : 0.0;  // never NaN
-}
 
 bool UpperLimitAtMost(std::uint64_t n, std::uint64_t k, double delta, double eps) {
   if (k >= n) return eps >= 1.0;
@@ -508,12 +499,18 @@ bool LowerLimitAbove(std::uint64_t n, std::uint64_t k, double delta, double eps)
   return BinomialLowerLimit(n, k, delta).value > eps;
 }
 
-double BinomialUpperTailLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact) {
-  if (k == 0) return 1.0;
-  if (k > n || p <= 0.0) return 0.0;
-  if (p >= 1.0) return 1.0;
-  const LogBounds b = AnyTailBounds(n, k, p, /*upper_tail=*/true,
-                                    std::numeric_limits<double>::infinity());
+double BinomialTailLowerBound(std::uint64_t n, std::uint64_t k, double p, BinomialTail tail,
+                              bool* exact) {
+  const bool upper = tail == BinomialTail::kAtLeast;
+  if (upper) {
+    if (k == 0) return 1.0;
+    if (k > n || p <= 0.0) return 0.0;
+    if (p >= 1.0) return 1.0;
+  } else {
+    if (k >= n || p <= 0.0) return 1.0;
+    if (p >= 1.0) return 0.0;
+  }
+  const LogBounds b = AnyTailBounds(n, k, p, upper, std::numeric_limits<double>::infinity());
   if (!b.Converged() && exact != nullptr) *exact = false;
   const double v = std::exp(b.lower);
   return v >= 0.0 ? std::min(v, 1.0) : 0.0;  // never NaN
@@ -530,33 +527,52 @@ TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
 }
 
 absl::StatusOr<std::uint64_t> SmallestSatisfying(
-    std::uint64_t lo, std::uint64_t hi,
-    const std::function<bool(std::uint64_t)>& ok) {
-  if (!ok(hi)) {
+    std::uint64_t lo, std::uint64_t hi, const std::function<bool(std::uint64_t)>& ok,
+    std::optional<std::uint64_t> guess) {
+  const auto not_found = [] {
     return absl::NotFoundError("no value in the search range satisfies the target");
+  };
+  if (!guess.has_value()) {
+    if (!ok(hi)) return not_found();
+    guess = lo;
   }
-  if (ok(lo)) return lo;
-  // Exponential search for a bracket (bad, good].
-  std::uint64_t bad = lo;
+  const std::uint64_t start = std::clamp(*guess, lo, hi);
+  // Steps double (saturating), so a bracket is found in about log2 of the
+  // distance from the start.
+  const auto next_step = [](std::uint64_t step) {
+    return step > std::numeric_limits<std::uint64_t>::max() / 2 ? step : step * 2;
+  };
+  // A bracket (bad, good] with ok(good) and not ok(bad).
+  std::uint64_t good = start;
+  std::uint64_t bad = 0;
   std::uint64_t step = 1;
-  std::uint64_t good = hi;
-  while (true) {
-    const std::uint64_t probe = (hi - bad > step) ? bad + step : hi;
-    if (ok(probe)) {
+  if (ok(start)) {
+    while (true) {
+      if (good == lo) return lo;
+      const std::uint64_t probe = good - lo > step ? good - step : lo;
+      if (!ok(probe)) {
+        bad = probe;
+        break;
+      }
       good = probe;
-      break;
+      step = next_step(step);
     }
-    bad = probe;
-    if (probe == hi) break;  // Unreachable: ok(hi) is true.
-    step = step > (std::numeric_limits<std::uint64_t>::max() / 2) ? step : step * 2;
+  } else {
+    bad = start;
+    while (true) {
+      if (bad == hi) return not_found();
+      const std::uint64_t probe = hi - bad > step ? bad + step : hi;
+      if (ok(probe)) {
+        good = probe;
+        break;
+      }
+      bad = probe;
+      step = next_step(step);
+    }
   }
   while (good - bad > 1) {
     const std::uint64_t mid = bad + (good - bad) / 2;
-    if (ok(mid)) {
-      good = mid;
-    } else {
-      bad = mid;
-    }
+    (ok(mid) ? good : bad) = mid;
   }
   return good;
 }

@@ -8,6 +8,7 @@
 
 #include <cstdint>
 #include <functional>
+#include <optional>
 
 #include "absl/status/statusor.h"
 
@@ -92,18 +93,21 @@ TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
 // REQUIRES: k <= n, 0 <= p <= 1.
 double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p);
 
-// BinomialCdfLowerBound
-// Returns a lower bound on P(Bin(n, p) <= k), equal to it to double precision
-// unless *exact is set to false (left untouched otherwise; may be null).
-// Same method and cost as LogBinomialCdf.
-// REQUIRES: k <= n, 0 <= p <= 1.
-double BinomialCdfLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact);
+// Which tail of Bin(n, p) a probability is about.
+enum class BinomialTail {
+  kAtMost,   // P(Bin(n, p) <= k): the CDF
+  kAtLeast,  // P(Bin(n, p) >= k)
+};
 
-// BinomialUpperTailLowerBound
-// Returns a lower bound on P(Bin(n, p) >= k), equal to it to double precision
-// unless *exact is set to false (left untouched otherwise; may be null).
-// Same method and cost as LogBinomialCdf. REQUIRES: 0 <= p <= 1.
-double BinomialUpperTailLowerBound(std::uint64_t n, std::uint64_t k, double p, bool* exact);
+// BinomialTailLowerBound
+// Returns a lower bound on the tail probability, equal to it to double
+// precision unless *exact is set to false (left untouched otherwise; may be
+// null): never more than the true value, so a pass probability is never
+// overstated and a plan only grows. Same method and cost as LogBinomialCdf.
+// kAtMost with k >= n and kAtLeast with k = 0 give 1.
+// REQUIRES: 0 <= p <= 1; k <= n for kAtMost.
+double BinomialTailLowerBound(std::uint64_t n, std::uint64_t k, double p, BinomialTail tail,
+                              bool* exact = nullptr);
 
 // UpperLimitAtMost
 // Returns BinomialUpperLimit(n, k, delta).value <= eps, decided from one
@@ -129,14 +133,20 @@ bool LowerLimitAbove(std::uint64_t n, std::uint64_t k, double delta, double eps)
 double LogChoose(double n, double k);
 
 // SmallestSatisfying
-// For a monotone predicate (false ... false true ... true) on the integers
-// [lo, hi], returns the smallest x with ok(x) true, by exponential search from
-// lo and then bisection: about 2 log2(x) calls of ok. Returns NOT_FOUND when
-// ok(hi) is false.
+// The one "smallest n such that" search of the core. For a monotone
+// predicate (false ... false true ... true) on the integers [lo, hi], returns
+// the smallest x with ok(x) true, or NOT_FOUND when there is none.
+// Without a guess: ok(hi) first (NOT_FOUND at once when it is false), then an
+// exponential search up from lo and a bisection: about 2 log2(x - lo) + 2
+// calls. With a guess (clamped to [lo, hi]), where ok is costly far from it
+// (bound evaluations at huge n): ok(hi) is never asked first; exponential
+// steps away from the guess (down when ok(guess), up otherwise), then a
+// bisection: about 2 log2|x - guess| + 1 calls, and NOT_FOUND once the steps
+// up reach hi without success.
 // REQUIRES: lo <= hi.
 absl::StatusOr<std::uint64_t> SmallestSatisfying(
-    std::uint64_t lo, std::uint64_t hi,
-    const std::function<bool(std::uint64_t)>& ok);
+    std::uint64_t lo, std::uint64_t hi, const std::function<bool(std::uint64_t)>& ok,
+    std::optional<std::uint64_t> guess = std::nullopt);
 
 }  // namespace riskbound::core
 

@@ -121,33 +121,6 @@ absl::StatusOr<std::uint64_t> RobustSmallest(double rate, std::uint64_t lo,
   return SmallestSatisfying(lo, kPlanMaxSamples, robust);
 }
 
-// Smallest x in [lo, hi] with ok(x), for a monotone ok, searching outward
-// from a guess: exponential steps away from it, then bisection, so the cost
-// is about 2 log2 |answer - guess| calls. NOT_FOUND when ok(hi) is false.
-absl::StatusOr<std::uint64_t> SmallestNear(std::uint64_t guess, std::uint64_t lo,
-                                           std::uint64_t hi, const Predicate& ok) {
-  guess = std::clamp(guess, lo, hi);
-  std::uint64_t step = 1;
-  if (ok(guess)) {
-    std::uint64_t good = guess;
-    while (good > lo) {
-      const std::uint64_t probe = good - lo > step ? good - step : lo;
-      if (!ok(probe)) return SmallestSatisfying(probe + 1, good, ok);
-      good = probe;
-      step *= 2;
-    }
-    return good;
-  }
-  std::uint64_t bad = guess;
-  while (true) {
-    if (bad == hi) return absl::NotFoundError("no value in the search range satisfies the target");
-    const std::uint64_t probe = hi - bad > step ? bad + step : hi;
-    if (ok(probe)) return SmallestSatisfying(bad + 1, probe, ok);
-    bad = probe;
-    step *= 2;
-  }
-}
-
 // The upper bound HoldoutExactBinomial reports: the Clopper-Pearson limit,
 // clipped to [0, 1] and never below k/n (as MakeCertificate does).
 double HoldoutUpper(std::uint64_t n, std::uint64_t k, double delta, bool* exact) {
@@ -157,12 +130,6 @@ double HoldoutUpper(std::uint64_t n, std::uint64_t k, double delta, bool* exact)
   return std::max(v, static_cast<double>(k) / static_cast<double>(n));
 }
 
-// P(Bin(n, p) <= k), summed in log space (numeric.h; bounded cost at any n);
-// where the sum cannot be settled a lower bound stands in (exact = false),
-// which never overstates the pass probability.
-double PassProbability(std::uint64_t n, std::uint64_t k, double p, bool* exact) {
-  return BinomialCdfLowerBound(n, k, p, exact);
-}
 
 std::string Unreachable(double target, double expected, absl::string_view what) {
   if (target >= 1.0) {
@@ -377,7 +344,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
         }
       }
       const Predicate feasible = [&](std::uint64_t n) { return ok(n, k); };
-      absl::StatusOr<std::uint64_t> s = SmallestNear(guess, lo, hi, feasible);
+      absl::StatusOr<std::uint64_t> s = SmallestSatisfying(lo, hi, feasible, guess);
       if (!s.ok() && hi < kPlanMaxSamples) {
         // Beyond ~1e13 samples Boost's inversion gives way to the (larger)
         // kl-Chernoff bound for some counts and not others, so the bracket
@@ -394,7 +361,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
       // final check below reports it as unreachable if it is the answer.
       if (!s.ok()) return true;
       bool unused = true;
-      return PassProbability(*s, k_max(*s, k), p, &unused) >= target;
+      return BinomialTailLowerBound(*s, k_max(*s, k), p, BinomialTail::kAtMost, &unused) >= target;
     };
     // Search K outward from the 9.5 answer's tolerated count: exponential
     // steps, then bisection. NOTE: beyond ~1e8 samples P(pass at s_K) is not
@@ -404,7 +371,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
     const std::uint64_t guess = tolerated;
     const std::uint64_t k_limit =
         static_cast<std::uint64_t>(eps * static_cast<double>(kPlanMaxSamples)) + 1;
-    const absl::StatusOr<std::uint64_t> k_star = SmallestNear(guess, 0, k_limit, passes);
+    const absl::StatusOr<std::uint64_t> k_star = SmallestSatisfying(0, k_limit, passes, guess);
     const absl::StatusOr<std::uint64_t> s_star =
         k_star.ok() ? first_feasible(*k_star) : k_star;
     if (ok.stopped()) return stop.Status();
@@ -445,7 +412,8 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
   bool exact = true;
   HoldoutUpper(plan.sample_count, plan.tolerated_error_count, delta, &exact);
   plan.pass_probability_at_plan =
-      PassProbability(plan.sample_count, plan.tolerated_error_count, p, &exact);
+      BinomialTailLowerBound(plan.sample_count, plan.tolerated_error_count, p,
+                             BinomialTail::kAtMost, &exact);
   plan.additional_sample_count = plan.sample_count > request.held_sample_count
                                      ? plan.sample_count - request.held_sample_count
                                      : 0;

@@ -10,6 +10,7 @@
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "service/core/field_violation.h"
+#include "service/core/gate_internal.h"
 #include "service/core/plan.h"
 #include "tests/testing/fixture.h"
 #include "tests/testing/status_matchers.h"
@@ -178,6 +179,9 @@ TEST(GateTest, PairedChampionDecisionValues) {
   EXPECT_GT(*d->difference_upper_bound, 0.0);
   EXPECT_EQ(d->verdict, Verdict::kHold);
   EXPECT_THAT(Reasons(*d), HasSubstr("McNemar"));
+  // What a p-value is, and what it is not.
+  EXPECT_THAT(Reasons(*d), HasSubstr("if the two models were equally good"));
+  EXPECT_THAT(Reasons(*d), HasSubstr("it is not the probability that it is better"));
   // Ledger: risk upper, risk lower, difference upper, difference lower.
   ASSERT_EQ(d->delta_ledger.size(), 4u);
   for (const auto& [name, delta] : d->delta_ledger) EXPECT_EQ(delta, 0.0125) << name;
@@ -606,6 +610,31 @@ TEST(GateTest, VerdictNames) {
   EXPECT_STREQ(VerdictName(Verdict::kPromote), "PROMOTE");
   EXPECT_STREQ(VerdictName(Verdict::kHold), "HOLD");
   EXPECT_STREQ(VerdictName(Verdict::kReject), "REJECT");
+}
+
+// The decision table, every combination of its six facts, against the rule
+// gate.h states (first match wins: below the minimum HOLD; a REJECT finding
+// REJECT; both PROMOTE findings PROMOTE; else HOLD). Source: the rule text of
+// gate.h, spelled out here independently of gate_decision.cc.
+TEST(GateDecisionTableTest, EveryCombinationFollowsTheStatedRule) {
+  for (int bits = 0; bits < 64; ++bits) {
+    gate_internal::Findings f;
+    f.below_min = bits & 1;
+    f.risk_promote = bits & 2;
+    f.risk_reject = bits & 4;
+    f.has_champion = bits & 8;
+    f.cmp_promote = bits & 16;
+    f.cmp_reject = bits & 32;
+    Verdict expected = Verdict::kHold;
+    if (f.below_min) {
+      expected = Verdict::kHold;
+    } else if (f.risk_reject || f.cmp_reject) {
+      expected = Verdict::kReject;
+    } else if (f.risk_promote && f.cmp_promote) {
+      expected = Verdict::kPromote;
+    }
+    EXPECT_EQ(gate_internal::DecideVerdict(f).verdict, expected) << "bits " << bits;
+  }
 }
 
 }  // namespace

@@ -162,13 +162,13 @@ TEST(BinomialTailTest, MatchesBoostAcrossTheMode) {
           EXPECT_NEAR(std::exp(LogBinomialCdf(n, k, p)), cdf, 1e-11 * cdf + 1e-300);
         }
         bool exact = true;
-        const double low = BinomialCdfLowerBound(n, k, p, &exact);
+        const double low = BinomialTailLowerBound(n, k, p, BinomialTail::kAtMost, &exact);
         EXPECT_TRUE(exact);
         EXPECT_NEAR(low, cdf, 1e-11 * cdf + 1e-300);
         if (k >= 1) {
           const double upper =
               boost::math::cdf(boost::math::complement(bin, static_cast<double>(k) - 1.0));
-          EXPECT_NEAR(BinomialUpperTailLowerBound(n, k, p, &exact), upper,
+          EXPECT_NEAR(BinomialTailLowerBound(n, k, p, BinomialTail::kAtLeast, &exact), upper,
                       1e-11 * upper + 1e-300);
           EXPECT_TRUE(exact);
         }
@@ -245,6 +245,38 @@ TEST(SmallestSatisfyingTest, FindsThresholdAndReportsUnreachable) {
   }
   EXPECT_THAT(SmallestSatisfying(1, 10, [](std::uint64_t) { return false; }),
               StatusIs(absl::StatusCode::kNotFound));
+}
+
+// Brute force: from a guess on either side of the answer the search finds it
+// in about 2 log2 |answer - guess| + 1 calls, never asks the far end of the
+// range first, and reports NOT_FOUND once it reaches the end.
+TEST(SmallestSatisfyingTest, SearchesOutwardFromAGuess) {
+  const std::uint64_t hi = 1ULL << 53;
+  for (std::uint64_t target : {5ULL, 1000ULL, 401379ULL, 1ULL << 40}) {
+    for (std::uint64_t guess :
+         std::vector<std::uint64_t>{1, target - 1, target, target + 1, target + 5000, hi}) {
+      int calls = 0;
+      bool asked_hi = false;
+      auto got = SmallestSatisfying(
+          1, hi,
+          [&](std::uint64_t x) {
+            ++calls;
+            asked_hi |= x == hi;
+            return x >= target;
+          },
+          guess);
+      ASSERT_TRUE(got.ok());
+      EXPECT_EQ(*got, target) << "guess " << guess;
+      const double distance = std::abs(static_cast<double>(target) - static_cast<double>(guess));
+      EXPECT_LE(calls, 2 * std::log2(distance + 1) + 3) << "guess " << guess;
+      EXPECT_EQ(asked_hi, guess == hi) << "guess " << guess;
+    }
+  }
+  EXPECT_THAT(SmallestSatisfying(1, 1000, [](std::uint64_t) { return false; }, 10),
+              StatusIs(absl::StatusCode::kNotFound));
+  // Guesses outside the range are clamped to it.
+  EXPECT_EQ(*SmallestSatisfying(5, 9, [](std::uint64_t x) { return x >= 7; }, 100), 7u);
+  EXPECT_EQ(*SmallestSatisfying(5, 9, [](std::uint64_t x) { return x >= 2; }, 0), 5u);
 }
 
 // Source: exact integer binomials (Python math.comb, fixture log_choose.csv).

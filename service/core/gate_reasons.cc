@@ -1,0 +1,145 @@
+// The gate's reason sentences (gate_internal.h): each names the numbers it
+// compares, in plain words.
+#include <string>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
+#include "absl/strings/str_join.h"
+#include "service/core/gate_internal.h"
+
+namespace riskbound::core::gate_internal {
+namespace {
+
+// The champion comparison in one clause, for the summary.
+std::string ComparisonClause(const Findings& f, const Measured& m) {
+  const std::string& id = *m.champion_id;
+  if (f.cmp_reject) {
+    return absl::StrCat("the candidate is worse than champion '", id, "' by at least ",
+                        Num(*m.difference_lower), ", beyond the tolerated ", Num(m.tolerance));
+  }
+  if (f.cmp_promote) {
+    return absl::StrCat("the candidate is at most ", Num(*m.difference_upper),
+                        " worse than champion '", id, "' (tolerated ", Num(m.tolerance), ")");
+  }
+  return absl::StrCat("the comparison with champion '", id,
+                      "' is not settled: the difference may be up to ",
+                      Num(*m.difference_upper), " against a tolerated ", Num(m.tolerance));
+}
+
+}  // namespace
+
+std::string Num(double v) { return absl::StrFormat("%.6g", v); }
+
+std::string SummaryReason(const Decision& decision, const Findings& f, const Measured& m) {
+  const double upper = m.risk_certificate.risk_upper_bound;
+  switch (decision.rule) {
+    case Rule::kBelowMinimum: {
+      std::string s = absl::StrCat("HOLD: ", m.held, " hold-out samples, fewer than the policy's ",
+                                   "minimum of ", m.min_holdout_sample_count,
+                                   "; more labelled data is needed before a verdict");
+      if (f.risk_reject || f.cmp_reject) {
+        absl::StrAppend(&s, " (the bounds alone would already REJECT)");
+      } else if (f.risk_promote && f.cmp_promote) {
+        absl::StrAppend(&s, " (the bounds alone would PROMOTE)");
+      }
+      return s;
+    }
+    case Rule::kReject: {
+      std::vector<std::string> why;
+      if (f.risk_reject) {
+        why.push_back(absl::StrCat("the true error is above the threshold ", Num(m.max_risk),
+                                   " with confidence (lower bound ", Num(*m.risk_lower_bound),
+                                   ")"));
+      }
+      if (f.cmp_reject) why.push_back(ComparisonClause(f, m));
+      return absl::StrCat("REJECT: ", absl::StrJoin(why, "; and "),
+                          "; more data is not expected to change this");
+    }
+    case Rule::kPromote: {
+      std::string s = absl::StrCat("PROMOTE: the true error is at most ", Num(upper),
+                                   ", at or below the threshold ", Num(m.max_risk));
+      if (f.has_champion) absl::StrAppend(&s, "; and ", ComparisonClause(f, m));
+      return s;
+    }
+    case Rule::kUnsettled:
+      break;
+  }
+  std::vector<std::string> why;
+  if (!f.risk_promote) {
+    why.push_back(absl::StrCat("the true error may be up to ", Num(upper),
+                               ", above the threshold ", Num(m.max_risk),
+                               ", but is not shown to exceed it"));
+  }
+  if (!f.cmp_promote) why.push_back(ComparisonClause(f, m));
+  return absl::StrCat("HOLD: ", absl::StrJoin(why, "; and "));
+}
+
+std::vector<std::string> BoundReasons(const Findings& f, const Measured& m) {
+  std::vector<std::string> out;
+  const double upper = m.risk_certificate.risk_upper_bound;
+  for (const FamilySpec* spec : m.split.skipped) {
+    out.push_back(absl::StrCat("policy family ", spec->family_name, " not used: it needs ",
+                               spec->evidence_needed));
+  }
+  if (m.upper_family_count > 1) {
+    out.push_back(absl::StrCat("risk upper bound is the tightest of ", m.upper_family_count,
+                               " families, each at failure probability ",
+                               Num(m.split.per_family), " (union bound)"));
+  }
+  out.push_back(absl::StrCat("true error is at most ", Num(upper), " (", m.upper_family_name,
+                             ", empirical ", Num(m.risk_certificate.empirical_risk),
+                             ", failure probability ", Num(m.split.per_family), "), ",
+                             f.risk_promote ? "at or below" : "above", " the threshold ",
+                             Num(m.max_risk)));
+  if (m.risk_certificate.vacuous) {
+    out.push_back(absl::StrCat("the risk upper bound ", Num(upper),
+                               " is vacuous (no better than 1 or the baseline)"));
+  }
+  if (m.risk_lower_bound.has_value()) {
+    out.push_back(absl::StrCat("true error is at least ", Num(*m.risk_lower_bound),
+                               " (Clopper-Pearson on ", m.holdout->error_count, " errors in ",
+                               m.holdout->sample_count, " hold-out samples, failure probability ",
+                               Num(m.split.risk_lower), "), ",
+                               f.risk_reject ? "above" : "not above", " the threshold ",
+                               Num(m.max_risk)));
+  } else {
+    out.push_back(
+        "no hold-out counts: no lower bound on the true error, so the risk test cannot reject");
+  }
+  if (f.risk_promote && f.risk_reject) {
+    out.push_back(absl::StrCat(
+        "the risk upper bound ", Num(upper), " (", m.upper_family_name,
+        ") lies below the hold-out lower bound ", Num(*m.risk_lower_bound),
+        ": the evidence contradicts itself (a bound's assumptions may be violated)"));
+  }
+  if (!f.has_champion) return out;
+  if (!m.tolerance_given) {
+    out.push_back(
+        "no max_regression in the policy: the candidate must not be worse than the champion "
+        "(tolerance 0)");
+  }
+  if (m.mcnemar_p_value.has_value()) {
+    out.push_back(absl::StrCat(
+        "exact one-sided McNemar p-value ", Num(*m.mcnemar_p_value),
+        ": if the two models were equally good, a split of their disagreements at least this "
+        "favourable to the candidate would occur with probability ",
+        Num(*m.mcnemar_p_value),
+        "; small values are evidence that the candidate is better, it is not the probability "
+        "that it is better (McNemar 1947; informational: no verdict rule uses it and it "
+        "spends no failure probability)"));
+  }
+  if (!m.paired) {
+    out.push_back(
+        "champion and candidate were scored on different hold-out sets: this comparison is "
+        "weaker than a paired one on a shared set");
+  }
+  out.push_back(absl::StrCat(
+      "candidate error minus champion '", *m.champion_id, "' error lies in [",
+      Num(*m.difference_lower), ", ", Num(*m.difference_upper), "] (", m.comparison_how,
+      "; failure probability ", Num(m.split.difference_upper + m.split.difference_lower),
+      "); tolerated regression ", Num(m.tolerance)));
+  return out;
+}
+
+}  // namespace riskbound::core::gate_internal
