@@ -1,6 +1,10 @@
 #include "service/core/families.h"
 
 #include <array>
+#include <string>
+#include <vector>
+
+#include "absl/strings/str_join.h"
 
 #include "service/core/bounded_loss.h"
 #include "service/core/compression.h"
@@ -165,6 +169,16 @@ const FamilySpec* FindFamilyByName(absl::string_view name) {
     if (spec.family_name == name) return &spec;
   }
   return nullptr;
+}
+
+std::string TrainingFamilyNames() {
+  std::vector<std::string> names;
+  for (const FamilySpec& spec : kFamilies) {
+    if (spec.capacity_measure != CapacityMeasure::kNone) {
+      names.push_back(std::string(spec.family_name));
+    }
+  }
+  return absl::StrJoin(names, ", ");
 }
 
 }  // namespace riskbound::core

@@ -6,8 +6,9 @@
 #ifndef RISKBOUND_SERVICE_CORE_FAMILIES_H_
 #define RISKBOUND_SERVICE_CORE_FAMILIES_H_
 
-#include "absl/strings/string_view.h"
+#include <string>
 
+#include "absl/strings/string_view.h"
 #include "absl/types/span.h"
 #include "service/core/evidence.h"
 
@@ -66,6 +67,12 @@ const FamilySpec* FindFamily(Family family);
 // FindFamilyByName
 // Returns the registry row whose family_name is `name`, or nullptr.
 const FamilySpec* FindFamilyByName(absl::string_view name);
+
+// TrainingFamilyNames
+// Returns the family_name of every training-set family (those with a
+// capacity_measure), in registry order, joined by ", ": the list that
+// planner and selector messages name.
+std::string TrainingFamilyNames();
 
 }  // namespace riskbound::core
 

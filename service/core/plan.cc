@@ -192,17 +192,6 @@ void CheckHoldoutRequest(const HoldoutPlanRequest& request, const std::string& p
   CheckHeld(prefix, request.held_sample_count, violations);
 }
 
-// The training-set families' names, for messages.
-std::string TrainingFamilies() {
-  std::vector<std::string> names;
-  for (const FamilySpec& spec : Families()) {
-    if (spec.capacity_measure != CapacityMeasure::kNone) {
-      names.push_back(std::string(spec.family_name));
-    }
-  }
-  return absl::StrJoin(names, ", ");
-}
-
 // Checks a training plan request; resolves its capacity in `capacity` (a
 // copy of the request's). Returns the family's row when it is a training-set
 // family.
@@ -212,13 +201,13 @@ const FamilySpec* CheckTrainingRequest(const TrainingPlanRequest& request,
   const FamilySpec* spec = request.family.has_value() ? FindFamily(*request.family) : nullptr;
   if (spec == nullptr) {
     violations->push_back(
-        {prefix + ".family", absl::StrCat("required: a training-set family (", TrainingFamilies(),
+        {prefix + ".family", absl::StrCat("required: a training-set family (", TrainingFamilyNames(),
                                           "); unset, or a value this server does not know")});
   } else if (spec->capacity_measure == CapacityMeasure::kNone) {
     violations->push_back(
         {prefix + ".family",
          absl::StrCat(
-             spec->family_name, " is not a training-set family (", TrainingFamilies(),
+             spec->family_name, " is not a training-set family (", TrainingFamilyNames(),
              "); plan a hold-out set with the hold-out planner (PlanSamplesRequest.holdout)")});
     spec = nullptr;
   }

@@ -23,17 +23,6 @@ constexpr double kWeightSumSlack = 1e-12;
 // microseconds at most).
 constexpr std::size_t kStopCheckEvery = 16;
 
-// The training-set families' names, for messages.
-std::string TrainingFamilies() {
-  std::vector<std::string> names;
-  for (const FamilySpec& spec : Families()) {
-    if (spec.capacity_measure != CapacityMeasure::kNone) {
-      names.push_back(std::string(spec.family_name));
-    }
-  }
-  return absl::StrJoin(names, ", ");
-}
-
 // The candidate's capacity in the family's measure, or nullopt when missing.
 std::optional<double> CapacityOf(const StructureCandidate& c, CapacityMeasure measure) {
   if (measure == CapacityMeasure::kVcDimension) {
@@ -184,13 +173,13 @@ Checked Check(const SelectRequest& request, std::vector<FieldViolation>* v) {
   out.spec = request.family.has_value() ? FindFamily(*request.family) : nullptr;
   CapacityMeasure measure = CapacityMeasure::kNone;
   if (out.spec == nullptr) {
-    v->push_back({"family", absl::StrCat("required: a training-set family (", TrainingFamilies(),
+    v->push_back({"family", absl::StrCat("required: a training-set family (", TrainingFamilyNames(),
                                          "); unset, or a value this server does not know")});
   } else if (out.spec->capacity_measure == CapacityMeasure::kNone) {
     v->push_back({"family", absl::StrCat(out.spec->family_name,
                                          " is not a training-set family; selection along a "
                                          "structure needs a bound uniform over each class (",
-                                         TrainingFamilies(), ")")});
+                                         TrainingFamilyNames(), ")")});
   } else {
     measure = out.spec->capacity_measure;
   }

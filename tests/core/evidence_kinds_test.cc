@@ -5,6 +5,7 @@
 #include <string>
 #include <vector>
 
+#include "absl/strings/match.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
 #include "service/core/bounded_loss.h"
@@ -76,6 +77,18 @@ TEST(EvidenceKindsTest, RegistryRows) {
   const FamilySpec* eb = FindFamily(Family::kBoundedEmpiricalBernstein);
   EXPECT_FALSE(eb->applies(Bounded(0.5, 0.0, 1)));
   EXPECT_TRUE(eb->applies(Bounded(0.5, 0.0, 2)));
+}
+
+// The training-set families are exactly those that read a capacity: the
+// two VC families (Vapnik & Chervonenkis 1971; Vapnik 1998, Theorem 4.1)
+// and the two finite-class families (Blumer et al. 1987). Planner and
+// selector messages list them from this one function.
+TEST(EvidenceKindsTest, TrainingFamilyNamesListsCapacityFamilies) {
+  EXPECT_EQ(TrainingFamilyNames(), "vc-additive, vc-relative, occam-hoeffding, occam-kl");
+  for (const FamilySpec& spec : Families()) {
+    const bool listed = absl::StrContains(TrainingFamilyNames(), spec.family_name);
+    EXPECT_EQ(listed, spec.capacity_measure != CapacityMeasure::kNone) << spec.family_name;
+  }
 }
 
 TEST(EvidenceKindsTest, EachKindAloneIsEnoughEvidence) {
