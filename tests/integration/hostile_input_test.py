@@ -9,7 +9,6 @@ instead of crashing, hanging, growing without bound or answering with the
 wrong status code. All traffic goes to a server started on 127.0.0.1:0;
 every loop is bounded in count and time.
 """
-import argparse
 import base64
 import concurrent.futures
 import json
@@ -27,7 +26,7 @@ import urllib.parse
 import grpc
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from server_harness import ServerProcess, load_stubs  # noqa: E402
+from server_harness import ServerProcess, load_stubs, run_module_tests  # noqa: E402
 
 ARGS = None
 HEALTH_SERVICE = "riskbound.v1.RiskBound"
@@ -117,18 +116,23 @@ class Connected:
         return self.server.stop()
 
 
-class AmplificationTest(unittest.TestCase):
-    """Memory and trailer amplification: one violation per oversized field,
-    capped violation lists, small trailers, bounded server memory."""
+class OneServerTest(unittest.TestCase):
+    """Test cases sharing one server (self.c), started with FLAGS."""
+    FLAGS = ()
 
     @classmethod
     def setUpClass(cls):
         import_stubs()
-        cls.c = Connected()
+        cls.c = Connected(*cls.FLAGS)
 
     @classmethod
     def tearDownClass(cls):
         cls.c.close()
+
+
+class AmplificationTest(OneServerTest):
+    """Memory and trailer amplification: one violation per oversized field,
+    capped violation lists, small trailers, bounded server memory."""
 
     def call_invalid(self, method, request, compression=None):
         with self.assertRaises(grpc.RpcError) as ctx:
@@ -212,18 +216,9 @@ class AmplificationTest(unittest.TestCase):
         self.assertEqual(health_check(self.c.channel, HEALTH_SERVICE), 1)
 
 
-class DecodeTest(unittest.TestCase):
+class DecodeTest(OneServerTest):
     """Bodies that do not decode are INVALID_ARGUMENT, with no raw library
     line in the JSON log."""
-
-    @classmethod
-    def setUpClass(cls):
-        import_stubs()
-        cls.c = Connected()
-
-    @classmethod
-    def tearDownClass(cls):
-        cls.c.close()
 
     def raw_call(self, method, body):
         call = self.c.channel.unary_unary(f"/riskbound.v1.RiskBound/{method}",
@@ -354,17 +349,9 @@ class AdmissionTest(unittest.TestCase):
             c.close()
 
 
-class SizeLimitTest(unittest.TestCase):
+class SizeLimitTest(OneServerTest):
     """--max-request-bytes and --max-response-bytes, with clear errors."""
-
-    @classmethod
-    def setUpClass(cls):
-        import_stubs()
-        cls.c = Connected("--max-request-bytes", "65536", "--max-response-bytes", "4096")
-
-    @classmethod
-    def tearDownClass(cls):
-        cls.c.close()
+    FLAGS = ("--max-request-bytes", "65536", "--max-response-bytes", "4096")
 
     def test_large_request_refused_compressed_or_not(self):
         req = capacity_pb.EstimateCapacityRequest()
@@ -575,16 +562,5 @@ class FlagTest(unittest.TestCase):
             self.assertEqual(first.stop(), 0)
 
 
-def main():
-    global ARGS
-    parser = argparse.ArgumentParser()
-    parser.add_argument("--server", required=True)
-    parser.add_argument("--stubs", required=True)
-    parser.add_argument("--cli", required=True)
-    parser.add_argument("--source", required=True)
-    ARGS, rest = parser.parse_known_args()
-    unittest.main(argv=[sys.argv[0]] + rest, verbosity=2)
-
-
 if __name__ == "__main__":
-    main()
+    run_module_tests("--cli", "--source")
