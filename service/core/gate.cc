@@ -134,48 +134,7 @@ void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdo
 absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
                       const std::optional<ChampionComparison>& champion, Evidence* evidence) {
   std::vector<FieldViolation> v;
-  CheckProbabilityOpen("policy.max_risk", policy.max_risk, &v);
-  if (CheckProbabilityOpen("policy.failure_probability", policy.failure_probability, &v) &&
-      policy.failure_probability < kMinGateDelta) {
-    v.push_back(
-        {"policy.failure_probability", absl::StrCat("must be at least ", Num(kMinGateDelta),
-                                                    " to be split between the gate's tests, got ",
-                                                    Num(policy.failure_probability))});
-  }
-  if (policy.plan_pass_probability.has_value()) {
-    CheckProbabilityOpen("policy.plan_pass_probability", *policy.plan_pass_probability, &v);
-  }
-  if (policy.max_regression.has_value()) {
-    const double t = *policy.max_regression;
-    if (!std::isfinite(t) || t < -1.0 || t > 1.0) {
-      v.push_back({"policy.max_regression",
-                   absl::StrCat("must be a difference of error rates in [-1, 1], got ",
-                                std::isnan(t) ? std::string("NaN") : Num(t))});
-    }
-  }
-  std::set<Family> seen;
-  bool families_ok = true;
-  for (std::size_t i = 0; i < policy.allowed_families.size(); ++i) {
-    const std::string field = absl::StrCat("policy.allowed_families[", i, "]");
-    const std::optional<Family>& family = policy.allowed_families[i];
-    const FamilySpec* spec = family.has_value() ? FindFamily(*family) : nullptr;
-    if (spec == nullptr) {
-      v.push_back({field,
-                   "unknown bound family (unset, or a value this server does not know; "
-                   "ListFamilies lists them)"});
-      families_ok = false;
-    } else if (!seen.insert(spec->family).second) {
-      v.push_back({field, absl::StrCat(spec->family_name, " is listed twice")});
-      families_ok = false;
-    } else if (spec->bounds_expected_loss) {
-      // Their certificates bound an expected loss in the loss's own units;
-      // policy.max_risk is an error rate, so the two cannot be compared.
-      v.push_back({field, absl::StrCat(spec->family_name,
-                                       " bounds an expected loss in its own units, not the "
-                                       "error rate that policy.max_risk limits")});
-      families_ok = false;
-    }
-  }
+  const bool families_ok = CheckGatePolicy(policy, "policy", &v);
 
   if (candidate.id.empty()) v.push_back({"candidate.id", "must name the candidate model"});
   *evidence = candidate.evidence;
@@ -308,6 +267,55 @@ Measured Measure(const GatePolicy& policy, const Evidence& evidence,
 }
 
 }  // namespace
+
+bool CheckGatePolicy(const GatePolicy& policy, const std::string& prefix,
+                     std::vector<FieldViolation>* v) {
+  CheckProbabilityOpen(prefix + ".max_risk", policy.max_risk, v);
+  if (CheckProbabilityOpen(prefix + ".failure_probability", policy.failure_probability, v) &&
+      policy.failure_probability < kMinGateDelta) {
+    v->push_back({prefix + ".failure_probability",
+                  absl::StrCat("must be at least ", Num(kMinGateDelta),
+                               " to be split between the gate's tests, got ",
+                               Num(policy.failure_probability))});
+  }
+  if (policy.plan_pass_probability.has_value()) {
+    CheckProbabilityOpen(prefix + ".plan_pass_probability", *policy.plan_pass_probability, v);
+  }
+  if (policy.max_regression.has_value()) {
+    const double t = *policy.max_regression;
+    if (!std::isfinite(t) || t < -1.0 || t > 1.0) {
+      v->push_back({prefix + ".max_regression",
+                    absl::StrCat("must be a difference of error rates in [-1, 1], got ",
+                                 std::isnan(t) ? std::string("NaN") : Num(t))});
+    }
+  }
+  std::set<Family> seen;
+  bool families_ok = true;
+  for (std::size_t i = 0; i < policy.allowed_families.size(); ++i) {
+    const std::string field = absl::StrCat(prefix, ".allowed_families[", i, "]");
+    const std::optional<Family>& family = policy.allowed_families[i];
+    const FamilySpec* spec = family.has_value() ? FindFamily(*family) : nullptr;
+    if (spec == nullptr) {
+      v->push_back({field,
+                    "unknown bound family (unset, or a value this server does not know; "
+                    "ListFamilies lists them)"});
+      families_ok = false;
+    } else if (!seen.insert(spec->family).second) {
+      v->push_back({field, absl::StrCat(spec->family_name, " is listed twice")});
+      families_ok = false;
+    } else if (spec->bounds_expected_loss) {
+      // Their certificates bound an expected loss in the loss's own units;
+      // policy.max_risk is an error rate, so the two cannot be compared.
+      v->push_back({field, absl::StrCat(spec->family_name,
+                                        " bounds an expected loss in its own units, not the "
+                                        "error rate that ",
+                                        prefix, ".max_risk limits")});
+      families_ok = false;
+    }
+  }
+
+  return families_ok;
+}
 
 const char* VerdictName(Verdict verdict) {
   switch (verdict) {

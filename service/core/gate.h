@@ -49,6 +49,7 @@
 
 #include "absl/status/statusor.h"
 #include "service/core/evidence.h"
+#include "service/core/field_violation.h"
 #include "service/core/paired.h"
 #include "service/core/stop.h"
 
@@ -165,6 +166,16 @@ const std::vector<std::string>& GateCautions();
 // of DecideGate, without computing any bound).
 absl::Status ValidateGate(const GatePolicy& policy, const GateCandidate& candidate,
                           const std::optional<ChampionComparison>& champion);
+
+// CheckGatePolicy
+// Appends every bad field of `policy` to `violations`, with paths
+// "<prefix>.max_risk", "<prefix>.failure_probability",
+// "<prefix>.allowed_families[i]", "<prefix>.max_regression",
+// "<prefix>.plan_pass_probability" (the policy checks of ValidateGate, which
+// uses the prefix "policy"). Returns false when allowed_families cannot be
+// used (an entry unknown, repeated or bounding a loss), true otherwise.
+bool CheckGatePolicy(const GatePolicy& policy, const std::string& prefix,
+                     std::vector<FieldViolation>* violations);
 
 // VerdictName
 // Returns "PROMOTE", "HOLD" or "REJECT" (for reasons and logs).
