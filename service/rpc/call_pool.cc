@@ -23,8 +23,26 @@ CallPool::Admission CallPool::TrySubmit(std::function<void()> work) {
   if (!admitting_) return Admission::kClosed;
   if (pending_ >= max_pending_) return Admission::kFull;
   ++pending_;
-  queue_.push_back(std::move(work));
+  queue_.push_back({std::move(work), true});
   return Admission::kAdmitted;
+}
+
+CallPool::Admission CallPool::TryReserve() {
+  absl::MutexLock lock(&mu_);
+  if (!admitting_) return Admission::kClosed;
+  if (pending_ >= max_pending_) return Admission::kFull;
+  ++pending_;
+  return Admission::kAdmitted;
+}
+
+void CallPool::SubmitReserved(std::function<void()> work) {
+  absl::MutexLock lock(&mu_);
+  queue_.push_back({std::move(work), false});
+}
+
+void CallPool::Release() {
+  absl::MutexLock lock(&mu_);
+  --pending_;
 }
 
 void CallPool::StopAdmitting() {
@@ -45,7 +63,7 @@ int CallPool::pending() const {
 
 void CallPool::Run() {
   while (true) {
-    std::function<void()> work;
+    Queued item;
     {
       absl::MutexLock lock(&mu_);
       auto ready = [this]() ABSL_EXCLUSIVE_LOCKS_REQUIRED(mu_) {
@@ -53,10 +71,11 @@ void CallPool::Run() {
       };
       mu_.Await(absl::Condition(&ready));
       if (queue_.empty()) return;  // exiting with nothing left to run
-      work = std::move(queue_.front());
+      item = std::move(queue_.front());
       queue_.pop_front();
     }
-    work();
+    item.work();
+    if (!item.ends_admission) continue;
     absl::MutexLock lock(&mu_);
     --pending_;
   }

@@ -38,6 +38,24 @@ class CallPool {
   // `work` is not run unless admitted. Thread-safe.
   Admission TrySubmit(std::function<void()> work);
 
+  // TryReserve
+  // Admits a long-lived call (a stream) as one pending call with no work
+  // yet: kAdmitted, kFull or kClosed as TrySubmit. An admitted call queues
+  // its work with SubmitReserved and ends with Release. Thread-safe.
+  Admission TryReserve();
+
+  // SubmitReserved
+  // Queues `work` for a thread on behalf of a call that holds a
+  // reservation; never refused (the reservation was the admission), and the
+  // work runs in the same first-come order as every other call's.
+  // REQUIRES: a reservation held and not yet released. Thread-safe.
+  void SubmitReserved(std::function<void()> work);
+
+  // Release
+  // Ends a reservation. REQUIRES: none of its work is still queued or
+  // running. Thread-safe.
+  void Release();
+
   // StopAdmitting
   // From now on TrySubmit returns kClosed; admitted work still runs.
   // Thread-safe; idempotent.
@@ -48,7 +66,8 @@ class CallPool {
   // when idle. Thread-safe.
   bool WaitIdle(absl::Duration timeout);
 
-  // The number of calls admitted and not yet finished. Thread-safe.
+  // The number of calls admitted (reservations included) and not yet
+  // finished. Thread-safe.
   int pending() const;
 
   int threads() const { return static_cast<int>(threads_.size()); }
@@ -62,7 +81,12 @@ class CallPool {
   std::vector<std::thread> threads_;
 
   mutable absl::Mutex mu_;
-  std::deque<std::function<void()>> queue_ ABSL_GUARDED_BY(mu_);
+  struct Queued {
+    std::function<void()> work;
+    // True for TrySubmit's work, whose end ends its admission.
+    bool ends_admission;
+  };
+  std::deque<Queued> queue_ ABSL_GUARDED_BY(mu_);
   int pending_ ABSL_GUARDED_BY(mu_) = 0;
   bool admitting_ ABSL_GUARDED_BY(mu_) = true;
   bool exiting_ ABSL_GUARDED_BY(mu_) = false;

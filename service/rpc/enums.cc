@@ -87,6 +87,11 @@ constexpr Row<v1::Verdict, core::Verdict> kVerdicts[] = {
     {v1::VERDICT_REJECT, core::Verdict::kReject},
 };
 
+constexpr Row<v1::DeltaSharing, core::DeltaSharing> kDeltaSharings[] = {
+    {v1::DELTA_SHARING_PER_RECORD, core::DeltaSharing::kPerRecord},
+    {v1::DELTA_SHARING_PER_HOLDOUT_SET, core::DeltaSharing::kPerHoldoutSet},
+};
+
 }  // namespace
 
 std::optional<core::Family> FamilyFromProto(int wire) { return CoreOf(kFamilies, wire); }
@@ -123,6 +128,13 @@ v1::DeltaSpread DeltaSpreadToProto(core::DeltaSpread spread) {
 std::optional<core::Verdict> VerdictFromProto(int wire) { return CoreOf(kVerdicts, wire); }
 v1::Verdict VerdictToProto(core::Verdict verdict) {
   return WireOf(kVerdicts, verdict, v1::VERDICT_UNSPECIFIED);
+}
+
+std::optional<core::DeltaSharing> DeltaSharingFromProto(int wire) {
+  return CoreOf(kDeltaSharings, wire);
+}
+v1::DeltaSharing DeltaSharingToProto(core::DeltaSharing sharing) {
+  return WireOf(kDeltaSharings, sharing, v1::DELTA_SHARING_UNSPECIFIED);
 }
 
 }  // namespace riskbound::rpc

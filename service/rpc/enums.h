@@ -16,10 +16,12 @@
 #include "riskbound/v1/capacity.pb.h"
 #include "riskbound/v1/common.pb.h"
 #include "riskbound/v1/gate.pb.h"
+#include "riskbound/v1/registry.pb.h"
 #include "riskbound/v1/select.pb.h"
 #include "service/core/capacity.h"
 #include "service/core/evidence.h"
 #include "service/core/gate.h"
+#include "service/core/registry.h"
 #include "service/core/select.h"
 
 namespace riskbound::rpc {
@@ -43,6 +45,9 @@ v1::DeltaSpread DeltaSpreadToProto(core::DeltaSpread spread);
 
 std::optional<core::Verdict> VerdictFromProto(int wire);
 v1::Verdict VerdictToProto(core::Verdict verdict);
+
+std::optional<core::DeltaSharing> DeltaSharingFromProto(int wire);
+v1::DeltaSharing DeltaSharingToProto(core::DeltaSharing sharing);
 
 }  // namespace riskbound::rpc
 

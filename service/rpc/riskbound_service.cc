@@ -1,6 +1,7 @@
 #include "service/rpc/riskbound_service.h"
 
 #include <algorithm>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -15,6 +16,7 @@
 #include "service/core/stop.h"
 #include "service/rpc/handlers.h"
 #include "service/rpc/logging.h"
+#include "service/rpc/registry_convert.h"
 #include "service/rpc/status.h"
 
 namespace riskbound::rpc {
@@ -23,12 +25,13 @@ namespace internal {
 // One call: its StopToken, fired by gRPC's OnCancel (client gone, deadline)
 // or by the service's CancelAll (drain period over). Owned by gRPC from
 // creation to OnDone, when it deletes itself.
-class CallReactor final : public grpc::ServerUnaryReactor {
+class CallReactor final : public grpc::ServerUnaryReactor, public Cancellable {
  public:
   CallReactor(RiskBoundService* owner, absl::Time deadline) : owner_(owner), stop_(deadline) {
     owner_->Register(this);
   }
   void OnCancel() override { stop_.Cancel(); }
+  void CancelCall() override { stop_.Cancel(); }
   void OnDone() override {
     owner_->Unregister(this);
     delete this;
@@ -102,12 +105,12 @@ absl::Duration ToDuration(std::chrono::system_clock::time_point deadline) {
 RiskBoundService::RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics)
     : pool_(pool), limits_(limits), metrics_(metrics) {}
 
-void RiskBoundService::Register(CallReactor* call) {
+void RiskBoundService::Register(internal::Cancellable* call) {
   absl::MutexLock lock(&mu_);
   calls_.insert(call);
 }
 
-void RiskBoundService::Unregister(CallReactor* call) {
+void RiskBoundService::Unregister(internal::Cancellable* call) {
   absl::MutexLock lock(&mu_);
   calls_.erase(call);
 }
@@ -116,7 +119,7 @@ void RiskBoundService::StartDrain() { draining_.store(true); }
 
 void RiskBoundService::CancelAll() {
   absl::MutexLock lock(&mu_);
-  for (CallReactor* call : calls_) call->stop().Cancel();
+  for (internal::Cancellable* call : calls_) call->CancelCall();
 }
 
 int RiskBoundService::calls_in_flight() const {
@@ -264,6 +267,241 @@ grpc::ServerUnaryReactor* RiskBoundService::ListFamilies(grpc::CallbackServerCon
                                                          const grpc::ByteBuffer* request,
                                                          grpc::ByteBuffer* response) {
   return Dispatch("ListFamilies", context, request, response, &HandleListFamilies);
+}
+
+// ---------------------------------------------------------------------------
+// ScoreRegistry: one reactor per stream.
+
+namespace internal {
+
+// One registry stream. Its life: admitted (a pool reservation) -> read the
+// settings -> for each record: read, score on a pool thread, write -> after
+// the client's half-close, the summary and OK. Exactly one read or one
+// write, or one pool task, is outstanding at any time, so the stream holds
+// one request and one answer at most. Owned by gRPC from creation to
+// OnDone, when it deletes itself.
+class ScoreStream final : public grpc::ServerBidiReactor<grpc::ByteBuffer, grpc::ByteBuffer>,
+                          public Cancellable {
+ public:
+  ScoreStream(RiskBoundService* owner, grpc::CallbackServerContext* context)
+      : owner_(owner),
+        start_(absl::Now()),
+        stream_deadline_(start_ + ToDuration(context->deadline())),
+        peer_(context->peer()),
+        request_id_(RequestIdFor(*context)) {
+    context->AddInitialMetadata("x-request-id", request_id_);
+    owner_->Register(this);
+  }
+
+  // Admission; called once, right after construction.
+  void Begin() {
+    if (owner_->draining_.load()) {
+      Refused("draining");
+      return FinishOnce(absl::UnavailableError("the server is shutting down; retry on another replica"));
+    }
+    switch (owner_->pool_->TryReserve()) {
+      case CallPool::Admission::kAdmitted:
+        reserved_ = true;
+        StartRead(&in_);
+        return;
+      case CallPool::Admission::kFull:
+        Refused("busy");
+        return FinishOnce(absl::ResourceExhaustedError(absl::StrCat(
+            "the server is busy: ", owner_->pool_->max_pending(),
+            " calls are already admitted (--max-pending-calls); retry with backoff")));
+      case CallPool::Admission::kClosed:
+        Refused("draining");
+        return FinishOnce(
+            absl::UnavailableError("the server is shutting down; retry on another replica"));
+    }
+  }
+
+  void OnReadDone(bool ok) override {
+    if (ok) request_bytes_ += static_cast<std::int64_t>(in_.Length());
+    owner_->pool_->SubmitReserved([this, ok] { ok ? Process() : Close(); });
+  }
+
+  void OnWriteDone(bool ok) override {
+    if (!ok) return FinishOnce(absl::CancelledError("the stream broke while writing an answer"));
+    if (closing_) return;
+    StartRead(&in_);
+  }
+
+  void OnCancel() override { CancelCall(); }
+
+  void CancelCall() override {
+    absl::MutexLock lock(&mu_);
+    cancelled_ = true;
+    if (record_stop_ != nullptr) record_stop_->Cancel();
+  }
+
+  void OnDone() override {
+    if (reserved_) owner_->pool_->Release();
+    const absl::Duration latency = absl::Now() - start_;
+    if (owner_->metrics_ != nullptr) {
+      owner_->metrics_->RecordCall("grpc", "ScoreRegistry", final_.code(), latency);
+    }
+    LogCall({.rpc = "ScoreRegistry",
+             .code = final_.code(),
+             .latency_us = absl::ToInt64Microseconds(latency),
+             .peer = peer_,
+             .request_id = request_id_,
+             .message = final_.ok() ? absl::StrCat(tally_.record_count, " records, ",
+                                                   tally_.error_count, " record errors")
+                                    : std::string(final_.message()),
+             .request_bytes = request_bytes_,
+             .response_bytes = response_bytes_});
+    owner_->Unregister(this);
+    delete this;
+  }
+
+ private:
+  bool Cancelled() {
+    absl::MutexLock lock(&mu_);
+    return cancelled_;
+  }
+
+  absl::Status Stopped() const {
+    if (owner_->draining_.load()) {
+      return absl::UnavailableError(
+          "the server is shutting down and stopped this stream; resume on another replica");
+    }
+    if (absl::Now() >= stream_deadline_) {
+      return absl::DeadlineExceededError("the stream ran past its deadline");
+    }
+    return absl::CancelledError("the stream was cancelled");
+  }
+
+  void Refused(const char* reason) {
+    if (owner_->metrics_ != nullptr) owner_->metrics_->RecordRefusal(reason);
+  }
+
+  // Ends the stream with `status`; the only place that calls Finish.
+  void FinishOnce(const absl::Status& status) {
+    if (finished_) return;
+    finished_ = true;
+    final_ = status;
+    Finish(ToGrpcStatus(status));
+  }
+
+  // On a pool thread: the message just read.
+  void Process() {
+    if (Cancelled()) return FinishOnce(Stopped());
+    v1::ScoreRegistryRequest item;
+    const bool decoded = Decode(in_, &item);
+    in_.Clear();
+    if (!settings_.has_value()) {
+      if (!decoded || !item.has_settings()) {
+        return FinishOnce(core::InvalidFields(
+            {{"settings", "the stream's first message must carry the run's settings "
+                          "(ScoreRegistryRequest.settings)"}}));
+      }
+      absl::StatusOr<core::RegistrySettings> settings = ValidatedSettings(item.settings());
+      if (!settings.ok()) return FinishOnce(settings.status());
+      wire_settings_ = item.settings();
+      settings_ = std::move(*settings);
+      ledger_.emplace(*settings_);
+      StartRead(&in_);
+      return;
+    }
+    const std::uint64_t index = next_index_++;
+    v1::ScoreRegistryResponse response;
+    v1::RecordResult* result = response.mutable_result();
+    if (!decoded) {
+      *result = ItemErrorResult(index, "record",
+                                "the message could not be decoded as "
+                                "riskbound.v1.ScoreRegistryRequest (or a string field is not "
+                                "valid UTF-8)");
+    } else if (item.has_settings()) {
+      *result = ItemErrorResult(index, "settings",
+                                "settings come once, as the stream's first message");
+    } else if (!item.has_record()) {
+      *result = ItemErrorResult(index, "record", "the message holds no record");
+    } else {
+      core::StopToken stop(std::min(stream_deadline_, absl::Now() + owner_->limits_.max_call_time));
+      {
+        absl::MutexLock lock(&mu_);
+        if (cancelled_) stop.Cancel();
+        record_stop_ = &stop;
+      }
+      *result = ScoreRecord(wire_settings_, item.record(), index,
+                            owner_->limits_.max_response_bytes, &*ledger_, stop);
+      {
+        absl::MutexLock lock(&mu_);
+        record_stop_ = nullptr;
+      }
+      if (Cancelled()) return FinishOnce(Stopped());
+      if (owner_->metrics_ != nullptr) {
+        if (result->has_gated()) RecordAnswer(owner_->metrics_, result->gated());
+        if (result->has_certified()) RecordAnswer(owner_->metrics_, result->certified());
+      }
+    }
+    tally_.Add(*result);
+    Write(response);
+  }
+
+  // On a pool thread: the client closed its half (or the stream broke).
+  void Close() {
+    if (Cancelled()) return FinishOnce(Stopped());
+    if (!settings_.has_value()) {
+      return FinishOnce(core::InvalidFields(
+          {{"settings", "the stream ended before its settings (ScoreRegistryRequest.settings)"}}));
+    }
+    v1::ScoreRegistryResponse response;
+    *response.mutable_summary() = RunSummaryOf(wire_settings_, *settings_, *ledger_, tally_);
+    closing_ = true;
+    finished_ = true;
+    final_ = absl::OkStatus();
+    Encode(response);
+    StartWriteAndFinish(&out_, grpc::WriteOptions(), grpc::Status::OK);
+  }
+
+  void Encode(const v1::ScoreRegistryResponse& response) {
+    std::string bytes;
+    response.SerializeToString(&bytes);
+    response_bytes_ += static_cast<std::int64_t>(bytes.size());
+    grpc::Slice slice(std::move(bytes));
+    out_ = grpc::ByteBuffer(&slice, 1);
+  }
+
+  void Write(const v1::ScoreRegistryResponse& response) {
+    Encode(response);
+    StartWrite(&out_);
+  }
+
+  RiskBoundService* const owner_;
+  const absl::Time start_;
+  const absl::Time stream_deadline_;
+  const std::string peer_;
+  const std::string request_id_;
+
+  // Touched by one callback or pool task at a time (they never overlap).
+  grpc::ByteBuffer in_;
+  grpc::ByteBuffer out_;
+  bool reserved_ = false;
+  bool finished_ = false;
+  bool closing_ = false;
+  absl::Status final_;
+  std::optional<core::RegistrySettings> settings_;
+  v1::ScoreSettings wire_settings_;
+  std::optional<core::RegistryLedger> ledger_;
+  RegistryTally tally_;
+  std::uint64_t next_index_ = 0;
+  std::int64_t request_bytes_ = 0;
+  std::int64_t response_bytes_ = 0;
+
+  absl::Mutex mu_;
+  bool cancelled_ ABSL_GUARDED_BY(mu_) = false;
+  core::StopToken* record_stop_ ABSL_GUARDED_BY(mu_) = nullptr;
+};
+
+}  // namespace internal
+
+grpc::ServerBidiReactor<grpc::ByteBuffer, grpc::ByteBuffer>* RiskBoundService::ScoreRegistry(
+    grpc::CallbackServerContext* context) {
+  auto* stream = new internal::ScoreStream(this, context);
+  stream->Begin();
+  return stream;
 }
 
 }  // namespace riskbound::rpc

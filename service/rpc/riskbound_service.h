@@ -46,8 +46,18 @@ using RawRiskBoundService = v1::RiskBound::WithRawCallbackMethod_Certify<
             v1::RiskBound::WithRawCallbackMethod_SelectStructure<
                 v1::RiskBound::WithRawCallbackMethod_PlanSamples<
                     v1::RiskBound::WithRawCallbackMethod_ListFamilies<
-                        v1::RiskBound::Service>>>>>>;
+                        v1::RiskBound::WithRawCallbackMethod_ScoreRegistry<
+                            v1::RiskBound::Service>>>>>>>;
+
+// A call in flight that CancelAll can stop.
+class Cancellable {
+ public:
+  virtual ~Cancellable() = default;
+  // Fires the call's StopToken(s). Thread-safe.
+  virtual void CancelCall() = 0;
+};
 class CallReactor;
+class ScoreStream;
 }  // namespace internal
 
 // RiskBoundService
@@ -76,6 +86,14 @@ class RiskBoundService final : public internal::RawRiskBoundService {
   grpc::ServerUnaryReactor* ListFamilies(grpc::CallbackServerContext* context,
                                          const grpc::ByteBuffer* request,
                                          grpc::ByteBuffer* response) override;
+  // The registry stream (registry.proto): admitted to the CallPool once for
+  // its whole life (one pending call), each record computed on a pool
+  // thread in turn, one record in flight per stream, so the server buffers
+  // at most one request and one answer per stream whatever the registry
+  // size. Each record has the per-call time limit; the stream as a whole
+  // only the client's deadline.
+  grpc::ServerBidiReactor<grpc::ByteBuffer, grpc::ByteBuffer>* ScoreRegistry(
+      grpc::CallbackServerContext* context) override;
 
   // StartDrain
   // New calls are refused with UNAVAILABLE from now on. Thread-safe.
@@ -91,13 +109,14 @@ class RiskBoundService final : public internal::RawRiskBoundService {
 
  private:
   friend class internal::CallReactor;
+  friend class internal::ScoreStream;
   template <class Request, class Response>
   grpc::ServerUnaryReactor* Dispatch(
       const char* method, grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
       grpc::ByteBuffer* response,
       absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&));
-  void Register(internal::CallReactor* call);
-  void Unregister(internal::CallReactor* call);
+  void Register(internal::Cancellable* call);
+  void Unregister(internal::Cancellable* call);
 
   // Constant after construction.
   CallPool* const pool_;
@@ -106,7 +125,7 @@ class RiskBoundService final : public internal::RawRiskBoundService {
 
   std::atomic<bool> draining_{false};
   mutable absl::Mutex mu_;
-  absl::flat_hash_set<internal::CallReactor*> calls_ ABSL_GUARDED_BY(mu_);
+  absl::flat_hash_set<internal::Cancellable*> calls_ ABSL_GUARDED_BY(mu_);
 };
 
 }  // namespace riskbound::rpc

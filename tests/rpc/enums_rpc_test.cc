@@ -43,6 +43,7 @@ const std::map<std::string, RoundTrip>& Tables() {
       {"riskbound.v1.CapacityStatus", Through(&CapacityStatusFromProto, &CapacityStatusToProto)},
       {"riskbound.v1.DeltaSpread", Through(&DeltaSpreadFromProto, &DeltaSpreadToProto)},
       {"riskbound.v1.Verdict", Through(&VerdictFromProto, &VerdictToProto)},
+      {"riskbound.v1.DeltaSharing", Through(&DeltaSharingFromProto, &DeltaSharingToProto)},
   };
   return *kTables;
 }
@@ -145,6 +146,10 @@ TEST(EnumTablesTest, EveryCoreValueMapsToAWireValue) {
   }
   for (core::Verdict v : {core::Verdict::kPromote, core::Verdict::kHold, core::Verdict::kReject}) {
     EXPECT_EQ(VerdictFromProto(VerdictToProto(v)), v);
+  }
+  for (core::DeltaSharing d :
+       {core::DeltaSharing::kPerRecord, core::DeltaSharing::kPerHoldoutSet}) {
+    EXPECT_EQ(DeltaSharingFromProto(DeltaSharingToProto(d)), d);
   }
   // Model kinds: every value has a distinct wire value (15 kinds).
   std::set<int> wires;
