@@ -178,10 +178,14 @@ v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::Regist
   if (!refusals.RefuseText("model_version", version, core::kMaxIdBytes)) {
     version.resize(core::kMaxIdBytes);
   }
-  refusals.RefuseText("holdout_set_id", record.holdout_set_id(), core::kMaxIdBytes);
   out.set_record_id(record_id);
   out.set_model_name(name);
   out.set_model_version(version);
+  std::string set_id = record.holdout_set_id();
+  if (!refusals.RefuseText("holdout_set_id", set_id, core::kMaxIdBytes)) {
+    set_id.resize(core::kMaxIdBytes);
+  }
+  out.set_holdout_set_id(set_id);
   if (!refusals.empty()) {
     SetError(core::InvalidFields(refusals.violations), gate, &out);
     return out;
@@ -241,6 +245,19 @@ v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::Regist
   return out;
 }
 
+absl::Status CountLedgerOnly(const v1::RegistryRecord& record, core::RegistryLedger* ledger) {
+  absl::StatusOr<core::RegistryLedger::Allotment> allotment =
+      ledger->Allot(record.holdout_set_id(), record.delta_weight());
+  if (!allotment.ok()) {
+    return absl::FailedPreconditionError(absl::StrCat(
+        "a record re-sent with ledger_only (an earlier part of this run) does not fit the "
+        "settings: ",
+        allotment.status().message()));
+  }
+  ledger->Commit(*allotment);
+  return absl::OkStatus();
+}
+
 v1::RunSummary RunSummaryOf(const v1::ScoreSettings& settings, const core::RegistrySettings& core,
                             const core::RegistryLedger& ledger, const RegistryTally& tally) {
   v1::RunSummary out;
@@ -251,6 +268,7 @@ v1::RunSummary RunSummaryOf(const v1::ScoreSettings& settings, const core::Regis
   out.set_reject_count(tally.reject_count);
   out.set_vacuous_count(tally.vacuous_count);
   out.set_non_vacuous_count(tally.non_vacuous_count);
+  out.set_ledger_only_record_count(tally.ledger_only_record_count);
   out.set_delta_sharing(
       DeltaSharingToProto(core.delta_sharing.value_or(core::DeltaSharing::kPerRecord)));
   out.set_failure_probability(core::RunFailureProbability(core));

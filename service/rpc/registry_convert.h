@@ -38,6 +38,7 @@ struct RegistryTally {
   std::uint64_t reject_count = 0;
   std::uint64_t vacuous_count = 0;
   std::uint64_t non_vacuous_count = 0;
+  std::uint64_t ledger_only_record_count = 0;
 
   // Counts one result.
   void Add(const v1::RecordResult& result);
@@ -57,7 +58,13 @@ v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::Regist
                              std::uint64_t record_index, std::int64_t max_result_bytes,
                              core::RegistryLedger* ledger, const core::StopToken& stop);
 
-// UndecodableRecord
+// CountLedgerOnly
+// A record re-sent with ledger_only: its share counted against its set
+// again, nothing scored. FAILED_PRECONDITION when it does not fit (the
+// resumed run's earlier records do not fit these settings).
+absl::Status CountLedgerOnly(const v1::RegistryRecord& record, core::RegistryLedger* ledger);
+
+// ItemErrorResult
 // The error result of a message that did not decode, or a second settings
 // message, at `record_index`.
 v1::RecordResult ItemErrorResult(std::uint64_t record_index, const std::string& field,

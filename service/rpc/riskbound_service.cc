@@ -404,6 +404,13 @@ class ScoreStream final : public grpc::ServerBidiReactor<grpc::ByteBuffer, grpc:
       StartRead(&in_);
       return;
     }
+    if (decoded && item.has_record() && item.record().ledger_only()) {
+      const absl::Status counted = CountLedgerOnly(item.record(), &*ledger_);
+      if (!counted.ok()) return FinishOnce(counted);
+      ++tally_.ledger_only_record_count;
+      StartRead(&in_);
+      return;
+    }
     const std::uint64_t index = next_index_++;
     v1::ScoreRegistryResponse response;
     v1::RecordResult* result = response.mutable_result();

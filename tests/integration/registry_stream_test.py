@@ -135,6 +135,32 @@ class RegistryStreamTest(unittest.TestCase):
         self.assertLessEqual(Fraction(results[0].failure_probability)
                              + Fraction(results[2].failure_probability), Fraction(0.05))
 
+    def test_ledger_only_records_count_against_their_set(self):
+        # A resumed run re-sends the records an earlier part scored with
+        # ledger_only: they get no result, but their shares still count, so
+        # the two parts together never score more than K records of a set.
+        settings = reg.ScoreSettings(
+            certify=reg.CertifySettings(failure_probability=0.05),
+            delta_sharing=reg.DELTA_SHARING_PER_HOLDOUT_SET,
+            holdout_sets=[reg.HoldoutSetPlan(holdout_set_id="s", record_count=3)])
+        items = [self.holdout_record("r0", 1, 400, holdout_set_id="s", ledger_only=True),
+                 self.holdout_record("r1", 1, 400, holdout_set_id="s", ledger_only=True),
+                 self.holdout_record("r2", 1, 400, holdout_set_id="s"),
+                 self.holdout_record("r3", 1, 400, holdout_set_id="s")]
+        results, summary = self.run_stream(settings, items)
+        self.assertEqual([r.record_id for r in results], ["r2", "r3"])
+        self.assertEqual(results[0].holdout_set_id, "s")
+        self.assertEqual(results[0].WhichOneof("outcome"), "certified")
+        self.assertEqual(results[1].WhichOneof("outcome"), "error")
+        self.assertEqual(summary.ledger_only_record_count, 2)
+        self.assertEqual(summary.holdout_sets[0].scored_record_count, 3)
+        # A ledger_only record that no longer fits ends the stream.
+        too_many = [self.holdout_record(f"p{i}", 1, 400, holdout_set_id="s", ledger_only=True)
+                    for i in range(4)]
+        with self.assertRaises(grpc.RpcError) as ctx:
+            self.run_stream(settings, too_many)
+        self.assertEqual(ctx.exception.code(), grpc.StatusCode.FAILED_PRECONDITION)
+
     def test_gate_mode_verdicts_and_record_paths(self):
         policy = gate_pb.GatePolicy(max_risk=0.05, failure_probability=0.05)
         settings = reg.ScoreSettings(gate=policy)
