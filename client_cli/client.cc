@@ -37,10 +37,23 @@ absl::StatusOr<ClientOptions> ClientOptionsFromArgs(const ParsedArgs& args) {
   return out;
 }
 
+namespace {
+
+// Calls spread over every address the target resolves to (several
+// replicas behind dns:///name, or ipv4:a:p,b:p): gRPC's round_robin policy.
+grpc::ChannelArguments RoundRobinArguments() {
+  grpc::ChannelArguments args;
+  args.SetLoadBalancingPolicyName("round_robin");
+  return args;
+}
+
+}  // namespace
+
 RiskBoundClient::RiskBoundClient(const ClientOptions& options)
     : options_(options),
       // Plaintext today (TLS is planned); the default address is loopback.
-      channel_(grpc::CreateChannel(options.server, grpc::InsecureChannelCredentials())),
+      channel_(grpc::CreateCustomChannel(options.server, grpc::InsecureChannelCredentials(),
+                                         RoundRobinArguments())),
       stub_(v1::RiskBound::NewStub(channel_)) {}
 
 std::unique_ptr<grpc::ClientContext> RiskBoundClient::NewContext() const {

@@ -42,6 +42,7 @@ class RiskBoundClient {
   // Example: auto ctx = client.NewContext(); client.stub()->Gate(ctx.get(), req, &resp);
   std::unique_ptr<grpc::ClientContext> NewContext() const;
   v1::RiskBound::Stub* stub() { return stub_.get(); }
+  grpc::Channel* channel() { return channel_.get(); }
 
   const ClientOptions& options() const { return options_; }
 

@@ -15,6 +15,7 @@
 #include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
+#include "client_cli/shared_flags.h"
 #include "client_cli/json_io.h"
 #include "client_cli/model_flags.h"
 #include "client_cli/names.h"
@@ -22,6 +23,34 @@
 #include "client_cli/table.h"
 
 namespace riskbound::cli {
+
+// Applies --families and --delta-weights. Returns a usage message on error.
+std::optional<std::string> ApplyFamilies(const ParsedArgs& args, v1::CertifyRequest* req) {
+  const std::vector<std::string> names = args.GetList("families");
+  const std::vector<std::string> weights = args.GetList("delta-weights");
+  if (names.size() == 1 && names[0] == "all") {
+    if (!weights.empty()) return std::string("--delta-weights go with a list of families, not 'all'");
+    req->mutable_all_applicable();
+    return std::nullopt;
+  }
+  if (names.empty()) {
+    if (!weights.empty()) return std::string("--delta-weights need --families");
+    return std::nullopt;
+  }
+  v1::FamilyList* list = req->mutable_listed();
+  for (const std::string& name : names) {
+    const std::optional<v1::BoundFamily> family = FamilyFromName(name);
+    if (!family.has_value()) return absl::StrCat(UnknownFamilyMessage(name), ", or all");
+    list->add_families(*family);
+  }
+  for (const std::string& w : weights) {
+    double v = 0;
+    if (!absl::SimpleAtod(w, &v)) return absl::StrCat("--delta-weights: '", w, "' is not a number");
+    list->add_delta_weights(v);
+  }
+  return std::nullopt;
+}
+
 namespace {
 
 constexpr char kUsage[] =
@@ -306,32 +335,6 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
   return std::nullopt;
 }
 
-// Applies --families and --delta-weights. Returns a usage message on error.
-std::optional<std::string> ApplyFamilies(const ParsedArgs& args, v1::CertifyRequest* req) {
-  const std::vector<std::string> names = args.GetList("families");
-  const std::vector<std::string> weights = args.GetList("delta-weights");
-  if (names.size() == 1 && names[0] == "all") {
-    if (!weights.empty()) return std::string("--delta-weights go with a list of families, not 'all'");
-    req->mutable_all_applicable();
-    return std::nullopt;
-  }
-  if (names.empty()) {
-    if (!weights.empty()) return std::string("--delta-weights need --families");
-    return std::nullopt;
-  }
-  v1::FamilyList* list = req->mutable_listed();
-  for (const std::string& name : names) {
-    const std::optional<v1::BoundFamily> family = FamilyFromName(name);
-    if (!family.has_value()) return absl::StrCat(UnknownFamilyMessage(name), ", or all");
-    list->add_families(*family);
-  }
-  for (const std::string& w : weights) {
-    double v = 0;
-    if (!absl::SimpleAtod(w, &v)) return absl::StrCat("--delta-weights: '", w, "' is not a number");
-    list->add_delta_weights(v);
-  }
-  return std::nullopt;
-}
 
 void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
   const double requested = r.delta_accounting().requested_failure_probability();

@@ -15,6 +15,7 @@
 #include "client_cli/command_start.h"
 #include "client_cli/commands.h"
 #include "client_cli/exit_codes.h"
+#include "client_cli/shared_flags.h"
 #include "client_cli/json_io.h"
 #include "client_cli/names.h"
 #include "client_cli/format.h"
@@ -25,6 +26,51 @@
 #include "riskbound/v1/gate.pb.h"
 
 namespace riskbound::cli {
+
+std::optional<std::string> ApplyPolicyFlags(const ParsedArgs& args, v1::GatePolicy* policy) {
+  for (const char* name : {"max-risk", "failure-probability", "max-regression",
+                           "plan-pass-probability"}) {
+    auto v = args.GetDouble(name);
+    if (!v.ok()) return std::string(v.status().message());
+    if (!v->has_value()) continue;
+    const std::string n = name;
+    if (n == "max-risk") policy->set_max_risk(**v);
+    if (n == "failure-probability") policy->set_failure_probability(**v);
+    if (n == "max-regression") policy->set_max_regression(**v);
+    if (n == "plan-pass-probability") policy->set_plan_pass_probability(**v);
+  }
+  auto min_count = args.GetUint64("min-holdout-sample-count");
+  if (!min_count.ok()) return std::string(min_count.status().message());
+  if (min_count->has_value()) policy->set_min_holdout_sample_count(**min_count);
+  if (args.Has("allowed-families")) {
+    policy->clear_allowed_families();
+    for (const std::string& name : args.GetList("allowed-families")) {
+      const std::optional<v1::BoundFamily> family = FamilyFromName(name);
+      if (!family.has_value()) {
+        return absl::StrCat("--allowed-families: ", UnknownFamilyMessage(name));
+      }
+      policy->add_allowed_families(*family);
+    }
+  }
+  return std::nullopt;
+}
+
+std::vector<OptionSpec> PolicyFlagSpecs() {
+  return {
+      {"max-risk", "E", "highest tolerated true error, in (0,1) (policy.max_risk)"},
+      {"failure-probability", "D", "delta of the whole verdict, in (0,1) "
+                                   "(policy.failure_probability)", false, {"delta"}},
+      {"max-regression", "T", "tolerated candidate-minus-champion error, in [-1,1], default 0 "
+                              "(policy.max_regression)"},
+      {"min-holdout-sample-count", "N", "fewer hold-out samples: HOLD (policy."
+                                        "min_holdout_sample_count)"},
+      {"plan-pass-probability", "Q", "for a HOLD, the probability the extra samples settle it, "
+                                     "default 0.8 (policy.plan_pass_probability)"},
+      {"allowed-families", "NAME[,NAME]", "families the risk bound may use, CLI words or enum "
+                                          "names (policy.allowed_families)", true},
+  };
+}
+
 namespace {
 
 using google::protobuf::Descriptor;
@@ -90,17 +136,9 @@ std::vector<OptionSpec> Specs() {
       {"policy", "FILE", "the gate policy (riskbound.v1.GatePolicy JSON)"},
       {"candidate", "FILE", "the candidate model (riskbound.v1.GateCandidate JSON)"},
       {"champion", "FILE", "optional: the model in service (riskbound.v1.ChampionComparison JSON)"},
-      {"max-risk", "E", "highest tolerated true error, in (0,1) (policy.max_risk)"},
-      {"failure-probability", "D", "delta of the whole verdict, in (0,1) "
-                                   "(policy.failure_probability)", false, {"delta"}},
-      {"max-regression", "T", "tolerated candidate-minus-champion error, in [-1,1], default 0 "
-                              "(policy.max_regression)"},
-      {"min-holdout-sample-count", "N", "fewer hold-out samples: HOLD (policy."
-                                        "min_holdout_sample_count)"},
-      {"plan-pass-probability", "Q", "for a HOLD, the probability the extra samples settle it, "
-                                     "default 0.8 (policy.plan_pass_probability)"},
-      {"allowed-families", "NAME[,NAME]", "families the risk bound may use, CLI words or enum "
-                                          "names (policy.allowed_families)", true},
+  };
+  for (OptionSpec& s : PolicyFlagSpecs()) specs.push_back(s);
+  std::vector<OptionSpec> rest = {
       {"candidate-id", "ID", "the candidate's name (candidate.id)"},
       {"holdout-error-count", "K", "the candidate's hold-out errors "
                                    "(candidate.evidence.holdout.error_count)", false,
@@ -116,6 +154,7 @@ std::vector<OptionSpec> Specs() {
                                            "(champion.paired.only_challenger_wrong_count)"},
       {"output", "table|json", "output format (default table)"},
   };
+  for (OptionSpec& s : rest) specs.push_back(s);
   for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
   return specs;
 }
@@ -231,31 +270,7 @@ bool ReadMessage(const std::string& file, const std::string& root,
 // Applies the inline flags to `req`, each overriding its field (files were
 // read first). Returns a usage message on error.
 std::optional<std::string> ApplyFlags(const ParsedArgs& args, v1::GateRequest* req) {
-  v1::GatePolicy* policy = req->mutable_policy();
-  for (const char* name : {"max-risk", "failure-probability", "max-regression",
-                           "plan-pass-probability"}) {
-    auto v = args.GetDouble(name);
-    if (!v.ok()) return std::string(v.status().message());
-    if (!v->has_value()) continue;
-    const std::string n = name;
-    if (n == "max-risk") policy->set_max_risk(**v);
-    if (n == "failure-probability") policy->set_failure_probability(**v);
-    if (n == "max-regression") policy->set_max_regression(**v);
-    if (n == "plan-pass-probability") policy->set_plan_pass_probability(**v);
-  }
-  auto min_count = args.GetUint64("min-holdout-sample-count");
-  if (!min_count.ok()) return std::string(min_count.status().message());
-  if (min_count->has_value()) policy->set_min_holdout_sample_count(**min_count);
-  if (args.Has("allowed-families")) {
-    policy->clear_allowed_families();
-    for (const std::string& name : args.GetList("allowed-families")) {
-      const std::optional<v1::BoundFamily> family = FamilyFromName(name);
-      if (!family.has_value()) {
-        return absl::StrCat("--allowed-families: ", UnknownFamilyMessage(name));
-      }
-      policy->add_allowed_families(*family);
-    }
-  }
+  if (auto problem = ApplyPolicyFlags(args, req->mutable_policy())) return problem;
 
   v1::GateCandidate* candidate = req->mutable_candidate();
   if (auto id = args.Get("candidate-id")) candidate->set_id(*id);

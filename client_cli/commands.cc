@@ -31,6 +31,7 @@ constexpr char kExitCodes[] =
     "  7  the server refused the call for its limits (busy, or a request or answer too large)\n"
     "  10 gate: verdict HOLD (0 is PROMOTE)\n"
     "  11 gate: verdict REJECT\n"
+    "  12 score: some rows are error rows (the other rows are written)\n"
     "\n"
     "Bounds assume i.i.d. samples from the deployment distribution; they say nothing about\n"
     "distribution shift, fairness or misuse, and never replace model-risk review.\n";
@@ -45,6 +46,7 @@ const std::vector<Command>& Commands() {
       {"gate", "PROMOTE, HOLD or REJECT a candidate model under a policy", RunGate},
       {"select", "choose along a nested model structure by the smallest bound (SRM)", RunSelect},
       {"plan", "hold-out or training sample size that reaches a target risk", RunPlan},
+      {"score", "a whole model registry, one row per input row (JSONL or CSV)", RunScore},
       {"health", "the server's gRPC health status (exit 0 only when SERVING)", RunHealth},
   };
   return *kCommands;

@@ -25,6 +25,7 @@ int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ost
 int RunFamilies(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunGate(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunPlan(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+int RunScore(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunSelect(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 
 // Commands

@@ -242,11 +242,11 @@ std::vector<HoldoutSetSpend> RegistryLedger::Spends() const {
 std::string RegistryLedger::Statement(std::uint64_t scored) const {
   if (sharing_ == DeltaSharing::kPerRecord) {
     return absl::StrFormat(
-        "Per-record failure probability: each of the %d scored records holds with probability "
-        "at least 1 - %s on its own; statements about several records at once (such as the "
+        "Per-record failure probability: each scored record holds with probability at least "
+        "1 - %s on its own; statements about several records at once (such as the "
         "best of several models on one hold-out set) are not covered: use per-holdout-set "
         "sharing for those.",
-        scored, DeltaText(delta_));
+        DeltaText(delta_));
   }
   return absl::StrFormat(
       "Failure probability shared per hold-out set (union bound over the records declared for "
