@@ -102,8 +102,9 @@ absl::Duration ToDuration(std::chrono::system_clock::time_point deadline) {
 
 }  // namespace
 
-RiskBoundService::RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics)
-    : pool_(pool), limits_(limits), metrics_(metrics) {}
+RiskBoundService::RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics,
+                                   const TokenAuthenticator* auth)
+    : pool_(pool), limits_(limits), metrics_(metrics), auth_(auth) {}
 
 void RiskBoundService::Register(internal::Cancellable* call) {
   absl::MutexLock lock(&mu_);
@@ -159,6 +160,19 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
   auto refused = [this](const char* reason) {
     if (metrics_ != nullptr) metrics_->RecordRefusal(reason);
   };
+  if (auth_ != nullptr) {
+    // One answer for a missing header, another scheme and a wrong token.
+    const auto& metadata = context->client_metadata();
+    const auto it = metadata.find("authorization");
+    const bool valid =
+        it != metadata.end() &&
+        auth_->Check(absl::string_view(it->second.data(), it->second.size()));
+    if (!valid) {
+      refused("unauthenticated");
+      finish(absl::UnauthenticatedError(kUnauthenticatedMessage), 0);
+      return reactor;
+    }
+  }
   if (draining_.load()) {
     refused("draining");
     finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
