@@ -304,6 +304,13 @@ std::string SettingsProblem(Settings* s) {
   if (!s->http_port_file.empty() && s->server.http_listen_address.empty()) {
     return "--http-port-file needs --http-listen";
   }
+  s->server.auth_token_file = absl::GetFlag(FLAGS_auth_token_file);
+  return "";
+}
+
+// The transport flags, checked after every other flag (so that a bad value
+// elsewhere is named first): TLS files, or --plaintext, never both or neither.
+std::string TransportProblem(Settings* s) {
   riskbound::rpc::TlsFiles& tls = s->server.tls;
   tls.cert_file = absl::GetFlag(FLAGS_tls_cert_file);
   tls.key_file = absl::GetFlag(FLAGS_tls_key_file);
@@ -324,7 +331,6 @@ std::string SettingsProblem(Settings* s) {
            "--tls-client-ca-file for mutual TLS), or --plaintext to serve unencrypted (on "
            "loopback or a trusted network only)";
   }
-  s->server.auth_token_file = absl::GetFlag(FLAGS_auth_token_file);
   return "";
 }
 
@@ -375,6 +381,9 @@ int main(int argc, char** argv) {
   if (absl::Status s = riskbound::rpc::ConfigureLogging(settings.log_format, settings.log_level);
       !s.ok()) {
     return UsageError(absl::StrCat("--log-level: ", s.message()));
+  }
+  if (std::string problem = TransportProblem(&settings); !problem.empty()) {
+    return UsageError(problem);
   }
 
   // Block the shutdown signals before gRPC starts its threads, so that only
