@@ -10,9 +10,10 @@
 // right. No token, nor any part of one, is ever written to a log or an
 // error message.
 //
-// Where it is checked: in RiskBoundService::Dispatch (the raw callback path
-// every riskbound.v1 method goes through) and in the HTTP gateway, not in a
-// grpc::AuthMetadataProcessor. A processor runs only under TLS credentials
+// Where it is checked: in RiskBoundService (RiskBoundService::Authenticated,
+// asked by Dispatch, the raw callback path of every unary riskbound.v1
+// method, and by the ScoreRegistry stream before it admits itself) and in
+// the HTTP gateway, not in a grpc::AuthMetadataProcessor. A processor runs only under TLS credentials
 // (a plaintext loopback server could not require tokens), cannot tell the
 // health service from the API without parsing paths itself, and refuses
 // before the service can count the refusal in the metrics. Dispatch leaves

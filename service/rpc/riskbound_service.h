@@ -120,6 +120,10 @@ class RiskBoundService final : public internal::RawRiskBoundService {
       const char* method, grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
       grpc::ByteBuffer* response,
       absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&));
+  // True when no token is needed, or the call's `authorization` metadata
+  // holds a valid bearer token (auth.h). Every method, unary or streaming,
+  // asks before it admits the call.
+  bool Authenticated(const grpc::CallbackServerContext& context) const;
   void Register(internal::Cancellable* call);
   void Unregister(internal::Cancellable* call);
 

@@ -53,9 +53,10 @@ WRONG = "a1b2c3d4e5f60718293a4b5c6d7e8f91"  # one character off TOKEN_A
 
 
 def setUpModule():
-    global PKI, PKI_DIR, certify_pb, service_grpc
+    global PKI, PKI_DIR, certify_pb, registry_pb, service_grpc
     load_stubs(ARGS.stubs)
     from riskbound.v1 import certify_pb2 as certify_pb  # noqa: E402
+    from riskbound.v1 import registry_pb2 as registry_pb  # noqa: E402
     from riskbound.v1 import riskbound_pb2_grpc as service_grpc  # noqa: E402
     PKI_DIR = tempfile.mkdtemp(prefix="riskbound-pki-")
     PKI = pki.make_pki(PKI_DIR)
@@ -406,6 +407,27 @@ class TokenTest(unittest.TestCase):
         self.assertEqual(metric(port, "riskbound_calls_total",
                                 'transport="grpc",rpc="Certify",code="UNAUTHENTICATED"',
                                 token=TOKEN_A, tls=False), 5)
+
+    def test_registry_stream_needs_the_token_too(self):
+        stub = service_grpc.RiskBoundStub(self.channel)
+        record = registry_pb.RegistryRecord(record_id="r", model_name="m", model_version="1")
+        record.evidence.holdout.error_count = 0
+        record.evidence.holdout.sample_count = 300
+        settings = registry_pb.ScoreSettings(
+            certify=registry_pb.CertifySettings(failure_probability=0.05))
+        messages = [registry_pb.ScoreRegistryRequest(settings=settings),
+                    registry_pb.ScoreRegistryRequest(record=record)]
+        with self.assertRaises(grpc.RpcError) as refused:
+            list(stub.ScoreRegistry(iter(messages), timeout=20,
+                                    metadata=[("authorization", f"Bearer {WRONG}")]))
+        self.assertEqual(refused.exception.code(), grpc.StatusCode.UNAUTHENTICATED)
+        self.assertEqual(refused.exception.details(), call_certify(self.channel)[1])
+        answers = list(stub.ScoreRegistry(iter(messages), timeout=20,
+                                          metadata=[("authorization", f"Bearer {TOKEN_A}")]))
+        self.assertEqual(len(answers), 2)
+        self.assertAlmostEqual(answers[0].result.certified.tightest.risk_upper_bound,
+                               ZERO_OF_300_AT_5_PERCENT, places=9)
+        self.assertTrue(answers[1].HasField("summary"))
 
     def test_health_stays_open(self):
         self.assertEqual(health(self.channel), SERVING)
