@@ -324,7 +324,8 @@ std::string TransportProblem(Settings* s) {
     return "--tls-client-ca-file (mutual TLS) needs --tls-cert-file and --tls-key-file";
   }
   if (s->server.plaintext && tls.enabled()) {
-    return "--plaintext and --tls-cert-file: choose one";
+    return "--plaintext (RISKBOUND_PLAINTEXT) and --tls-cert-file (RISKBOUND_TLS_CERT_FILE): "
+           "choose one";
   }
   if (!s->server.plaintext && !tls.enabled()) {
     return "choose the transport: --tls-cert-file and --tls-key-file to serve TLS (add "
