@@ -63,6 +63,7 @@ BENCHMARK(BM_CoreCertify)
 void BM_RpcCertify(benchmark::State& state) {
   riskbound::rpc::ServerConfig config;
   config.listen_address = "127.0.0.1:0";
+  config.plaintext = true;  // loopback
   auto server = riskbound::rpc::StartServer(config);
   if (!server.ok()) {
     state.SkipWithError("server did not start");

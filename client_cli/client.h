@@ -20,16 +20,51 @@ namespace riskbound::cli {
 struct ClientOptions {
   std::string server = "127.0.0.1:50051";
   absl::Duration timeout = absl::Seconds(10);
+  // Transport: plaintext, or TLS verifying the server against tls_ca_pem
+  // (empty: the system's trusted CAs), presenting tls_cert_pem/tls_key_pem
+  // to a mutual-TLS server when given.
+  bool plaintext = false;
+  std::string tls_ca_pem;
+  std::string tls_cert_pem;
+  std::string tls_key_pem;
+  // The name the server's certificate must carry, when not the host of
+  // `server` (--tls-server-name).
+  std::string tls_server_name;
+  // The bearer token sent as "authorization: Bearer <token>"; empty: none.
+  std::string auth_token;
 };
 
 // ConnectionOptions
-// The --server and --timeout flags every networked command takes.
+// The connection flags every networked command takes: --server, --timeout,
+// --plaintext, --tls-ca-file, --tls-cert-file, --tls-key-file,
+// --tls-server-name, --auth-token-file.
 std::vector<OptionSpec> ConnectionOptions();
 
+// IsLoopbackAddress
+// True for a HOST:PORT whose host is localhost, 127.0.0.0/8 or [::1] (also
+// with an ipv4:/ipv6: scheme), or a unix: socket.
+bool IsLoopbackAddress(const std::string& server);
+
 // ClientOptionsFromArgs
-// Reads --server (default: $RISKBOUND_SERVER, else 127.0.0.1:50051) and
-// --timeout (seconds, > 0). INVALID_ARGUMENT naming the flag on bad values.
+// Reads --server (default: $RISKBOUND_SERVER, else 127.0.0.1:50051),
+// --timeout (seconds, > 0), the transport and the token. The transport is
+// TLS when a --tls-* flag is given, plaintext with --plaintext, and
+// otherwise plaintext to a loopback address and TLS (system CAs) to any
+// other. The token is the first token line of --auth-token-file, else
+// $RISKBOUND_AUTH_TOKEN. The files are read here. INVALID_ARGUMENT naming the
+// flag on bad values, unreadable files, --plaintext with a --tls-* flag, a
+// certificate without its key, or a token to be sent in plaintext to a
+// non-loopback address.
 absl::StatusOr<ClientOptions> ClientOptionsFromArgs(const ParsedArgs& args);
+
+// MakeChannel
+// The channel `options` describe (plaintext or TLS). Every command,
+// `health` included, connects through it.
+std::shared_ptr<grpc::Channel> MakeChannel(const ClientOptions& options);
+
+// AddCallCredentials
+// Adds the bearer token (if any) to a call's metadata.
+void AddCallCredentials(const ClientOptions& options, grpc::ClientContext* context);
 
 // RiskBoundClient
 // One channel; every call carries the configured deadline. Thread-safe.
@@ -56,7 +91,8 @@ class RiskBoundClient {
 // ExitCodeFor
 // kExitOk, kExitInvalidInput (INVALID_ARGUMENT, OUT_OF_RANGE,
 // FAILED_PRECONDITION), kExitUnreachable (UNAVAILABLE, DEADLINE_EXCEEDED),
-// kExitServerLimit (RESOURCE_EXHAUSTED), or kExitInternal.
+// kExitServerLimit (RESOURCE_EXHAUSTED), kExitUnauthenticated
+// (UNAUTHENTICATED, PERMISSION_DENIED), or kExitInternal.
 int ExitCodeFor(const grpc::Status& status);
 
 // ReportRpcError

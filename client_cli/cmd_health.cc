@@ -43,7 +43,7 @@ constexpr double kDefaultTimeoutSeconds = 2;
 
 constexpr char kUsage[] =
     "riskbound health [--service NAME] [--server HOST:PORT] [--timeout SECONDS]\n"
-    "                 [--output table|json]";
+    "                 [--output table|json] [--plaintext | --tls-ca-file PATH ...]";
 constexpr char kSummary[] =
     "Asks riskbound-server for its health through the gRPC Health Checking Protocol\n"
     "(grpc.health.v1.Health/Check) and prints the status: SERVING, NOT_SERVING, UNKNOWN, or\n"
@@ -144,12 +144,14 @@ int RunHealth(const std::vector<std::string>& args, std::ostream& out, std::ostr
   if (!start.args.Has("timeout")) client.timeout = absl::Seconds(kDefaultTimeoutSeconds);
   const std::string service = start.args.Get("service").value_or("");
 
-  // Plaintext, like RiskBoundClient's channel (client.cc).
-  auto channel = grpc::CreateChannel(client.server, grpc::InsecureChannelCredentials());
+  // The same channel (TLS or plaintext) and token as every other command;
+  // the health service itself needs no token.
+  auto channel = MakeChannel(client);
   grpc::GenericStub stub(channel);
   grpc::ClientContext context;
   context.set_deadline(std::chrono::system_clock::now() +
                        absl::ToChronoMilliseconds(client.timeout));
+  AddCallCredentials(client, &context);
   const grpc::ByteBuffer request = EncodeRequest(service);
   grpc::ByteBuffer response;
   std::promise<grpc::Status> done;

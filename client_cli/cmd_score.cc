@@ -520,6 +520,7 @@ int RunScore(const std::vector<std::string>& raw_args, std::ostream& out, std::o
     client.channel()->WaitForConnected(std::chrono::system_clock::now() + std::chrono::seconds(5));
     for (int i = 0; i < 10; ++i) {
       grpc::ClientContext probe;
+      AddCallCredentials(*client_options, &probe);
       probe.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(2));
       v1::ListFamiliesResponse ignored;
       (void)client.stub()->ListFamilies(&probe, v1::ListFamiliesRequest(), &ignored);
@@ -530,6 +531,7 @@ int RunScore(const std::vector<std::string>& raw_args, std::ostream& out, std::o
   std::vector<std::unique_ptr<Stream>> streams;
   for (std::size_t i = 0; i < n_streams; ++i) {
     contexts.push_back(std::make_unique<grpc::ClientContext>());
+    AddCallCredentials(*client_options, contexts.back().get());
     if (parsed->Has("timeout")) {
       contexts.back()->set_deadline(std::chrono::system_clock::now() +
                                     absl::ToChronoMilliseconds(client_options->timeout));

@@ -29,6 +29,7 @@ constexpr char kExitCodes[] =
     "  5  plan: the target risk is unreachable (the reason is printed)\n"
     "  6  health: the server answered, but not SERVING\n"
     "  7  the server refused the call for its limits (busy, or a request or answer too large)\n"
+    "  8  the server refused the credentials (no valid bearer token)\n"
     "  10 gate: verdict HOLD (0 is PROMOTE)\n"
     "  11 gate: verdict REJECT\n"
     "  12 score: some rows are error rows (the other rows are written)\n"

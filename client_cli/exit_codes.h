@@ -16,6 +16,8 @@ enum ExitCode : int {
   kExitServerLimit = 7,     // The server refused the call for its limits
                             // (RESOURCE_EXHAUSTED): busy (retry later), or the
                             // request or its answer is above its size limits.
+  kExitUnauthenticated = 8,  // The server refused the credentials (UNAUTHENTICATED:
+                             // no valid bearer token; PERMISSION_DENIED).
   kExitGateHold = 10,       // `gate`: verdict HOLD (more hold-out data needed).
   kExitGateReject = 11,     // `gate`: verdict REJECT.
   kExitRowErrors = 12,      // `score`: some rows are error rows (the others were written).

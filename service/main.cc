@@ -62,6 +62,20 @@ ABSL_FLAG(std::string, http_listen, "",
           "HTTP port. Port 0 picks a free port (see --http-port-file).");
 ABSL_FLAG(std::string, http_port_file, "",
           "if set, write the bound HTTP port to this file once serving");
+ABSL_FLAG(std::string, tls_cert_file, "",
+          "PEM certificate chain of the server (leaf first): serve TLS on the gRPC port and the "
+          "HTTP port (needs --tls-key-file)");
+ABSL_FLAG(std::string, tls_key_file, "", "PEM private key of --tls-cert-file (unencrypted)");
+ABSL_FLAG(std::string, tls_client_ca_file, "",
+          "PEM CA certificates: mutual TLS, every client must present a certificate that chains "
+          "to one of them and is within its validity dates (needs --tls-cert-file)");
+ABSL_FLAG(bool, plaintext, false,
+          "serve without TLS (say so explicitly; a warning is logged at start). Without TLS "
+          "files and without --plaintext the server does not start");
+ABSL_FLAG(std::string, auth_token_file, "",
+          "file of bearer tokens, one a line ('#' comments; at least 16 characters each): every "
+          "riskbound.v1 call and HTTP request then needs \"authorization: Bearer <token>\" and "
+          "is answered UNAUTHENTICATED without one; health checks stay open. Re-read on SIGHUP");
 ABSL_FLAG(std::string, port_file, "",
           "if set, write the bound port to this file once serving (for tests and scripts); "
           "a file that cannot be written stops the server with exit code 1");
@@ -79,7 +93,7 @@ constexpr int kExitSecondSignal = 4;
 struct FlagSpec {
   const char* name;
   const char* env;
-  const char* value;
+  const char* value;  // empty for a switch (--plaintext, or --plaintext=false)
 };
 constexpr FlagSpec kFlags[] = {
     {"listen", "RISKBOUND_LISTEN", "HOST:PORT"},
@@ -94,6 +108,11 @@ constexpr FlagSpec kFlags[] = {
     {"port-file", "RISKBOUND_PORT_FILE", "PATH"},
     {"http-listen", "RISKBOUND_HTTP_LISTEN", "HOST:PORT"},
     {"http-port-file", "RISKBOUND_HTTP_PORT_FILE", "PATH"},
+    {"tls-cert-file", "RISKBOUND_TLS_CERT_FILE", "PATH"},
+    {"tls-key-file", "RISKBOUND_TLS_KEY_FILE", "PATH"},
+    {"tls-client-ca-file", "RISKBOUND_TLS_CLIENT_CA_FILE", "PATH"},
+    {"plaintext", "RISKBOUND_PLAINTEXT", ""},
+    {"auth-token-file", "RISKBOUND_AUTH_TOKEN_FILE", "PATH"},
 };
 
 absl::CommandLineFlag* FlagOf(const FlagSpec& spec) {
@@ -115,10 +134,15 @@ void PrintHelp() {
          "usage: riskbound-server [--flag=value | --flag value]...\n\n"
          "Every flag can also be set by its environment variable; a flag on the command\n"
          "line wins. The older snake_case spellings (--port_file) are accepted too.\n\n"
+         "transport: give --tls-cert-file and --tls-key-file (TLS; add --tls-client-ca-file for\n"
+         "mutual TLS), or --plaintext; with neither the server does not start (exit code 2).\n"
+         "The HTTP port uses the same TLS and the same bearer tokens.\n\n"
+         "signals: SIGTERM or SIGINT drain and stop; SIGHUP re-reads --auth-token-file.\n\n"
          "flags:\n";
   for (const FlagSpec& spec : kFlags) {
     const absl::CommandLineFlag* flag = FlagOf(spec);
-    std::cout << "  --" << spec.name << " " << spec.value << "  (env " << spec.env
+    std::cout << "  --" << spec.name << (*spec.value ? " " : "") << spec.value << "  (env "
+              << spec.env
               << "; default " << (flag->DefaultValue().empty() ? "none" : flag->DefaultValue())
               << ")\n      " << flag->Help() << "\n";
   }
@@ -131,7 +155,7 @@ void PrintHelp() {
                "  0  stopped by SIGTERM or SIGINT; every call in flight finished in the drain "
                "period\n"
                "  1  could not start (address in use, malformed or not local; port file not "
-               "writable)\n"
+               "writable;\n     TLS files or token file unreadable or invalid)\n"
                "  2  usage error (unknown flag, bad value, stray argument)\n"
                "  3  the drain period ran out: calls still in flight were cancelled\n"
                "  4  a second signal during the drain: exited at once\n";
@@ -180,8 +204,12 @@ int ReadFlags(int argc, char** argv) {
     const FlagSpec* spec = FindSpec(name);
     if (spec == nullptr) return UsageError(absl::StrCat("unknown flag --", name));
     if (!has_value) {
-      if (i + 1 >= argc) return UsageError(absl::StrCat("--", spec->name, " needs a value"));
-      value = argv[++i];
+      if (*spec->value == '\0') {
+        value = "true";  // a switch
+      } else {
+        if (i + 1 >= argc) return UsageError(absl::StrCat("--", spec->name, " needs a value"));
+        value = argv[++i];
+      }
     }
     std::string error;
     if (!FlagOf(*spec)->ParseFrom(value, &error)) {
@@ -276,6 +304,34 @@ std::string SettingsProblem(Settings* s) {
   if (!s->http_port_file.empty() && s->server.http_listen_address.empty()) {
     return "--http-port-file needs --http-listen";
   }
+  s->server.auth_token_file = absl::GetFlag(FLAGS_auth_token_file);
+  return "";
+}
+
+// The transport flags, checked after every other flag (so that a bad value
+// elsewhere is named first): TLS files, or --plaintext, never both or neither.
+std::string TransportProblem(Settings* s) {
+  riskbound::rpc::TlsFiles& tls = s->server.tls;
+  tls.cert_file = absl::GetFlag(FLAGS_tls_cert_file);
+  tls.key_file = absl::GetFlag(FLAGS_tls_key_file);
+  tls.client_ca_file = absl::GetFlag(FLAGS_tls_client_ca_file);
+  s->server.plaintext = absl::GetFlag(FLAGS_plaintext);
+  if (tls.cert_file.empty() != tls.key_file.empty()) {
+    return tls.cert_file.empty() ? "--tls-key-file needs --tls-cert-file"
+                                 : "--tls-cert-file needs --tls-key-file";
+  }
+  if (!tls.client_ca_file.empty() && tls.cert_file.empty()) {
+    return "--tls-client-ca-file (mutual TLS) needs --tls-cert-file and --tls-key-file";
+  }
+  if (s->server.plaintext && tls.enabled()) {
+    return "--plaintext (RISKBOUND_PLAINTEXT) and --tls-cert-file (RISKBOUND_TLS_CERT_FILE): "
+           "choose one";
+  }
+  if (!s->server.plaintext && !tls.enabled()) {
+    return "choose the transport: --tls-cert-file and --tls-key-file to serve TLS (add "
+           "--tls-client-ca-file for mutual TLS), or --plaintext to serve unencrypted (on "
+           "loopback or a trusted network only)";
+  }
   return "";
 }
 
@@ -298,6 +354,23 @@ bool WritePortFile(const std::string& path, int port, std::string* error) {
   return true;
 }
 
+// On SIGHUP: the token file again. A file that no longer reads keeps the
+// tokens in force.
+void ReloadTokens(riskbound::rpc::RunningServer* running) {
+  riskbound::rpc::TokenAuthenticator* auth = running->auth();
+  if (auth == nullptr) {
+    spdlog::info("SIGHUP received: no --auth-token-file to re-read");
+    return;
+  }
+  auto count = auth->Reload();
+  if (count.ok()) {
+    spdlog::info("SIGHUP received: {} bearer token(s) in force from {}", *count, auth->path());
+  } else {
+    spdlog::warn("SIGHUP received: {}; the {} token(s) read before stay in force",
+                 std::string(count.status().message()), auth->token_count());
+  }
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -310,6 +383,9 @@ int main(int argc, char** argv) {
       !s.ok()) {
     return UsageError(absl::StrCat("--log-level: ", s.message()));
   }
+  if (std::string problem = TransportProblem(&settings); !problem.empty()) {
+    return UsageError(problem);
+  }
 
   // Block the shutdown signals before gRPC starts its threads, so that only
   // this thread (sigwait below) receives them.
@@ -317,6 +393,7 @@ int main(int argc, char** argv) {
   sigemptyset(&signals);
   sigaddset(&signals, SIGINT);
   sigaddset(&signals, SIGTERM);
+  sigaddset(&signals, SIGHUP);
   pthread_sigmask(SIG_BLOCK, &signals, nullptr);
 
   auto server = riskbound::rpc::StartServer(settings.server);
@@ -338,22 +415,42 @@ int main(int argc, char** argv) {
     }
   }
   const auto& c = settings.server;
+  if (c.plaintext) {
+    spdlog::warn(
+        "serving in plaintext (--plaintext): calls{} travel unencrypted and the server is not "
+        "authenticated to clients; use TLS (--tls-cert-file, --tls-key-file) off loopback",
+        c.auth_token_file.empty() ? "" : " and bearer tokens");
+  }
+  for (const std::string& warning : running->warnings()) spdlog::warn("{}", warning);
   spdlog::info(
-      "serving riskbound.v1 version={} listen={} port={} http_port={} threads={} "
-      "max_pending_calls={} max_call_seconds={} max_request_bytes={} max_response_bytes={} "
-      "drain_seconds={}",
-      RISKBOUND_ENGINE_VERSION, c.listen_address, port, running->http_port(), c.threads,
-      c.max_pending_calls,
-      absl::ToDoubleSeconds(c.limits.max_call_time), c.limits.max_request_bytes,
-      c.limits.max_response_bytes, absl::ToDoubleSeconds(settings.drain));
+      "serving riskbound.v1 version={} listen={} port={} http_port={} transport={} auth={} "
+      "threads={} max_pending_calls={} max_call_seconds={} max_request_bytes={} "
+      "max_response_bytes={} drain_seconds={}",
+      RISKBOUND_ENGINE_VERSION, c.listen_address, port, running->http_port(),
+      c.plaintext ? "plaintext" : (c.tls.mutual() ? "mutual-tls" : "tls"),
+      running->auth() == nullptr
+          ? std::string("none")
+          : absl::StrCat("bearer-tokens(", running->auth()->token_count(), ")"),
+      c.threads, c.max_pending_calls, absl::ToDoubleSeconds(c.limits.max_call_time),
+      c.limits.max_request_bytes, c.limits.max_response_bytes,
+      absl::ToDoubleSeconds(settings.drain));
 
+  // SIGHUP re-reads the token file (its count is logged, never a token);
+  // SIGTERM or SIGINT start the drain.
   int sig = 0;
-  sigwait(&signals, &sig);
+  while (true) {
+    sigwait(&signals, &sig);
+    if (sig != SIGHUP) break;
+    ReloadTokens(running);
+  }
   spdlog::info("signal {} received: draining for up to {}s (a second signal exits at once)", sig,
                absl::ToDoubleSeconds(settings.drain));
-  std::thread second([&signals] {
+  std::thread second([&signals, running] {
     int again = 0;
-    sigwait(&signals, &again);
+    do {
+      sigwait(&signals, &again);
+      if (again == SIGHUP) ReloadTokens(running);
+    } while (again == SIGHUP);
     spdlog::warn("second signal {} received: exiting now", again);
     spdlog::shutdown();
     std::_Exit(kExitSecondSignal);

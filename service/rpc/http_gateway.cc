@@ -115,13 +115,74 @@ std::string ErrorJson(const absl::Status& status) {
   return out;
 }
 
-HttpGateway::HttpGateway(CallPool* pool, CallLimits limits, Metrics* metrics)
-    : pool_(pool), limits_(limits), metrics_(metrics), server_(std::make_unique<httplib::Server>()) {}
+namespace {
+
+// The HTTPS context: TLS 1.2 or later, the certificate chain and key, and,
+// for mutual TLS, a required client certificate verified against the client
+// CA (OpenSSL checks its chain and validity dates).
+bool SetUpTls(const TlsFiles& tls, SSL_CTX& ctx) {
+  SSL_CTX_set_min_proto_version(&ctx, TLS1_2_VERSION);
+  if (SSL_CTX_use_certificate_chain_file(&ctx, tls.cert_file.c_str()) != 1 ||
+      SSL_CTX_use_PrivateKey_file(&ctx, tls.key_file.c_str(), SSL_FILETYPE_PEM) != 1 ||
+      SSL_CTX_check_private_key(&ctx) != 1) {
+    return false;
+  }
+  if (tls.mutual()) {
+    if (SSL_CTX_load_verify_locations(&ctx, tls.client_ca_file.c_str(), nullptr) != 1) {
+      return false;
+    }
+    STACK_OF(X509_NAME)* names = SSL_load_client_CA_file(tls.client_ca_file.c_str());
+    if (names != nullptr) SSL_CTX_set_client_CA_list(&ctx, names);
+    SSL_CTX_set_verify(&ctx, SSL_VERIFY_PEER | SSL_VERIFY_FAIL_IF_NO_PEER_CERT, nullptr);
+  }
+  return true;
+}
+
+std::unique_ptr<httplib::Server> MakeServer(const TlsFiles& tls) {
+  if (!tls.enabled()) return std::make_unique<httplib::Server>();
+  return std::make_unique<httplib::SSLServer>(
+      [tls](SSL_CTX& ctx) { return SetUpTls(tls, ctx); });
+}
+
+// The JSON methods, for the metrics' rpc label of a refused call (a fixed
+// set: a path never becomes a label).
+constexpr const char* kMethods[] = {"Certify", "EstimateCapacity", "Gate", "SelectStructure",
+                                    "PlanSamples"};
+
+}  // namespace
+
+HttpGateway::HttpGateway(CallPool* pool, CallLimits limits, Metrics* metrics,
+                         const TokenAuthenticator* auth, TlsFiles tls)
+    : pool_(pool),
+      limits_(limits),
+      metrics_(metrics),
+      auth_(auth),
+      tls_(std::move(tls)),
+      server_(MakeServer(tls_)) {}
 
 HttpGateway::~HttpGateway() { Stop(); }
 
 void HttpGateway::Route() {
   server_->set_payload_max_length(static_cast<std::size_t>(limits_.max_request_bytes));
+  if (auth_ != nullptr) {
+    server_->set_pre_routing_handler([this](const httplib::Request& req,
+                                            httplib::Response& res) {
+      if (auth_->Check(req.get_header_value("Authorization"))) {
+        return httplib::Server::HandlerResponse::Unhandled;
+      }
+      metrics_->RecordRefusal("unauthenticated");
+      for (const char* name : kMethods) {
+        if (req.path == absl::StrCat("/v1/", name)) {
+          metrics_->RecordCall("http", name, absl::StatusCode::kUnauthenticated,
+                               absl::ZeroDuration());
+        }
+      }
+      res.status = HttpStatusFor(absl::StatusCode::kUnauthenticated);
+      res.set_header("WWW-Authenticate", "Bearer");
+      res.set_content(ErrorJson(absl::UnauthenticatedError(kUnauthenticatedMessage)), kJson);
+      return httplib::Server::HandlerResponse::Handled;
+    });
+  }
   server_->Get("/metrics", [this](const httplib::Request&, httplib::Response& res) {
     res.set_content(metrics_->Render(), "text/plain; version=0.0.4; charset=utf-8");
   });
@@ -160,6 +221,12 @@ void HttpGateway::Route() {
 }
 
 absl::Status HttpGateway::Start(const std::string& host, int port) {
+  if (!server_->is_valid()) {
+    return absl::InvalidArgumentError(absl::StrCat(
+        "the HTTP port cannot use the TLS files (--tls-cert-file ", tls_.cert_file,
+        ", --tls-key-file ", tls_.key_file,
+        tls_.mutual() ? absl::StrCat(", --tls-client-ca-file ", tls_.client_ca_file) : "", ")"));
+  }
   Route();
   if (port == 0) {
     port_ = server_->bind_to_any_port(host);

@@ -9,6 +9,13 @@
 // {"@type": "type.googleapis.com/google.rpc.BadRequest", "fieldViolations":
 // [{"field": "...", "description": "..."}]}]}, with the HTTP status mapped
 // from the gRPC code in the usual way (400, 429, 503, 504, ...).
+//
+// The port shares the gRPC port's transport security (TLS, or mutual TLS
+// requiring a client certificate from the client CA, from the same files)
+// and its bearer tokens: with a TokenAuthenticator every path, /metrics
+// included, needs "Authorization: Bearer <token>" (a Prometheus scrape job
+// sends one from a file); without a valid one the answer is 401 with the
+// same message as gRPC's UNAUTHENTICATED.
 #ifndef RISKBOUND_SERVICE_RPC_HTTP_GATEWAY_H_
 #define RISKBOUND_SERVICE_RPC_HTTP_GATEWAY_H_
 
@@ -18,9 +25,11 @@
 #include <thread>
 
 #include "absl/status/status.h"
+#include "service/rpc/auth.h"
 #include "service/rpc/call_pool.h"
 #include "service/rpc/metrics.h"
 #include "service/rpc/riskbound_service.h"
+#include "service/rpc/tls.h"
 
 namespace httplib {
 class Server;
@@ -44,15 +53,20 @@ std::string ErrorJson(const absl::Status& status);
 
 class HttpGateway {
  public:
-  // REQUIRES: pool and metrics outlive the gateway.
-  HttpGateway(CallPool* pool, CallLimits limits, Metrics* metrics);
+  // REQUIRES: pool, metrics and auth (null: no token needed) outlive the
+  // gateway. With tls.enabled(), the port speaks HTTPS only (TLS 1.2 or
+  // later), and with tls.mutual() it requires a client certificate that
+  // chains to the client CA. The files must have passed LoadTls.
+  HttpGateway(CallPool* pool, CallLimits limits, Metrics* metrics,
+              const TokenAuthenticator* auth = nullptr, TlsFiles tls = {});
   ~HttpGateway();
   HttpGateway(const HttpGateway&) = delete;
   HttpGateway& operator=(const HttpGateway&) = delete;
 
   // Start
   // Binds HOST:PORT (port 0 picks one; read it back from port()) and serves
-  // on a thread of its own. UNAVAILABLE when the address cannot be bound.
+  // on a thread of its own. UNAVAILABLE when the address cannot be bound,
+  // INVALID_ARGUMENT when the TLS files cannot be loaded.
   absl::Status Start(const std::string& host, int port);
 
   int port() const { return port_; }
@@ -73,6 +87,8 @@ class HttpGateway {
   CallPool* const pool_;
   const CallLimits limits_;
   Metrics* const metrics_;
+  const TokenAuthenticator* const auth_;
+  const TlsFiles tls_;
 
   std::unique_ptr<httplib::Server> server_;
   std::thread thread_;

@@ -102,8 +102,9 @@ absl::Duration ToDuration(std::chrono::system_clock::time_point deadline) {
 
 }  // namespace
 
-RiskBoundService::RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics)
-    : pool_(pool), limits_(limits), metrics_(metrics) {}
+RiskBoundService::RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics,
+                                   const TokenAuthenticator* auth)
+    : pool_(pool), limits_(limits), metrics_(metrics), auth_(auth) {}
 
 void RiskBoundService::Register(internal::Cancellable* call) {
   absl::MutexLock lock(&mu_);
@@ -125,6 +126,15 @@ void RiskBoundService::CancelAll() {
 int RiskBoundService::calls_in_flight() const {
   absl::MutexLock lock(&mu_);
   return static_cast<int>(calls_.size());
+}
+
+bool RiskBoundService::Authenticated(const grpc::CallbackServerContext& context) const {
+  if (auth_ == nullptr) return true;
+  // One answer for a missing header, another scheme and a wrong token.
+  const auto& metadata = context.client_metadata();
+  const auto it = metadata.find("authorization");
+  return it != metadata.end() &&
+         auth_->Check(absl::string_view(it->second.data(), it->second.size()));
 }
 
 template <class Request, class Response>
@@ -159,6 +169,11 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
   auto refused = [this](const char* reason) {
     if (metrics_ != nullptr) metrics_->RecordRefusal(reason);
   };
+  if (!Authenticated(*context)) {
+    refused("unauthenticated");
+    finish(absl::UnauthenticatedError(kUnauthenticatedMessage), 0);
+    return reactor;
+  }
   if (draining_.load()) {
     refused("draining");
     finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
@@ -293,8 +308,13 @@ class ScoreStream final : public grpc::ServerBidiReactor<grpc::ByteBuffer, grpc:
     owner_->Register(this);
   }
 
-  // Admission; called once, right after construction.
-  void Begin() {
+  // Admission; called once, right after construction, with whether the
+  // stream carries a valid bearer token (always true without tokens).
+  void Begin(bool authenticated) {
+    if (!authenticated) {
+      Refused("unauthenticated");
+      return FinishOnce(absl::UnauthenticatedError(kUnauthenticatedMessage));
+    }
     if (owner_->draining_.load()) {
       Refused("draining");
       return FinishOnce(absl::UnavailableError("the server is shutting down; retry on another replica"));
@@ -507,7 +527,7 @@ class ScoreStream final : public grpc::ServerBidiReactor<grpc::ByteBuffer, grpc:
 grpc::ServerBidiReactor<grpc::ByteBuffer, grpc::ByteBuffer>* RiskBoundService::ScoreRegistry(
     grpc::CallbackServerContext* context) {
   auto* stream = new internal::ScoreStream(this, context);
-  stream->Begin();
+  stream->Begin(Authenticated(*context));
   return stream;
 }
 

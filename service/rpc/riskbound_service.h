@@ -7,7 +7,9 @@
 // draining), runs one of the handlers.h functions on a pool thread with a
 // StopToken that fires when the client cancels, its deadline or the server's
 // per-call limit passes, or the drain period ends; the answer is refused with
-// RESOURCE_EXHAUSTED when it is larger than the response limit.
+// RESOURCE_EXHAUSTED when it is larger than the response limit. With a
+// TokenAuthenticator, a call without a valid bearer token is answered
+// UNAUTHENTICATED before it is admitted (auth.h says why here).
 #ifndef RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_
 #define RISKBOUND_SERVICE_RPC_RISKBOUND_SERVICE_H_
 
@@ -21,6 +23,7 @@
 #include "absl/time/time.h"
 #include "riskbound/v1/riskbound.grpc.pb.h"
 #include "service/core/stop.h"
+#include "service/rpc/auth.h"
 #include "service/rpc/call_pool.h"
 #include "service/rpc/metrics.h"
 
@@ -65,8 +68,10 @@ class ScoreStream;
 // Thread-safe.
 class RiskBoundService final : public internal::RawRiskBoundService {
  public:
-  // REQUIRES: `pool` and `metrics` (which may be null) outlive the service.
-  RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics = nullptr);
+  // REQUIRES: `pool`, `metrics` and `auth` (both of which may be null)
+  // outlive the service. A null `auth`: calls need no token.
+  RiskBoundService(CallPool* pool, CallLimits limits, Metrics* metrics = nullptr,
+                   const TokenAuthenticator* auth = nullptr);
 
   grpc::ServerUnaryReactor* Certify(grpc::CallbackServerContext* context,
                                     const grpc::ByteBuffer* request,
@@ -115,6 +120,10 @@ class RiskBoundService final : public internal::RawRiskBoundService {
       const char* method, grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
       grpc::ByteBuffer* response,
       absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&));
+  // True when no token is needed, or the call's `authorization` metadata
+  // holds a valid bearer token (auth.h). Every method, unary or streaming,
+  // asks before it admits the call.
+  bool Authenticated(const grpc::CallbackServerContext& context) const;
   void Register(internal::Cancellable* call);
   void Unregister(internal::Cancellable* call);
 
@@ -122,6 +131,7 @@ class RiskBoundService final : public internal::RawRiskBoundService {
   CallPool* const pool_;
   const CallLimits limits_;
   Metrics* const metrics_;
+  const TokenAuthenticator* const auth_;
 
   std::atomic<bool> draining_{false};
   mutable absl::Mutex mu_;

@@ -16,21 +16,26 @@
 namespace riskbound::rpc {
 
 RunningServer::RunningServer(std::unique_ptr<CallPool> pool, std::unique_ptr<Metrics> metrics,
+                             std::unique_ptr<TokenAuthenticator> auth,
                              std::unique_ptr<RiskBoundService> service,
                              std::unique_ptr<grpc::Server> server,
-                             std::unique_ptr<HttpGateway> http, int port)
+                             std::unique_ptr<HttpGateway> http, int port,
+                             std::vector<std::string> warnings)
     : pool_(std::move(pool)),
       metrics_(std::move(metrics)),
+      auth_(std::move(auth)),
       service_(std::move(service)),
       server_(std::move(server)),
       http_(std::move(http)),
-      port_(port) {}
+      port_(port),
+      warnings_(std::move(warnings)) {}
 
 RunningServer::~RunningServer() {
   if (Drain(absl::ZeroDuration()) == DrainOutcome::kAbandoned) {
     // A handler ignored its cancellation: joining the pool would hang.
     (void)pool_.release();
     (void)metrics_.release();
+    (void)auth_.release();
     (void)service_.release();
     (void)server_.release();
     (void)http_.release();
@@ -79,6 +84,23 @@ absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& c
         absl::StrCat("max_pending_calls: must be at least threads (", config.threads, "), got ",
                      config.max_pending_calls));
   }
+  if (config.plaintext == config.tls.enabled()) {
+    return absl::InvalidArgumentError(
+        config.plaintext ? "plaintext and tls: choose one"
+                         : "no transport security chosen: give tls files, or plaintext");
+  }
+  std::optional<TlsMaterial> tls;
+  if (config.tls.enabled()) {
+    auto loaded = LoadTls(config.tls);
+    if (!loaded.ok()) return loaded.status();
+    tls = *std::move(loaded);
+  }
+  std::unique_ptr<TokenAuthenticator> auth;
+  if (!config.auth_token_file.empty()) {
+    auto loaded = TokenAuthenticator::Load(config.auth_token_file);
+    if (!loaded.ok()) return loaded.status();
+    auth = *std::move(loaded);
+  }
   grpc::EnableDefaultHealthCheckService(true);
   grpc::reflection::InitProtoReflectionServerBuilderPlugin();
   auto pool = std::make_unique<CallPool>(config.threads, config.max_pending_calls);
@@ -90,7 +112,8 @@ absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& c
   metrics->SetLimit("max_call_seconds", absl::ToDoubleSeconds(config.limits.max_call_time));
   metrics->SetLimit("max_request_bytes", static_cast<double>(config.limits.max_request_bytes));
   metrics->SetLimit("max_response_bytes", static_cast<double>(config.limits.max_response_bytes));
-  auto service = std::make_unique<RiskBoundService>(pool.get(), config.limits, metrics.get());
+  auto service =
+      std::make_unique<RiskBoundService>(pool.get(), config.limits, metrics.get(), auth.get());
   std::unique_ptr<HttpGateway> http;
   if (!config.http_listen_address.empty()) {
     const auto colon = config.http_listen_address.rfind(':');
@@ -105,14 +128,22 @@ absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& c
       return absl::InvalidArgumentError(absl::StrCat("http_listen_address: must be HOST:PORT, got \"",
                                                      config.http_listen_address, "\""));
     }
-    http = std::make_unique<HttpGateway>(pool.get(), config.limits, metrics.get());
+    http = std::make_unique<HttpGateway>(pool.get(), config.limits, metrics.get(), auth.get(),
+                                         config.tls);
     if (absl::Status s = http->Start(host, http_port); !s.ok()) return s;
   }
   grpc::ServerBuilder builder;
   int port = 0;
-  // TLS, mTLS and token auth are planned; today the server listens in plaintext
-  // and defaults to loopback.
-  builder.AddListeningPort(config.listen_address, grpc::InsecureServerCredentials(), &port);
+  std::shared_ptr<grpc::ServerCredentials> credentials = grpc::InsecureServerCredentials();
+  if (tls.has_value()) {
+    grpc::SslServerCredentialsOptions options(
+        config.tls.mutual() ? GRPC_SSL_REQUEST_AND_REQUIRE_CLIENT_CERTIFICATE_AND_VERIFY
+                            : GRPC_SSL_DONT_REQUEST_CLIENT_CERTIFICATE);
+    options.pem_root_certs = tls->client_ca_pem;
+    options.pem_key_cert_pairs.push_back({tls->key_pem, tls->cert_chain_pem});
+    credentials = grpc::SslServerCredentials(options);
+  }
+  builder.AddListeningPort(config.listen_address, credentials, &port);
   // Never share the port with another process (a stale server would answer
   // part of the traffic).
   builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
@@ -131,8 +162,9 @@ absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& c
   grpc::HealthCheckServiceInterface* health = server->GetHealthCheckService();
   health->SetServingStatus(true);
   health->SetServingStatus(kHealthServiceName, true);
-  return std::make_unique<RunningServer>(std::move(pool), std::move(metrics), std::move(service),
-                                         std::move(server), std::move(http), port);
+  return std::make_unique<RunningServer>(
+      std::move(pool), std::move(metrics), std::move(auth), std::move(service), std::move(server),
+      std::move(http), port, tls.has_value() ? tls->warnings : std::vector<std::string>{});
 }
 
 }  // namespace riskbound::rpc

@@ -7,15 +7,18 @@
 #include <memory>
 #include <optional>
 #include <string>
+#include <vector>
 
 #include "absl/status/statusor.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 #include "grpcpp/server.h"
+#include "service/rpc/auth.h"
 #include "service/rpc/call_pool.h"
 #include "service/rpc/http_gateway.h"
 #include "service/rpc/metrics.h"
 #include "service/rpc/riskbound_service.h"
+#include "service/rpc/tls.h"
 
 namespace riskbound::rpc {
 
@@ -37,6 +40,14 @@ struct ServerConfig {
   // methods as POST /v1/<Method> in JSON); empty: no HTTP port. Port 0 picks
   // a free port (RunningServer::http_port()).
   std::string http_listen_address;
+  // Transport security of both ports: TLS (mutual TLS with a client CA) from
+  // these files, or plaintext, which must be asked for: a config with
+  // neither (or both) is INVALID_ARGUMENT.
+  TlsFiles tls;
+  bool plaintext = false;
+  // A file of bearer tokens (auth.h); empty: calls need no token. The
+  // health service stays open either way.
+  std::string auth_token_file;
 };
 
 // How a drain ended.
@@ -55,8 +66,9 @@ enum class DrainOutcome {
 class RunningServer {
  public:
   RunningServer(std::unique_ptr<CallPool> pool, std::unique_ptr<Metrics> metrics,
+                std::unique_ptr<TokenAuthenticator> auth,
                 std::unique_ptr<RiskBoundService> service, std::unique_ptr<grpc::Server> server,
-                std::unique_ptr<HttpGateway> http, int port);
+                std::unique_ptr<HttpGateway> http, int port, std::vector<std::string> warnings);
   ~RunningServer();
   RunningServer(const RunningServer&) = delete;
   RunningServer& operator=(const RunningServer&) = delete;
@@ -68,6 +80,11 @@ class RunningServer {
   Metrics* metrics() { return metrics_.get(); }
   grpc::Server* server() { return server_.get(); }
   RiskBoundService* service() { return service_.get(); }
+  // The bearer tokens in force, or null when calls need none.
+  TokenAuthenticator* auth() { return auth_.get(); }
+  // What the operator should know at start that did not stop the server
+  // (a certificate past its end date), one sentence each.
+  const std::vector<std::string>& warnings() const { return warnings_; }
 
   // Drain
   // Marks both health names NOT_SERVING, stops accepting calls, lets the
@@ -81,10 +98,12 @@ class RunningServer {
   // Constant after construction.
   std::unique_ptr<CallPool> pool_;
   std::unique_ptr<Metrics> metrics_;
+  std::unique_ptr<TokenAuthenticator> auth_;
   std::unique_ptr<RiskBoundService> service_;
   std::unique_ptr<grpc::Server> server_;
   std::unique_ptr<HttpGateway> http_;
   const int port_;
+  const std::vector<std::string> warnings_;
 
   absl::Mutex mu_;
   std::optional<DrainOutcome> outcome_ ABSL_GUARDED_BY(mu_);
@@ -94,7 +113,8 @@ class RunningServer {
 // Builds and starts the server. Returns UNAVAILABLE when the address cannot be
 // bound (malformed, not local, or in use: the port is never shared with
 // another process), the same for the HTTP address, INVALID_ARGUMENT for a bad
-// config value.
+// config value (neither TLS nor plaintext, TLS files that do not load), the
+// token file's error when it cannot be read or holds no valid token.
 absl::StatusOr<std::unique_ptr<RunningServer>> StartServer(const ServerConfig& config);
 
 }  // namespace riskbound::rpc

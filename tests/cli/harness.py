@@ -32,7 +32,8 @@ def start_server(binary):
     """Starts riskbound-server on 127.0.0.1:0; returns (process, address)."""
     d = tempfile.mkdtemp(prefix="riskbound-cli-")
     port_file = os.path.join(d, "port")
-    proc = subprocess.Popen([binary, "--listen", "127.0.0.1:0", "--port_file", port_file],
+    proc = subprocess.Popen([binary, "--listen", "127.0.0.1:0", "--port_file", port_file,
+                             "--plaintext"],
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     deadline = time.monotonic() + 30
     while not os.path.exists(port_file) or os.path.getsize(port_file) == 0:

@@ -477,7 +477,12 @@ class FlagTest(unittest.TestCase):
                           ("--drain-seconds", "RISKBOUND_DRAIN_SECONDS"),
                           ("--log-format", "RISKBOUND_LOG_FORMAT"),
                           ("--log-level", "RISKBOUND_LOG_LEVEL"),
-                          ("--port-file", "RISKBOUND_PORT_FILE")]:
+                          ("--port-file", "RISKBOUND_PORT_FILE"),
+                          ("--plaintext", "RISKBOUND_PLAINTEXT"),
+                          ("--tls-cert-file", "RISKBOUND_TLS_CERT_FILE"),
+                          ("--tls-key-file", "RISKBOUND_TLS_KEY_FILE"),
+                          ("--tls-client-ca-file", "RISKBOUND_TLS_CLIENT_CA_FILE"),
+                          ("--auth-token-file", "RISKBOUND_AUTH_TOKEN_FILE")]:
             self.assertIn(flag, out)
             self.assertIn(env, out)
         self.assertNotIn("/work/", out)  # no build-machine path
@@ -518,7 +523,8 @@ class FlagTest(unittest.TestCase):
 
     def test_unwritable_port_file_stops_the_server(self):
         code, _, err = run_server("--listen", "127.0.0.1:0", "--port-file",
-                                  "/nonexistent-dir/sub/port", "--log-format", "json")
+                                  "/nonexistent-dir/sub/port", "--log-format", "json",
+                                  "--plaintext")
         self.assertEqual(code, 1)
         self.assertIn("--port-file", err + _)
 
@@ -527,7 +533,7 @@ class FlagTest(unittest.TestCase):
         port_file = os.path.join(d, "port")
         env = dict(os.environ, RISKBOUND_LISTEN="127.0.0.1:0", RISKBOUND_PORT_FILE=port_file,
                    RISKBOUND_LOG_FORMAT="json", RISKBOUND_LOG_LEVEL="error",
-                   RISKBOUND_THREADS="3")
+                   RISKBOUND_THREADS="3", RISKBOUND_PLAINTEXT="true")
         proc = subprocess.Popen([ARGS.server, "--log-level", "info"], env=env,
                                 stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True)
         try:
@@ -544,14 +550,17 @@ class FlagTest(unittest.TestCase):
             proc.send_signal(signal.SIGTERM)
             out, _ = proc.communicate(timeout=20)
         self.assertEqual(proc.returncode, 0)
-        first = json.loads(out.splitlines()[0])  # JSON from the environment
-        self.assertIn("threads=3", first["message"])  # info: the flag won over "error"
+        lines = [json.loads(line) for line in out.splitlines()]  # JSON from the environment
+        # info: the flag won over "error"; the plaintext warning comes first.
+        self.assertEqual(lines[0]["level"], "warning")
+        self.assertIn("plaintext", lines[0]["message"])
+        self.assertIn("threads=3", lines[1]["message"])
 
     def test_port_in_use_is_refused(self):
         first = ServerProcess(ARGS.server)
         try:
             code, out, err = run_server("--listen", f"127.0.0.1:{first.port}",
-                                        "--log-format", "json")
+                                        "--log-format", "json", "--plaintext")
             self.assertEqual(code, 1)
             lines = (out + err).splitlines()
             self.assertTrue(lines)

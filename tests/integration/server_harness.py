@@ -36,13 +36,15 @@ class ServerProcess:
     """riskbound-server with the given extra flags; stop() sends SIGTERM and
     returns the exit code."""
 
-    def __init__(self, binary, *flags, env=None, log_format="json", log_level="debug"):
+    def __init__(self, binary, *flags, env=None, log_format="json", log_level="debug",
+                 plaintext=True):
         self.dir = tempfile.mkdtemp(prefix="riskbound-it-")
         self.port_file = os.path.join(self.dir, "port")
         self.log = open(os.path.join(self.dir, "server.log"), "w+")
         self.proc = subprocess.Popen(
             [binary, "--listen", "127.0.0.1:0", "--port-file", self.port_file,
-             "--log-level", log_level, "--log-format", log_format] + list(flags),
+             "--log-level", log_level, "--log-format", log_format]
+            + (["--plaintext"] if plaintext else []) + list(flags),
             stdout=self.log, stderr=subprocess.STDOUT, env=env)
         deadline = time.monotonic() + 30
         while not os.path.exists(self.port_file):

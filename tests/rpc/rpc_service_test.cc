@@ -127,6 +127,7 @@ TEST(StatusTest, CodesAreCopied) {
 
 TEST(ServerTest, BadAddressIsUnavailable) {
   ServerConfig config;
+  config.plaintext = true;
   config.listen_address = "256.1.1.1:1";
   EXPECT_THAT(StartServer(config), StatusIs(absl::StatusCode::kUnavailable));
   config.threads = 0;

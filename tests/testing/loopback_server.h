@@ -30,6 +30,7 @@ inline LoopbackEndpoint StartLoopbackServer() {
   LoopbackEndpoint e;
   rpc::ServerConfig config;
   config.listen_address = "127.0.0.1:0";
+  config.plaintext = true;  // in-process, loopback only
   auto server = rpc::StartServer(config);
   EXPECT_TRUE(server.ok()) << server.status();
   if (!server.ok()) return e;
