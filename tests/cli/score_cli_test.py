@@ -216,8 +216,9 @@ class ReplicasTest(unittest.TestCase):
         tmp = tempfile.mkdtemp(prefix="riskbound-rr-")
         port_file = os.path.join(tmp, "port")
         log = open(os.path.join(tmp, "second.log"), "w+")
-        second = subprocess.Popen([harness.ARGS.server, "--listen", "127.0.0.1:0", "--port-file",
-                                   port_file, "--log-format", "json", "--log-level", "debug"],
+        second = subprocess.Popen([harness.ARGS.server, "--plaintext", "--listen", "127.0.0.1:0",
+                                   "--port-file", port_file, "--log-format", "json",
+                                   "--log-level", "debug"],
                                   stdout=log, stderr=subprocess.STDOUT)
         try:
             deadline = time.monotonic() + 30
