@@ -199,12 +199,14 @@ const char* VerdictName(Verdict verdict);
 //        policy.plan_pass_probability when the disagreement rates stay as
 //        observed, by exact enumeration of the disagreement counts (B
 //        binomial, C given B binomial) with Clopper-Pearson limits at the
-//        comparison's share; the search runs over sizes held + j * step,
-//        step = 1/256 of a normal-approximation guess, from that guess, and
-//        returns the smallest such size it finds that reaches the
-//        probability (the probability moves in steps, so not always the
-//        very smallest n); given up past a work budget of 50 ms of CPU
-//        (plans of several hundred thousand samples or more);
+//        comparison's share (where the counts have standard deviations
+//        above 32, in blocks and on a grid of 1/32 of one, counted at the
+//        block's least favourable count, so the probability stays a lower
+//        bound); the search runs over sizes held + j * step, step = 1/256 of
+//        a normal-approximation guess, from that guess, and returns the
+//        smallest such size it finds that reaches the probability (the
+//        probability moves in steps, so not always the very smallest n);
+//        given up past a work budget of 50 ms of CPU (plans of millions);
 //      - below the minimum: at least the samples missing to reach it.
 //    The largest of these is reported.
 // Errors: INVALID_ARGUMENT naming every bad field by its API path

@@ -29,6 +29,10 @@ namespace {
 constexpr double kRejectionPlanCpuSeconds = 0.15;
 // The same for the paired champion-comparison plan (two limits per size).
 constexpr double kPairedPlanCpuSeconds = 0.05;
+// The paired plan's enumeration takes B and C one by one up to this many
+// standard deviations' worth of counts, in blocks of 1/kPairedGrid of a
+// standard deviation beyond (PairedPassProbability).
+constexpr double kPairedGrid = 32.0;
 
 // Smallest n in [lo, kMaxSampleCount] with ok(n) (numeric.h
 // SmallestSatisfying from the guess lo, so the cost scales with the answer,
@@ -142,24 +146,35 @@ absl::StatusOr<std::uint64_t> PlanRejection(double epsilon, double p, double del
 // REJECT (lower limit at delta > t), when the n examples fall into "only the
 // challenger wrong" (B), "only the champion wrong" (C) and the rest with the
 // observed rates rate_b and rate_c. Exact enumeration: B ~ Bin(n, rate_b)
-// and, given B, C ~ Bin(n - B, rate_c / (1 - rate_b)) (a multinomial's
-// conditional); for each B the settling C form an interval (the upper limit
-// falls as C grows, the lower limit rises with B), found by a monotone
-// search, and its probability is a binomial tail (numeric.h, never above the
-// true value). B and C beyond 6 standard deviations (plus 2) of their means
-// are left out, and the sum is lowered by 1e-9 for the rounding of the
-// terms, so the result never overstates the probability. With `enough`, the
-// sum stops once it reaches it (the result is then >= enough, not the whole
-// probability). Checks `budget` once per B; once spent it returns 1 (so a
+// and, given B, C ~ Bin(n - B, r), r = rate_c / (1 - rate_b) (a
+// multinomial's conditional). The upper limit falls as C grows and rises
+// with B (a Clopper-Pearson limit grows with its count), so for each B the
+// settling C form an interval, [c_min(B), n - B] toward PROMOTE and
+// [0, c_fail(B) - 1] toward REJECT, whose ends only grow with B, and its
+// probability is a binomial tail (numeric.h, never above the true value).
+// Where the counts are large (standard deviations above kPairedGrid), B is
+// taken in blocks and C on a grid of 1/kPairedGrid of their standard
+// deviations, each block counted at its least favourable B (its last toward
+// PROMOTE, first toward REJECT: the fewest settling C, and the number of
+// remaining examples that makes the tail smallest), so the sum stays a lower
+// bound at a cost that does not grow with n; smaller counts are enumerated
+// one by one. B and C beyond 6 standard deviations (plus 2) of their means
+// are left out, and the sum is lowered by 1e-9 (and 1e-9 relative) for the
+// rounding of the terms, so the result never overstates the probability.
+// With `enough`, the sum stops once it is known to reach it or known to fall
+// short of it. Checks `budget` once per block; once spent it returns 1 (so a
 // search winds down) and the caller reports RESOURCE_EXHAUSTED.
 double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, double t,
                              double delta, bool toward_promote, std::optional<double> enough,
                              WorkBudget* budget) {
   const double nd = static_cast<double>(n);
-  const auto window = [](std::uint64_t count, double p) {
+  const auto sd = [](std::uint64_t count, double p) {
+    return std::sqrt(static_cast<double>(count) * p * (1.0 - p));
+  };
+  const auto window = [&](std::uint64_t count, double p) {
     const double c = static_cast<double>(count);
     const double mean = c * p;
-    const double spread = 6.0 * std::sqrt(c * p * (1.0 - p)) + 2.0;
+    const double spread = 6.0 * sd(count, p) + 2.0;
     const double lo = std::max(0.0, std::floor(mean - spread));
     const double hi = std::min(c, std::ceil(mean + spread));
     return std::pair<std::uint64_t, std::uint64_t>(static_cast<std::uint64_t>(lo),
@@ -167,6 +182,10 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
   };
   const auto [b_lo, b_hi] = window(n, rate_b);
   const double r = rate_b < 1.0 ? std::min(1.0, rate_c / (1.0 - rate_b)) : 0.0;
+  const std::uint64_t b_stride =
+      std::max<std::uint64_t>(1, static_cast<std::uint64_t>(sd(n, rate_b) / kPairedGrid));
+  const std::uint64_t c_stride =
+      std::max<std::uint64_t>(1, static_cast<std::uint64_t>(sd(n, r) / kPairedGrid));
   // Errors come back as NaN (skipped below, which only lowers the sum), never
   // as an exception.
   using Quiet = boost::math::policies::policy<
@@ -175,15 +194,23 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
       boost::math::policies::evaluation_error<boost::math::policies::ignore_error>>;
   const boost::math::binomial_distribution<double, Quiet> b_law(nd, rate_b);
   // The limits exactly as PairedDifferenceUpper / PairedDifferenceLower
-  // (paired.h) compute them, each once: the B side per B, the C side cached
-  // over the union of the C windows.
+  // (paired.h) compute them, each once: the B side per block, the C side
+  // cached over the union of the C windows.
   const double half = delta / 2.0;
   std::uint64_t c_first = n;
   std::uint64_t c_last = 0;
-  for (std::uint64_t b = b_lo; b <= b_hi; ++b) {
+  for (std::uint64_t b : {b_lo, b_hi}) {
     const auto [lo, hi] = window(n - b, r);
     c_first = std::min(c_first, lo);
     c_last = std::max(c_last, hi);
+  }
+  // The C window is not monotone in n - B at small counts: widen to all B.
+  if (b_hi - b_lo <= 4096) {
+    for (std::uint64_t b = b_lo; b <= b_hi; ++b) {
+      const auto [lo, hi] = window(n - b, r);
+      c_first = std::min(c_first, lo);
+      c_last = std::max(c_last, hi);
+    }
   }
   std::vector<double> c_limits(c_last - c_first + 1, std::numeric_limits<double>::quiet_NaN());
   const auto c_limit = [&](std::uint64_t c) {
@@ -194,21 +221,34 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
     }
     return v;
   };
-  // Toward PROMOTE the settling C are [c_min(B), n - B]; toward REJECT
-  // [0, c_fail(B) - 1] (a Clopper-Pearson limit grows with its count). Both
-  // ends only grow with B, so one walk up over C serves every B. `from` is
-  // never above the current end: c_min(B) >= from (PROMOTE), every C < from
-  // settles (REJECT).
+  // `from` is a proven end for every block to come: c_min(B) >= from
+  // (PROMOTE), every C < from settles (REJECT).
   std::uint64_t from = 0;
   double sum = 0.0;
   double mass = 0.0;  // of the B seen so far
-  for (std::uint64_t b = b_lo; b <= b_hi; ++b) {
+  for (std::uint64_t b1 = b_lo; b1 <= b_hi;) {
     if (budget->Spent()) return 1.0;
-    const double pmf = boost::math::pdf(b_law, static_cast<double>(b));
-    if (!(pmf > 0.0)) continue;
-    mass += pmf;
+    const std::uint64_t b2 = std::min(b_hi, b1 + b_stride - 1);
+    // P(b1 <= B <= b2): Boost's pmf at b1, then the ratio recurrence.
+    double pmf = boost::math::pdf(b_law, static_cast<double>(b1));
+    double block = 0.0;
+    for (std::uint64_t b = b1; b <= b2 && pmf > 0.0; ++b) {
+      block += pmf;
+      pmf *= (nd - static_cast<double>(b)) / static_cast<double>(b + 1) * rate_b /
+             (1.0 - rate_b);
+    }
+    const std::uint64_t next = b2 + 1;
+    if (!(block > 0.0)) {
+      b1 = next;
+      continue;
+    }
+    mass += block;
+    // The block's least favourable B and its remaining examples.
+    const std::uint64_t b = toward_promote ? b2 : b1;
     const std::uint64_t m = n - b;
-    const auto [c_lo, c_hi] = window(m, r);
+    const auto [c_lo0, c_hi0] = window(m, r);
+    const std::uint64_t c_lo = std::max(c_lo0, c_first);
+    const std::uint64_t c_hi = std::min(c_hi0, c_last);
     const double b_limit = toward_promote ? BinomialUpperLimit(n, b, half).value
                                           : BinomialLowerLimit(n, b, half).value;
     const auto settles = [&](std::uint64_t c) {
@@ -216,29 +256,45 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
       return toward_promote ? difference <= t : difference > t;
     };
     const std::uint64_t start = std::max(from, c_lo);
-    std::uint64_t c = start;
     double tail = 0.0;
-    if (toward_promote) {
-      while (c <= c_hi && !settles(c)) ++c;
-      // c is c_min, or c_lo when c_min may lie below the window (the tail
-      // from c_lo is then a lower bound), or past the window (nothing
-      // counted).
-      if (!(c == start && start > from)) from = c;
-      if (c <= c_hi) tail = BinomialTailLowerBound(m, c, r, BinomialTail::kAtLeast);
-    } else {
-      const bool known_below = start == from;  // every C < start settles
-      const bool first = c <= c_hi && settles(c);
-      while (c <= c_hi && settles(c)) ++c;
-      // c is c_fail (or past the window: counted up to its end) whenever
-      // start settles or every C below it does.
-      if (first || known_below) {
-        from = c;
-        if (c >= 1) tail = BinomialTailLowerBound(m, c - 1, r, BinomialTail::kAtMost);
+    if (toward_promote && start <= c_hi) {
+      // The first grid point from `start` that settles (c_hi last).
+      std::optional<std::uint64_t> failed;
+      std::uint64_t c = start;
+      bool found = false;
+      while (true) {
+        if (settles(c)) {
+          found = true;
+          break;
+        }
+        failed = c;
+        if (c == c_hi) break;
+        c = std::min(c_hi, c + c_stride);
       }
+      if (failed.has_value()) from = *failed + 1;  // c_min > the failed point
+      if (found) tail = BinomialTailLowerBound(m, c, r, BinomialTail::kAtLeast);
+    } else if (!toward_promote && start <= c_hi) {
+      // The last grid point from `start` that settles (c_hi last).
+      std::optional<std::uint64_t> settled;
+      if (start == from && from >= 1) settled = from - 1;  // every C < from settles
+      std::uint64_t c = start;
+      while (settles(c)) {
+        settled = c;
+        if (c == c_hi) break;
+        c = std::min(c_hi, c + c_stride);
+      }
+      if (settled.has_value()) {
+        from = std::max(from, *settled + 1);
+        tail = BinomialTailLowerBound(m, *settled, r, BinomialTail::kAtMost);
+      }
+    } else if (!toward_promote && from >= 1) {
+      // The window lies below `from`: every C in it settles.
+      tail = BinomialTailLowerBound(m, from - 1, r, BinomialTail::kAtMost);
     }
-    sum += pmf * tail;
+    sum += block * tail;
+    b1 = next;
     if (enough.has_value()) {
-      // Settled: reached. Unreachable: even if every B still to come settled.
+      // Known to reach it, or to fall short even if every B to come settled.
       if (sum * (1.0 - 1e-9) - 1e-9 >= *enough) break;
       if (sum + std::max(0.0, 1.0 - mass) + 1e-9 < *enough) break;
     }

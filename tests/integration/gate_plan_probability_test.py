@@ -15,6 +15,7 @@ binom.sf / binom.cdf through /usr/bin/python3.
 
 Usage: gate_plan_probability_test.py --server BIN --stubs DIR [unittest args]
 """
+import math
 import os
 import sys
 import unittest
@@ -49,24 +50,39 @@ def cp_lower(n, k, level):
 
 def settle_probability(n, rate_b, rate_c, tolerance, delta_comparison, toward_promote):
     """P(the paired limits at n settle the comparison), summed exactly over
-    B = 0..n (scipy), C's tail given B in closed form."""
+    B (scipy), C's tail given B in closed form. B and C beyond 12 standard
+    deviations of their means (probability below 1e-32) are left out, which
+    only lowers the sum."""
     half = delta_comparison / 2.0
-    counts = np.arange(n + 1)
     r = rate_c / (1.0 - rate_b) if rate_b < 1.0 else 0.0
-    pmf_b = stats.binom.pmf(counts, n, rate_b)
-    rest = n - counts
+
+    def window(count, p):
+        spread = 12 * math.sqrt(count * p * (1 - p)) + 3
+        return max(0, int(count * p - spread)), min(count, int(count * p + spread) + 1)
+
+    b_lo, b_hi = window(n, rate_b)
+    c_lo, c_hi = window(n - b_lo, r)
+    c_lo = min(c_lo, window(n - b_hi, r)[0])
+    bs = np.arange(b_lo, b_hi + 1)
+    cs = np.arange(c_lo, c_hi + 1)
+    pmf_b = stats.binom.pmf(bs, n, rate_b)
+    rest = n - bs
     if toward_promote:
         # Settles when U(B) - L(C) <= t, i.e. C >= c_min(B).
-        upper_b = cp_upper(n, counts, half)
-        lower_c = cp_lower(n, counts, half)  # non-decreasing in C
-        c_min = np.searchsorted(lower_c, upper_b - tolerance, side="left")
-        tail = np.where(c_min <= rest, stats.binom.sf(c_min - 1, rest, r), 0.0)
+        upper_b = cp_upper(n, bs, half)
+        lower_c = cp_lower(n, cs, half)  # non-decreasing in C
+        c_min = cs[0] + np.searchsorted(lower_c, upper_b - tolerance, side="left")
+        # c_min past the window: counted as not settling (a lower bound).
+        ok = (c_min <= cs[-1]) & (c_min <= rest)
+        tail = np.where(ok, stats.binom.sf(c_min - 1, rest, r), 0.0)
     else:
         # Settles when Lo(B) - Up(C) > t, i.e. C < c_fail(B).
-        lower_b = cp_lower(n, counts, half)
-        upper_c = cp_upper(n, counts, half)  # non-decreasing in C
-        c_fail = np.searchsorted(upper_c, lower_b - tolerance, side="left")
-        tail = np.where(c_fail >= 1, stats.binom.cdf(np.minimum(c_fail - 1, rest), rest, r), 0.0)
+        lower_b = cp_lower(n, bs, half)
+        upper_c = cp_upper(n, cs, half)  # non-decreasing in C
+        c_fail = cs[0] + np.searchsorted(upper_c, lower_b - tolerance, side="left")
+        # Every C below the window settles when the window's first does.
+        ok = c_fail > cs[0]
+        tail = np.where(ok, stats.binom.cdf(np.minimum(c_fail - 1, rest), rest, r), 0.0)
     return float(np.sum(pmf_b * tail))
 
 
@@ -115,6 +131,7 @@ class GatePlanProbabilityTest(unittest.TestCase):
         (10, 20, 40, 2000, 0.0),
         (3, 5, 15, 1500, 0.002),
         (0, 1, 9, 800, 0.0),
+        (100, 200, 215, 20000, 0.0),  # plans of about a million: blocks and grid
     ]
 
     def test_reported_total_settles_with_the_policy_probability(self):
