@@ -474,10 +474,10 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
                                   FailureProbabilityText(request.failure_probability));
   } else if (weighted) {
     result.rule = absl::StrFormat(
-        "union bound over %d families with the caller's weights: family j is computed "
+        "union bound over %d %s with the caller's weights: family j is computed "
         "at delta * w_j (rounded down); the tightest certificate holds with probability "
         ">= 1 - %s",
-        k, spent);
+        k, k == 1 ? "family" : "families", spent);
   } else {
     result.rule = absl::StrFormat(
         "union bound over %d families: each computed at delta/%d (rounded down, at most "
