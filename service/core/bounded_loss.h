@@ -3,7 +3,11 @@
 // Setting: the model was fixed before the n hold-out examples were drawn; its
 // per-example losses lie in [loss_min, loss_max], a range fixed in advance.
 // Each function rescales the losses to [0, 1] by z = (x - a) / (b - a),
-// bounds E[z], and maps the limits back, so the certificate's bounds,
+// bounds E[z], and maps the limits back rounding outward (every step of the
+// arithmetic rounded away from the mean, delta_split.h), so a large offset
+// never rounds a limit onto the mean: with n finite the penalty is never 0
+// unless the mean is loss_max (the smallest double above the limit may then
+// be loss_max itself: the certificate is vacuous). The certificate's bounds,
 // empirical value and penalty are in the loss's own units, clipped to
 // [loss_min, loss_max] (Certificate::bounded_loss_units is true). The
 // certificate is vacuous iff its upper bound reaches loss_max. Each also

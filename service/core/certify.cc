@@ -8,13 +8,11 @@
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
 #include "service/core/capacity.h"
+#include "service/core/delta_split.h"
 #include "service/core/families.h"
 
 namespace riskbound::core {
 namespace {
-
-// Relative slack allowed on a weight sum that should be <= 1 (rounding).
-constexpr double kWeightSumSlack = 1e-12;
 
 constexpr double kTwoTo64 = 18446744073709551616.0;
 
@@ -243,39 +241,40 @@ void CheckListed(const FamilyList& listed, const Evidence& evidence, bool capaci
   }
 }
 
-// The weights of a listed request: one per family, each in (0, 1], summing
-// to at most 1. Returns them, or equal weights when none are given.
-std::vector<double> CheckWeights(const CertifyRequest& request, std::size_t k,
+// The caller's weights of a listed request: one per family, each in (0, 1],
+// their exact sum at most 1. Returns them, or nothing for equal shares.
+std::vector<double> CheckWeights(const CertifyRequest& request,
                                  std::vector<FieldViolation>* v) {
-  std::vector<double> weights(k, k == 0 ? 0.0 : 1.0 / static_cast<double>(k));
   const std::vector<double>& given = request.listed.delta_weights;
-  if (given.empty()) return weights;
+  if (given.empty()) return {};
   if (request.family_choice != FamilyChoice::kListed) {
     v->push_back({"listed.delta_weights", "weights go with an explicit list of families"});
-    return weights;
+    return {};
   }
   if (given.size() != request.listed.families.size()) {
     v->push_back({"listed.delta_weights", absl::StrCat("give one weight per listed family: ",
                                                        request.listed.families.size(),
                                                        " families, ", given.size(), " weights")});
-    return weights;
+    return {};
   }
-  double sum = 0.0;
   bool each_ok = true;
+  std::vector<double> usable;  // the finite, non-negative ones, for the sum
   for (std::size_t i = 0; i < given.size(); ++i) {
     const double w = given[i];
     if (!std::isfinite(w) || w <= 0.0 || w > 1.0) {
       v->push_back({absl::StrCat("listed.delta_weights[", i, "]"), "must be a weight in (0, 1]"});
       each_ok = false;
     }
-    sum += w;
+    if (std::isfinite(w) && w >= 0.0) usable.push_back(w);
   }
-  if (sum > 1.0 + kWeightSumSlack) {
-    v->push_back(
-        {"listed.delta_weights", absl::StrFormat("weights must sum to at most 1, got %.12g", sum)});
+  // Exactly, not in rounded double arithmetic: [0.5, 0.5000000000000001]
+  // sums to more than 1 and would overspend the failure probability.
+  if (!WeightsSumAtMostOne(usable)) {
+    v->push_back({"listed.delta_weights",
+                  WeightSumMessage(usable, each_ok ? "listed.delta_weights" : "")});
     each_ok = false;
   }
-  return each_ok ? given : weights;
+  return each_ok ? given : std::vector<double>();
 }
 
 // A Certify request after its checks: the evidence with its capacity
@@ -283,6 +282,7 @@ std::vector<double> CheckWeights(const CertifyRequest& request, std::size_t k,
 struct Checked {
   Evidence evidence;
   std::vector<const FamilySpec*> chosen;
+  // The caller's weights; empty for equal shares.
   std::vector<double> weights;
 };
 
@@ -316,7 +316,7 @@ Checked Check(const CertifyRequest& request, std::vector<FieldViolation>* v) {
   if (out.chosen.empty() && v->empty()) {
     v->push_back({"evidence", "no bound family applies to this evidence"});
   }
-  out.weights = CheckWeights(request, out.chosen.size(), v);
+  out.weights = CheckWeights(request, v);
   return out;
 }
 
@@ -425,12 +425,19 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
   if (!violations.empty()) return InvalidFields(violations);
 
   const std::size_t k = checked.chosen.size();
-  const bool weighted = !request.listed.delta_weights.empty();
+  const bool weighted = !checked.weights.empty();
+  // Each share rounded toward zero (delta_split.h), so the shares' exact sum
+  // never exceeds the request.
+  std::vector<double> shares(k);
+  for (std::size_t i = 0; i < k; ++i) {
+    shares[i] = weighted ? WeightedShare(request.failure_probability, checked.weights[i])
+                         : EqualShare(request.failure_probability, k);
+  }
   CertifyResult result;
   result.requested_failure_probability = request.failure_probability;
   for (std::size_t i = 0; i < k; ++i) {
     if (stop.StopRequested()) return stop.Status();
-    const double delta_i = request.failure_probability * checked.weights[i];
+    const double delta_i = shares[i];
     Certificate c = checked.chosen[i]->compute(checked.evidence, delta_i);
     if (checked.chosen[i]->capacity_measure != CapacityMeasure::kNone &&
         checked.evidence.training.has_value()) {
@@ -442,7 +449,6 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
         c.risk_upper_bound >= *checked.evidence.baseline_error_rate) {
       c.vacuous = true;
     }
-    result.spent_failure_probability += delta_i;
     result.certificates.push_back(std::move(c));
   }
   // Error-rate certificates and bounded-loss certificates (other units) are
@@ -461,20 +467,22 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
     }
   }
   if (stop.StopRequested()) return stop.Status();
-  if (k == 1) {
-    result.rule = absl::StrFormat("one family, computed at the full failure probability delta = %g",
-                                  request.failure_probability);
+  result.spent_failure_probability = SpentOf(shares);
+  const std::string spent = FailureProbabilityText(result.spent_failure_probability);
+  if (k == 1 && !weighted) {
+    result.rule = absl::StrFormat("one family, computed at the full failure probability delta = %s",
+                                  FailureProbabilityText(request.failure_probability));
   } else if (weighted) {
     result.rule = absl::StrFormat(
-        "union bound over %d families with the caller's weights: family j is computed "
-        "at delta * w_j; the tightest certificate holds with probability >= 1 - %g",
-        k, result.spent_failure_probability);
+        "union bound over %d %s with the caller's weights: family j is computed "
+        "at delta * w_j (rounded down); the tightest certificate holds with probability "
+        ">= 1 - %s",
+        k, k == 1 ? "family" : "families", spent);
   } else {
     result.rule = absl::StrFormat(
-        "union bound over %d families: each computed at delta/%d = %g, so the tightest "
-        "certificate holds with probability >= 1 - %g",
-        k, k, request.failure_probability / static_cast<double>(k),
-        result.spent_failure_probability);
+        "union bound over %d families: each computed at delta/%d (rounded down, at most "
+        "%s), so the tightest certificate holds with probability >= 1 - %s",
+        k, k, FailureProbabilityText(shares[0]), spent);
   }
   return result;
 }

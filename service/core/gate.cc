@@ -4,7 +4,6 @@
 #include "service/core/gate.h"
 
 #include <algorithm>
-#include <cfloat>
 #include <cmath>
 #include <set>
 
@@ -12,6 +11,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "service/core/certify.h"
+#include "service/core/delta_split.h"
 #include "service/core/families.h"
 #include "service/core/field_violation.h"
 #include "service/core/gate_internal.h"
@@ -21,10 +21,6 @@
 namespace riskbound::core {
 
 namespace gate_internal {
-
-// Shares of one family in a K-way split are shrunk by this factor so that K
-// rounded shares never add up to more than the share they split.
-constexpr double kSplitShrink = 1.0 - 8.0 * DBL_EPSILON;
 
 Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_champion) {
   Split s;
@@ -45,7 +41,9 @@ Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_ch
     s.risk_lower = risk / 2.0;
   }
   const std::size_t k = std::max<std::size_t>(s.families.size(), 1);
-  s.per_family = k == 1 ? upper : upper / static_cast<double>(k) * kSplitShrink;
+  // Halves and quarters of a double >= 1e-300 are exact; a K-way share is
+  // rounded down (delta_split.h), so the ledger's exact sum is <= delta.
+  s.per_family = EqualShare(upper, k);
   if (with_champion) {
     s.difference_upper = policy.failure_probability / 4.0;
     s.difference_lower = policy.failure_probability / 4.0;
@@ -380,8 +378,10 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
     for (std::string& s : plan->reasons) d.reasons.push_back(std::move(s));
   }
 
-  double spent = 0.0;
-  for (const DeltaSpend& entry : d.delta_ledger) spent += entry.failure_probability;
+  std::vector<double> shares;
+  for (const DeltaSpend& entry : d.delta_ledger) shares.push_back(entry.failure_probability);
+  // The ledger's exact sum, rounded up.
+  const double spent = SpentOf(shares);
   d.spent_failure_probability = spent;
   d.cautions = GateCautions();
   if (!(spent <= policy.failure_probability)) {

@@ -205,11 +205,19 @@ const char* VerdictName(Verdict verdict);
 //        lower limit exceeds epsilon (found by exponential search and
 //        bisection, so a small n, not always the very smallest; given up,
 //        with no plan, past a work budget of 150 ms of CPU);
-//      - champion comparison unsettled (paired only): the smallest total n at
-//        which the difference limits, with the observed disagreement rates
-//        held fixed, settle the comparison (an anticipated-rate plan as in plan.h:
-//        about even odds, no pass-probability margin; given up
-//        past a work budget of 50 ms of CPU);
+//      - champion comparison unsettled (paired only): a total n at which
+//        the difference limits settle the comparison with probability >=
+//        policy.plan_pass_probability when the disagreement rates stay as
+//        observed, by exact enumeration of the disagreement counts (B
+//        binomial, C given B binomial) with Clopper-Pearson limits at the
+//        comparison's share (where the counts have standard deviations
+//        above 32, in blocks and on a grid of 1/32 of one, counted at the
+//        block's least favourable count, so the probability stays a lower
+//        bound); the search runs over sizes held + j * step, step = 1/256 of
+//        a normal-approximation guess, from that guess, and returns the
+//        smallest such size it finds that reaches the probability (the
+//        probability moves in steps, so not always the very smallest n);
+//        given up past a work budget of 50 ms of CPU (plans of millions);
 //      - below the minimum: at least the samples missing to reach it.
 //    The largest of these is reported.
 // Errors: INVALID_ARGUMENT naming every bad field by its API path

@@ -4,9 +4,16 @@
 #include <algorithm>
 #include <cmath>
 #include <functional>
+#include <optional>
+#include <limits>
 #include <string>
+#include <utility>
+#include <vector>
 
 #include "absl/strings/str_cat.h"
+#include "boost/math/distributions/binomial.hpp"
+#include "boost/math/distributions/normal.hpp"
+#include "boost/math/policies/policy.hpp"
 #include "service/core/certify.h"
 #include "service/core/gate_internal.h"
 #include "service/core/numeric.h"
@@ -22,15 +29,10 @@ namespace {
 constexpr double kRejectionPlanCpuSeconds = 0.15;
 // The same for the paired champion-comparison plan (two limits per size).
 constexpr double kPairedPlanCpuSeconds = 0.05;
-
-// Ceil / floor of count * n / samples without overflow (count <= samples).
-std::uint64_t ScaledCeil(std::uint64_t count, std::uint64_t samples, std::uint64_t n) {
-  const unsigned __int128 num = static_cast<unsigned __int128>(count) * n;
-  return static_cast<std::uint64_t>((num + samples - 1) / samples);
-}
-std::uint64_t ScaledFloor(std::uint64_t count, std::uint64_t samples, std::uint64_t n) {
-  return static_cast<std::uint64_t>(static_cast<unsigned __int128>(count) * n / samples);
-}
+// The paired plan's enumeration takes B and C one by one up to this many
+// standard deviations' worth of counts, in blocks of 1/kPairedGrid of a
+// standard deviation beyond (PairedPassProbability).
+constexpr double kPairedGrid = 32.0;
 
 // Smallest n in [lo, kMaxSampleCount] with ok(n) (numeric.h
 // SmallestSatisfying from the guess lo, so the cost scales with the answer,
@@ -138,36 +140,222 @@ absl::StatusOr<std::uint64_t> PlanRejection(double epsilon, double p, double del
   return n;
 }
 
-// Smallest total n (anticipated disagreement rates held fixed) at which the
-// paired difference limits settle the comparison against tolerance t.
+// The paired comparison's pass probability at total n: a lower bound on the
+// probability that the difference limits at n samples settle the comparison
+// against tolerance t, toward PROMOTE (upper limit at delta <= t) or toward
+// REJECT (lower limit at delta > t), when the n examples fall into "only the
+// challenger wrong" (B), "only the champion wrong" (C) and the rest with the
+// observed rates rate_b and rate_c. Exact enumeration: B ~ Bin(n, rate_b)
+// and, given B, C ~ Bin(n - B, r), r = rate_c / (1 - rate_b) (a
+// multinomial's conditional). The upper limit falls as C grows and rises
+// with B (a Clopper-Pearson limit grows with its count), so for each B the
+// settling C form an interval, [c_min(B), n - B] toward PROMOTE and
+// [0, c_fail(B) - 1] toward REJECT, whose ends only grow with B, and its
+// probability is a binomial tail (numeric.h, never above the true value).
+// Where the counts are large (standard deviations above kPairedGrid), B is
+// taken in blocks and C on a grid of 1/kPairedGrid of their standard
+// deviations, each block counted at its least favourable B (its last toward
+// PROMOTE, first toward REJECT: the fewest settling C, and the number of
+// remaining examples that makes the tail smallest), so the sum stays a lower
+// bound at a cost that does not grow with n; smaller counts are enumerated
+// one by one. B and C beyond 6 standard deviations (plus 2) of their means
+// are left out, and the sum is lowered by 1e-9 (and 1e-9 relative) for the
+// rounding of the terms, so the result never overstates the probability.
+// With `enough`, the sum stops once it is known to reach it or known to fall
+// short of it. Checks `budget` once per block; once spent it returns 1 (so a
+// search winds down) and the caller reports RESOURCE_EXHAUSTED.
+double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, double t,
+                             double delta, bool toward_promote, std::optional<double> enough,
+                             WorkBudget* budget) {
+  const double nd = static_cast<double>(n);
+  const auto sd = [](std::uint64_t count, double p) {
+    return std::sqrt(static_cast<double>(count) * p * (1.0 - p));
+  };
+  const auto window = [&](std::uint64_t count, double p) {
+    const double c = static_cast<double>(count);
+    const double mean = c * p;
+    const double spread = 6.0 * sd(count, p) + 2.0;
+    const double lo = std::max(0.0, std::floor(mean - spread));
+    const double hi = std::min(c, std::ceil(mean + spread));
+    return std::pair<std::uint64_t, std::uint64_t>(static_cast<std::uint64_t>(lo),
+                                                   static_cast<std::uint64_t>(hi));
+  };
+  const auto [b_lo, b_hi] = window(n, rate_b);
+  const double r = rate_b < 1.0 ? std::min(1.0, rate_c / (1.0 - rate_b)) : 0.0;
+  const std::uint64_t b_stride =
+      std::max<std::uint64_t>(1, static_cast<std::uint64_t>(sd(n, rate_b) / kPairedGrid));
+  const std::uint64_t c_stride =
+      std::max<std::uint64_t>(1, static_cast<std::uint64_t>(sd(n, r) / kPairedGrid));
+  // Errors come back as NaN (skipped below, which only lowers the sum), never
+  // as an exception.
+  using Quiet = boost::math::policies::policy<
+      boost::math::policies::domain_error<boost::math::policies::ignore_error>,
+      boost::math::policies::overflow_error<boost::math::policies::ignore_error>,
+      boost::math::policies::evaluation_error<boost::math::policies::ignore_error>>;
+  const boost::math::binomial_distribution<double, Quiet> b_law(nd, rate_b);
+  // The limits exactly as PairedDifferenceUpper / PairedDifferenceLower
+  // (paired.h) compute them, each once: the B side per block, the C side
+  // cached over the union of the C windows.
+  const double half = delta / 2.0;
+  std::uint64_t c_first = n;
+  std::uint64_t c_last = 0;
+  for (std::uint64_t b : {b_lo, b_hi}) {
+    const auto [lo, hi] = window(n - b, r);
+    c_first = std::min(c_first, lo);
+    c_last = std::max(c_last, hi);
+  }
+  // The C window is not monotone in n - B at small counts: widen to all B.
+  if (b_hi - b_lo <= 4096) {
+    for (std::uint64_t b = b_lo; b <= b_hi; ++b) {
+      const auto [lo, hi] = window(n - b, r);
+      c_first = std::min(c_first, lo);
+      c_last = std::max(c_last, hi);
+    }
+  }
+  std::vector<double> c_limits(c_last - c_first + 1, std::numeric_limits<double>::quiet_NaN());
+  const auto c_limit = [&](std::uint64_t c) {
+    double& v = c_limits[c - c_first];
+    if (std::isnan(v)) {
+      v = toward_promote ? BinomialLowerLimit(n, c, half).value
+                         : BinomialUpperLimit(n, c, half).value;
+    }
+    return v;
+  };
+  // `from` is a proven end for every block to come: c_min(B) >= from
+  // (PROMOTE), every C < from settles (REJECT).
+  std::uint64_t from = 0;
+  double sum = 0.0;
+  double mass = 0.0;  // of the B seen so far
+  for (std::uint64_t b1 = b_lo; b1 <= b_hi;) {
+    if (budget->Spent()) return 1.0;
+    const std::uint64_t b2 = std::min(b_hi, b1 + b_stride - 1);
+    // P(b1 <= B <= b2): Boost's pmf at b1, then the ratio recurrence.
+    double pmf = boost::math::pdf(b_law, static_cast<double>(b1));
+    double block = 0.0;
+    for (std::uint64_t b = b1; b <= b2 && pmf > 0.0; ++b) {
+      block += pmf;
+      pmf *= (nd - static_cast<double>(b)) / static_cast<double>(b + 1) * rate_b /
+             (1.0 - rate_b);
+    }
+    const std::uint64_t next = b2 + 1;
+    if (!(block > 0.0)) {
+      b1 = next;
+      continue;
+    }
+    mass += block;
+    // The block's least favourable B and its remaining examples.
+    const std::uint64_t b = toward_promote ? b2 : b1;
+    const std::uint64_t m = n - b;
+    const auto [c_lo0, c_hi0] = window(m, r);
+    const std::uint64_t c_lo = std::max(c_lo0, c_first);
+    const std::uint64_t c_hi = std::min(c_hi0, c_last);
+    const double b_limit = toward_promote ? BinomialUpperLimit(n, b, half).value
+                                          : BinomialLowerLimit(n, b, half).value;
+    const auto settles = [&](std::uint64_t c) {
+      const double difference = std::clamp(b_limit - c_limit(c), -1.0, 1.0);
+      return toward_promote ? difference <= t : difference > t;
+    };
+    const std::uint64_t start = std::max(from, c_lo);
+    double tail = 0.0;
+    if (toward_promote && start <= c_hi) {
+      // The first grid point from `start` that settles (c_hi last).
+      std::optional<std::uint64_t> failed;
+      std::uint64_t c = start;
+      bool found = false;
+      while (true) {
+        if (settles(c)) {
+          found = true;
+          break;
+        }
+        failed = c;
+        if (c == c_hi) break;
+        c = std::min(c_hi, c + c_stride);
+      }
+      if (failed.has_value()) from = *failed + 1;  // c_min > the failed point
+      if (found) tail = BinomialTailLowerBound(m, c, r, BinomialTail::kAtLeast);
+    } else if (!toward_promote && start <= c_hi) {
+      // The last grid point from `start` that settles (c_hi last).
+      std::optional<std::uint64_t> settled;
+      if (start == from && from >= 1) settled = from - 1;  // every C < from settles
+      std::uint64_t c = start;
+      while (settles(c)) {
+        settled = c;
+        if (c == c_hi) break;
+        c = std::min(c_hi, c + c_stride);
+      }
+      if (settled.has_value()) {
+        from = std::max(from, *settled + 1);
+        tail = BinomialTailLowerBound(m, *settled, r, BinomialTail::kAtMost);
+      }
+    } else if (!toward_promote && from >= 1) {
+      // The window lies below `from`: every C in it settles.
+      tail = BinomialTailLowerBound(m, from - 1, r, BinomialTail::kAtMost);
+    }
+    sum += block * tail;
+    b1 = next;
+    if (enough.has_value()) {
+      // Known to reach it, or to fall short even if every B to come settled.
+      if (sum * (1.0 - 1e-9) - 1e-9 >= *enough) break;
+      if (sum + std::max(0.0, 1.0 - mass) + 1e-9 < *enough) break;
+    }
+  }
+  return std::max(0.0, sum * (1.0 - 1e-9) - 1e-9);
+}
+
+// The paired comparison's plan: a total n >= the samples held at which the
+// comparison settles against tolerance t with probability >= pass
+// (PairedPassProbability) when the disagreement rates stay as observed. The
+// search (numeric.h SmallestSatisfying) runs over a grid of sizes held + j *
+// step, step = 1/256 of a normal-approximation guess (so a plan of a
+// million samples needs a handful of enumerations), starting at that guess:
+//   n ~ ((z_half (s_b + s_c) + z_pass s_d) / |observed - t|)^2,
+// s_b, s_c the Bernoulli standard deviations of the two disagreement kinds,
+// s_d that of their difference, z_x the standard normal quantile of 1 - x.
+// The probability is not monotone in n (the limits move in steps), so the
+// answer may lie a little above the smallest such n; the n returned always
+// reaches pass (checked by the enumeration itself, never by the guess).
 absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double t,
                                                    double delta_upper, double delta_lower,
-                                                   const StopToken& stop) {
+                                                   double pass, const StopToken& stop) {
   const double rate_b =
       static_cast<double>(p.only_challenger_wrong_count) / static_cast<double>(p.sample_count);
   const double rate_c =
       static_cast<double>(p.only_champion_wrong_count) / static_cast<double>(p.sample_count);
   const double observed = rate_b - rate_c;
-  std::function<bool(std::uint64_t)> ok;
-  if (observed < t) {
-    // Toward PROMOTE: round b up and c down (the anticipated counts that make
-    // the upper limit largest).
-    ok = [&](std::uint64_t n) {
-      PairedCounts q{0, ScaledFloor(p.only_champion_wrong_count, p.sample_count, n),
-                     ScaledCeil(p.only_challenger_wrong_count, p.sample_count, n), n};
-      return PairedDifferenceUpper(q, delta_upper).value <= t;
-    };
-  } else if (observed > t) {
-    ok = [&](std::uint64_t n) {
-      PairedCounts q{0, ScaledCeil(p.only_champion_wrong_count, p.sample_count, n),
-                     ScaledFloor(p.only_challenger_wrong_count, p.sample_count, n), n};
-      return PairedDifferenceLower(q, delta_lower).value > t;
-    };
-  } else {
-    return absl::NotFoundError("the observed difference equals the tolerance");
-  }
+  if (observed == t) return absl::NotFoundError("the observed difference equals the tolerance");
+  const bool toward_promote = observed < t;
+  const double delta = toward_promote ? delta_upper : delta_lower;
+  const boost::math::normal_distribution<double> normal;
+  const double z_half = boost::math::quantile(boost::math::complement(normal, delta / 2.0));
+  const double z_pass = boost::math::quantile(normal, pass);
+  const double s_b = std::sqrt(rate_b * (1.0 - rate_b));
+  const double s_c = std::sqrt(rate_c * (1.0 - rate_c));
+  const double s_d = std::sqrt(rate_b * (1.0 - rate_b) + rate_c * (1.0 - rate_c) +
+                               2.0 * rate_b * rate_c);
+  const double root = std::max(0.0, z_half * (s_b + s_c) + z_pass * s_d) /
+                      std::fabs(observed - t);
+  const double guess_n = std::clamp(root * root, 1.0, static_cast<double>(kMaxSampleCount));
+  const std::uint64_t held = p.sample_count;
+  const std::uint64_t guess = std::max(held, static_cast<std::uint64_t>(guess_n));
+  const std::uint64_t step = std::max<std::uint64_t>(1, guess / 256);
+  const std::uint64_t last = (kMaxSampleCount - held) / step;
   WorkBudget budget(kPairedPlanCpuSeconds);
-  return SmallestSampleCount(p.sample_count, ok, stop, &budget);
+  bool stopped = false;
+  const std::function<bool(std::uint64_t)> reaches = [&](std::uint64_t j) {
+    if (stopped || stop.StopRequested()) {
+      stopped = true;
+      return true;
+    }
+    if (budget.Spent()) return true;
+    const std::uint64_t n = held + j * step;
+    return PairedPassProbability(n, rate_b, rate_c, t, delta, toward_promote, pass, &budget) >=
+           pass;
+  };
+  absl::StatusOr<std::uint64_t> j = SmallestSatisfying(0, last, reaches, (guess - held) / step);
+  if (stopped) return stop.Status();
+  if (budget.spent()) return absl::ResourceExhaustedError("over the plan's work budget");
+  if (!j.ok()) return absl::NotFoundError("no sample size up to 2^53 settles it");
+  return held + *j * step;
 }
 
 // The risk test's plan, toward PROMOTE (rate below epsilon: the hold-out
@@ -241,9 +429,10 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
   return std::optional<std::uint64_t>();
 }
 
-// The champion comparison's plan (paired comparisons only).
+// The champion comparison's plan (paired comparisons only), at the plan
+// pass probability `pass`.
 absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
-    const ChampionComparison& champion, const Measured& m, const StopToken& stop,
+    const ChampionComparison& champion, const Measured& m, double pass, const StopToken& stop,
     HoldPlan* plan) {
   if (!champion.paired.has_value()) {
     plan->reasons.push_back(
@@ -253,14 +442,16 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
   }
   absl::StatusOr<std::uint64_t> n =
       PlanPairedComparison(*champion.paired, m.tolerance, m.split.difference_upper,
-                           m.split.difference_lower, stop);
+                           m.split.difference_lower, pass, stop);
   if (stop.StopRequested()) return stop.Status();
   if (n.ok()) {
     const std::uint64_t more = *n - std::min(*n, m.held);
     plan->reasons.push_back(absl::StrCat(
-        "at the observed disagreement rates about ", more, " more shared hold-out samples (",
-        *n,
-        " in all) settle the champion comparison (anticipated-rate plan, about even odds)"));
+        "if the disagreement rates stay as observed, about ", more,
+        " more shared hold-out samples (", *n,
+        " in all) settle the champion comparison with probability at least ", Num(pass),
+        " (the policy's plan pass probability; exact binomial enumeration of the disagreement "
+        "counts)"));
     return std::optional<std::uint64_t>(more);
   }
   if (n.status().code() == absl::StatusCode::kResourceExhausted) {
@@ -297,7 +488,7 @@ absl::StatusOr<HoldPlan> PlanHold(const GatePolicy& policy, const Evidence& evid
   }
   if (f.has_champion && !f.cmp_promote && !f.cmp_reject) {
     absl::StatusOr<std::optional<std::uint64_t>> cmp =
-        PlanComparison(*champion, m, stop, &plan);
+        PlanComparison(*champion, m, pass, stop, &plan);
     if (!cmp.ok()) return cmp.status();
     if (cmp->has_value()) {
       need = std::max(need, **cmp);

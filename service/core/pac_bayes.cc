@@ -6,6 +6,7 @@
 #include <optional>
 
 #include "absl/strings/str_format.h"
+#include "service/core/delta_split.h"
 #include "service/core/numeric.h"
 
 namespace riskbound::core {
@@ -68,7 +69,9 @@ double PacBayesCatoniAt(double gibbs_empirical_risk, double kl_divergence,
 }
 
 Certificate PacBayesCatoni(const PacBayesEvidence& evidence, double delta) {
-  const double share = delta / static_cast<double>(kCatoniGrid.size());
+  // Each grid point's share rounded down (delta_split.h): the union over the
+  // grid never spends more than delta.
+  const double share = EqualShare(delta, kCatoniGrid.size());
   double best = std::numeric_limits<double>::infinity();
   double best_c = kCatoniGrid[0];
   for (double c : kCatoniGrid) {

@@ -1,7 +1,6 @@
 #include "service/core/select.h"
 
 #include <cmath>
-#include <numbers>
 #include <optional>
 #include <set>
 
@@ -9,15 +8,12 @@
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
 #include "service/core/certify.h"
+#include "service/core/delta_split.h"
 #include "service/core/families.h"
 #include "service/core/field_violation.h"
 
 namespace riskbound::core {
 namespace {
-
-// Relative slack allowed on a weight sum that should be <= 1 (rounding), as in
-// Certify.
-constexpr double kWeightSumSlack = 1e-12;
 
 // Candidates computed between two looks at the StopToken (each costs a few
 // microseconds at most).
@@ -32,25 +28,33 @@ std::optional<double> CapacityOf(const StructureCandidate& c, CapacityMeasure me
   return c.capacity.log_hypothesis_count;
 }
 
+// The weights w_k, each rounded down so that their exact sum is <= 1
+// (delta_split.h): the uniform 1/K and 6/(pi^2 k^2) are not doubles.
 std::vector<double> Weights(const SelectRequest& request, DeltaSpread spread) {
   const std::size_t k = request.structure.size();
   std::vector<double> w(k);
   for (std::size_t i = 0; i < k; ++i) {
     switch (spread) {
       case DeltaSpread::kUniform:
-        w[i] = 1.0 / static_cast<double>(k);
+        w[i] = EqualShare(1.0, k);
         break;
-      case DeltaSpread::kInverseSquare: {
-        const double pos = static_cast<double>(i + 1);
-        w[i] = 6.0 / (std::numbers::pi * std::numbers::pi * pos * pos);
+      case DeltaSpread::kInverseSquare:
+        w[i] = InverseSquareWeight(i + 1);
         break;
-      }
       case DeltaSpread::kCallerWeights:
         w[i] = request.weights[i];
         break;
     }
   }
   return w;
+}
+
+// delta_k, rounded toward zero so that the shares' exact sum is <= delta.
+double Share(const SelectRequest& request, DeltaSpread spread, double weight) {
+  if (spread == DeltaSpread::kUniform) {
+    return EqualShare(request.failure_probability, request.structure.size());
+  }
+  return WeightedShare(request.failure_probability, weight);
 }
 
 // Checks every candidate and resolves its capacity in `structure` (a copy of
@@ -114,17 +118,20 @@ void CheckWeights(const SelectRequest& request, DeltaSpread spread,
                                  " candidates, ", request.weights.size(), " weights")});
     return;
   }
-  double sum = 0.0;
+  bool each_ok = true;
+  std::vector<double> usable;  // the finite, non-negative ones, for the sum
   for (std::size_t i = 0; i < request.weights.size(); ++i) {
     const double w = request.weights[i];
     if (!std::isfinite(w) || w <= 0.0 || w > 1.0) {
       v->push_back({absl::StrCat("weights[", i, "]"), "must be a weight in (0, 1]"});
+      each_ok = false;
     }
-    sum += w;
+    if (std::isfinite(w) && w >= 0.0) usable.push_back(w);
   }
-  if (sum > 1.0 + kWeightSumSlack) {
-    v->push_back({"weights", absl::StrFormat("weights must sum to at most 1, got %.12g",
-                                             sum)});
+  // Exactly, not in rounded double arithmetic: [0.5, 0.5000000000000001]
+  // sums to more than 1 and would overspend the failure probability.
+  if (!WeightsSumAtMostOne(usable)) {
+    v->push_back({"weights", WeightSumMessage(usable, each_ok ? "weights" : "")});
   }
 }
 
@@ -133,23 +140,24 @@ std::string DeltaRule(const SelectRequest& request, DeltaSpread spread, double t
   switch (spread) {
     case DeltaSpread::kUniform:
       return absl::StrFormat(
-          "union bound over %d candidates: each bound at delta/%d = %g; the chosen "
-          "bound holds with probability >= 1 - %g",
-          k, k, request.failure_probability / static_cast<double>(k), total);
+          "union bound over %d candidates: each bound at delta/%d (rounded down, at most %s); "
+          "the chosen bound holds with probability >= 1 - %s",
+          k, k, FailureProbabilityText(EqualShare(request.failure_probability, k)),
+          FailureProbabilityText(total));
     case DeltaSpread::kInverseSquare:
       return absl::StrFormat(
           "union bound with weights w_k = 6/(pi^2 k^2) (k = position, from 1): "
-          "candidate k's bound at delta * w_k; the weights of all k sum to 1, so "
-          "candidates may be appended later; the chosen bound holds with probability "
-          ">= 1 - %g",
-          total);
+          "candidate k's bound at delta * w_k (rounded down); the weights of all k sum to 1, "
+          "so candidates may be appended later; the chosen bound holds with probability "
+          ">= 1 - %s",
+          FailureProbabilityText(total));
     case DeltaSpread::kCallerWeights:
       break;
   }
   return absl::StrFormat(
-      "union bound with the caller's weights: candidate k's bound at delta * w_k; the "
-      "chosen bound holds with probability >= 1 - %g",
-      total);
+      "union bound with the caller's weights: candidate k's bound at delta * w_k (rounded "
+      "down); the chosen bound holds with probability >= 1 - %s",
+      FailureProbabilityText(total));
 }
 
 // A request after its checks: the structure with resolved capacities, the
@@ -219,7 +227,7 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
     const StructureCandidate& c = checked.structure[i];
     Evidence evidence;
     evidence.training = TrainingEvidence{c, c.capacity};
-    const double delta_i = request.failure_probability * weights[i];
+    const double delta_i = Share(request, checked.spread, weights[i]);
     const Certificate cert = spec->compute(evidence, delta_i);
     CandidateBound row;
     row.id = c.id;
@@ -233,7 +241,6 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
     row.exact = cert.exact;
     row.notes = cert.notes;
     row.notes.insert(row.notes.end(), c.capacity.notes.begin(), c.capacity.notes.end());
-    result.spent_failure_probability += delta_i;
     result.candidates.push_back(std::move(row));
   }
   const auto& rows = result.candidates;
@@ -252,6 +259,10 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
   }
   if (stop.StopRequested()) return stop.Status();
   result.fragile = !result.within_tolerance_ids.empty();
+  std::vector<double> shares;
+  shares.reserve(rows.size());
+  for (const CandidateBound& row : rows) shares.push_back(row.failure_probability);
+  result.spent_failure_probability = SpentOf(shares);
   result.delta_rule = DeltaRule(request, checked.spread, result.spent_failure_probability);
   if (rows[result.chosen_index].vacuous) {
     result.notes.emplace_back(

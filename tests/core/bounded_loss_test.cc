@@ -95,10 +95,17 @@ TEST(BoundedLossTest, ZeroOneLossReproducesHoldoutRows) {
   e.sample_variance = 20.0 * 980.0 / (1000.0 * 999.0);
   EXPECT_NEAR(BoundedHoeffding(e, 0.05).risk_upper_bound, 0.058702, 5e-7);  // row 4.2
   EXPECT_NEAR(BoundedKl(e, 0.05).risk_upper_bound, 0.032813, 5e-7);         // row 4.3
+  // The bounded-loss limits are rounded outward (and the kl one widened past
+  // its evaluation error, bounded_loss.cc): at or above the 0-1 ones, within
+  // 1e-12 relative.
   EXPECT_NEAR(BoundedKl(e, 0.05).risk_upper_bound,
-              HoldoutKlChernoff({20, 1000}, 0.05).risk_upper_bound, 1e-15);
+              HoldoutKlChernoff({20, 1000}, 0.05).risk_upper_bound, 4e-14);
+  EXPECT_GE(BoundedKl(e, 0.05).risk_upper_bound,
+            HoldoutKlChernoff({20, 1000}, 0.05).risk_upper_bound);
   EXPECT_NEAR(BoundedHoeffding(e, 0.05).risk_upper_bound,
               HoldoutHoeffding({20, 1000}, 0.05).risk_upper_bound, 1e-15);
+  EXPECT_GE(BoundedHoeffding(e, 0.05).risk_upper_bound,
+            HoldoutHoeffding({20, 1000}, 0.05).risk_upper_bound);
   // Source: Maurer & Pontil (2009) Thm 4 by hand for these counts:
   // 0.02 + sqrt(2 * 0.0196196 * ln 40 / 1000) + 7 ln 40 / 2997.
   const double v = 20.0 * 980.0 / (1000.0 * 999.0);
@@ -193,8 +200,11 @@ TEST(BoundedLossTest, EdgeCasesStayFiniteAndInRange) {
   EXPECT_EQ(*BoundedKl(e, 0.05).risk_lower_bound, 2.0);
   // Variance 0 leaves only the 7 ln(2/delta) / (3 (n - 1)) term of
   // Maurer & Pontil (2009) Thm 4, in loss units.
+  // Every step rounds up (a few units in the last place): at or above it.
   EXPECT_NEAR(BoundedEmpiricalBernstein(e, 0.05).risk_upper_bound,
-              2.0 + 4.0 * 7.0 * std::log(40.0) / 27.0, 1e-14);
+              2.0 + 4.0 * 7.0 * std::log(40.0) / 27.0, 1e-13);
+  EXPECT_GE(BoundedEmpiricalBernstein(e, 0.05).risk_upper_bound,
+            2.0 + 4.0 * 7.0 * std::log(40.0) / 27.0);
   // n = 1: the empirical Bernstein bound is undefined; the trivial range with
   // a note, never a division by zero.
   e.sample_count = 1;
@@ -217,6 +227,55 @@ TEST(BoundedLossTest, BernsteinWinsAtSmallVariance) {
     const double u = BoundedEmpiricalBernstein(e, 0.05).risk_upper_bound;
     EXPECT_LT(u, prev);
     prev = u;
+  }
+}
+
+// Issue 12: on [1e15, 1e15 + 0.125] (one double apart) Hoeffding (1963)
+// gives mean + 0.125 * sqrt(ln(20) / 2000) = mean + 0.0048378 (Source:
+// Hoeffding 1963 Thm 2, evaluated by hand), which no double between the ends
+// represents: the upper limit is rounded outward to loss_max, never onto the
+// mean (it was mean, penalty 0). The decimal reference values are checked
+// in tests/integration/bounded_loss_offsets_test.py.
+TEST(BoundedLossTest, LargeOffsetNeverRoundsTheLimitOntoTheMean) {
+  const BoundedLossEvidence e{1e15, 0.001, 1000, 1e15, 1000000000000000.125};
+  for (const Certificate& c : {BoundedHoeffding(e, 0.05), BoundedKl(e, 0.05),
+                               BoundedEmpiricalBernstein(e, 0.05)}) {
+    EXPECT_EQ(c.risk_upper_bound, e.loss_max);
+    EXPECT_EQ(c.penalty, 0.125);
+    EXPECT_TRUE(c.vacuous);
+  }
+  // Offsets and widths where the limit is representable: strictly above
+  // the mean, and never below the limit computed without the offset
+  // (translation invariance: same z, same slack; Source: Hoeffding 1963,
+  // Maurer & Pontil 2009 Thm 4, both stated for any [a, b]).
+  for (double offset : {0.0, -7.0, 1e6, 1e12, -1e12, 4503599627370496.0}) {
+    for (double width : {1.0, 1e3, 1e-3, 1e9}) {
+      for (std::uint64_t n : {2ULL, 30ULL, 1000ULL, 1000000ULL, 1ULL << 40}) {
+        const BoundedLossEvidence at0{0.25 * width, 0.01 * width * width, n, 0.0, width};
+        const BoundedLossEvidence shifted{offset + 0.25 * width, 0.01 * width * width, n,
+                                          offset, offset + width};
+        if (!(shifted.loss_min < shifted.mean_loss && shifted.mean_loss < shifted.loss_max)) {
+          continue;
+        }
+        SCOPED_TRACE(::testing::Message() << "offset " << offset << " width " << width
+                                          << " n " << n);
+        const Certificate h0 = BoundedHoeffding(at0, 0.05);
+        const Certificate h = BoundedHoeffding(shifted, 0.05);
+        const Certificate k = BoundedKl(shifted, 0.05);
+        const Certificate b = BoundedEmpiricalBernstein(shifted, 0.05);
+        for (const Certificate& c : {h, k, b}) {
+          EXPECT_GT(c.risk_upper_bound, shifted.mean_loss);
+          EXPECT_GT(c.penalty, 0.0);
+          EXPECT_LT(*c.risk_lower_bound, shifted.mean_loss);
+          EXPECT_GE(c.penalty, c.risk_upper_bound - c.empirical_risk);
+        }
+        // The slack survives the offset (up to the offset's own rounding).
+        if (!h.vacuous) {
+          EXPECT_GE(h.risk_upper_bound - offset,
+                    h0.risk_upper_bound - std::fabs(offset) * 4e-16 - 4e-16 * width);
+        }
+      }
+    }
   }
 }
 

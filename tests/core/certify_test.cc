@@ -83,12 +83,24 @@ TEST(CertifyTest, ListedWithWeights) {
   req.failure_probability = 0.05;
   req.family_choice = FamilyChoice::kListed;
   req.listed.families = {Family::kHoldoutKlChernoff, Family::kHoldoutExactBinomial};
-  req.listed.delta_weights = {0.2, 0.8};
+  req.listed.delta_weights = {0.25, 0.75};
   auto got = Certify(req);
   ASSERT_TRUE(got.ok()) << got.status();
-  EXPECT_DOUBLE_EQ(got->certificates[0].failure_probability, 0.01);
-  EXPECT_DOUBLE_EQ(got->certificates[1].failure_probability, 0.04);
+  EXPECT_DOUBLE_EQ(got->certificates[0].failure_probability, 0.0125);
+  EXPECT_DOUBLE_EQ(got->certificates[1].failure_probability, 0.0375);
   EXPECT_EQ(got->tightest_index, 1u);
+  // 0.2 and 0.8 are not doubles: the doubles nearest them sum to
+  // 1 + 2^-54 (Source: exact binary expansion, Python fractions.Fraction(0.2)
+  // + Fraction(0.8) - 1 = 1/18014398509481984), which would overspend delta:
+  // refused, naming the field, with a last weight that fits.
+  req.listed.delta_weights = {0.2, 0.8};
+  got = Certify(req);
+  EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument,
+                            HasSubstr("listed.delta_weights[1] = 0.79999999999999993")));
+  req.listed.delta_weights = {0.5, 0.5000000000000001};
+  got = Certify(req);
+  EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument,
+                            HasSubstr("listed.delta_weights: weights must sum to at most 1")));
 }
 
 TEST(CertifyTest, BaselineMakesCertificateVacuous) {

@@ -3,9 +3,11 @@
 #include <cmath>
 #include <cstdint>
 #include <string>
+#include <vector>
 
 #include <boost/math/distributions/binomial.hpp>
 
+#include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "gmock/gmock.h"
 #include "gtest/gtest.h"
@@ -375,24 +377,60 @@ TEST(GateTest, RateAHairAboveThresholdEnds) {
   }
 }
 
-// An unsettled paired comparison gets an anticipated-rate plan: at the
-// planned total the difference upper limit at the scaled counts (b rounded
-// up, c down) is within the tolerance. Source: Boost.Math limits at delta/8.
+// P(the paired limits at total n settle the comparison toward PROMOTE,
+// U(B) - L(C) <= t) when the disagreements keep the rates b/n0 and c/n0:
+// every B = 0..n (Boost.Math binomial pmf), and for each the exact
+// conditional tail P(C >= c_min(B)) with C | B ~ Bin(n - B, p_c / (1 - p_b)),
+// c_min(B) by a scan over every C of Boost's Clopper-Pearson limits at e.
+// Source: brute-force enumeration of the trinomial with Boost.Math.
+double PairedPromoteProbability(std::uint64_t n, double rate_b, double rate_c, double t,
+                                double e) {
+  std::vector<double> lower(n + 1);
+  for (std::uint64_t c = 0; c <= n; ++c) lower[c] = BoostLower(n, c, e);
+  const double r = rate_c / (1.0 - rate_b);
+  const Binomial law_b(static_cast<double>(n), rate_b);
+  double sum = 0.0;
+  std::uint64_t c_min = 0;
+  for (std::uint64_t b = 0; b <= n; ++b) {
+    const double pmf = boost::math::pdf(law_b, static_cast<double>(b));
+    if (pmf < 1e-300) continue;
+    const double upper = BoostUpper(n, b, e);
+    while (c_min <= n && upper - lower[c_min] > t) ++c_min;
+    if (c_min > n - b) continue;
+    const Binomial law_c(static_cast<double>(n - b), r);
+    sum += pmf * (c_min == 0 ? 1.0
+                             : boost::math::cdf(boost::math::complement(
+                                   law_c, static_cast<double>(c_min - 1))));
+  }
+  return sum;
+}
+
+// An unsettled paired comparison is planned at the policy's pass
+// probability (issue 12: it once gave one count for 0.5, 0.8 and 0.95): at
+// the planned total the limits settle the comparison with at least that
+// probability if the disagreement rates stay as observed, and a higher
+// probability asks for more samples. Source: PairedPromoteProbability
+// (brute-force enumeration with Boost.Math limits at delta/8).
 TEST(GateTest, HoldPlansPairedComparison) {
-  GatePolicy p = Policy(0.3, 0.05);
-  p.max_regression = 0.0;
-  ChampionComparison champ;
-  champ.champion_id = "model-a";
-  champ.paired = PairedCounts{10, 40, 20, 2000};
-  auto d = DecideGate(p, Candidate(30, 2000), champ);
-  ASSERT_TRUE(d.ok()) << d.status();
-  ASSERT_EQ(d->verdict, Verdict::kHold);  // 13 < b = 20 < 79 (fixture row 1)
-  ASSERT_TRUE(d->additional_sample_count.has_value());
-  const std::uint64_t total = 2000 + *d->additional_sample_count;
-  const std::uint64_t b = (20 * total + 1999) / 2000;
-  const std::uint64_t c = 40 * total / 2000;
-  const double e = 0.05 / 8;
-  EXPECT_LE(BoostUpper(total, b, e) - BoostLower(total, c, e), 0.0) << total;
+  std::uint64_t previous = 0;
+  for (double pass : {0.5, 0.8, 0.95}) {
+    GatePolicy p = Policy(0.3, 0.05);
+    p.max_regression = 0.0;
+    p.plan_pass_probability = pass;
+    ChampionComparison champ;
+    champ.champion_id = "model-a";
+    champ.paired = PairedCounts{10, 40, 20, 2000};
+    auto d = DecideGate(p, Candidate(30, 2000), champ);
+    ASSERT_TRUE(d.ok()) << d.status();
+    ASSERT_EQ(d->verdict, Verdict::kHold);  // 13 < b = 20 < 79 (fixture row 1)
+    ASSERT_TRUE(d->additional_sample_count.has_value()) << Reasons(*d);
+    const std::uint64_t total = 2000 + *d->additional_sample_count;
+    const double got = PairedPromoteProbability(total, 0.01, 0.02, 0.0, 0.05 / 8);
+    EXPECT_GE(got, pass) << total;
+    EXPECT_GT(total, previous);
+    previous = total;
+    EXPECT_THAT(Reasons(*d), HasSubstr(absl::StrCat("probability at least ", pass)));
+  }
 }
 
 // Every confidence statement has a share; the shares sum to <= delta, also
