@@ -22,6 +22,7 @@
 #include "riskbound/v1/riskbound.grpc.pb.h"
 #include "service/core/stop.h"
 #include "service/rpc/call_pool.h"
+#include "service/rpc/handlers.h"
 #include "service/rpc/metrics.h"
 
 namespace riskbound::rpc {
@@ -114,7 +115,7 @@ class RiskBoundService final : public internal::RawRiskBoundService {
   grpc::ServerUnaryReactor* Dispatch(
       const char* method, grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
       grpc::ByteBuffer* response,
-      absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&));
+      absl::StatusOr<Response> (*handler)(const Request&, const CallInfo&));
   void Register(internal::Cancellable* call);
   void Unregister(internal::Cancellable* call);
 

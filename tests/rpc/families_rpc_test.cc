@@ -104,7 +104,7 @@ TEST_F(FamiliesRpcTest, NamesAgreeWithCertify) {
 TEST(ListFamiliesHandlerTest, StoppedCallReturnsTheStopStatus) {
   core::StopToken stop;
   stop.Cancel();
-  EXPECT_EQ(HandleListFamilies(v1::ListFamiliesRequest(), stop).status().code(),
+  EXPECT_EQ(HandleListFamilies(v1::ListFamiliesRequest(), {.stop = stop}).status().code(),
             absl::StatusCode::kCancelled);
 }
 
