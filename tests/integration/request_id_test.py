@@ -4,7 +4,8 @@ port: the caller's id (x-request-id metadata, X-Request-Id header) when it is
 1 to 128 visible ASCII characters, else a fresh one of 32 lower-case hex
 digits (128 random bits); sent back in the answer's initial metadata (HTTP:
 response header), written in the call's log line, and copied into a Gate
-answer's audit record (AuditRecord.request_id).
+answer's audit record (AuditRecord.request_id; for ScoreRegistry, every
+gate record's, with the stream's id).
 
 The server runs on 127.0.0.1:0 with --log-format json --log-level debug (the
 harness's defaults), so every call adds one JSON log line.
@@ -164,6 +165,26 @@ class RequestIdTest(unittest.TestCase):
         second, _ = self.grpc_call("Gate", self.gate_request(), "digest-b")
         self.assertEqual(first.audit.request_sha256, second.audit.request_sha256)
         self.assertNotEqual(first.audit.request_id, second.audit.request_id)
+
+    def test_grpc_registry_stream_gate_records_carry_the_stream_id(self):
+        from riskbound.v1 import registry_pb2 as reg  # noqa: E402
+        settings = reg.ScoreSettings(gate=gate_pb.GatePolicy(max_risk=0.05,
+                                                             failure_probability=0.05))
+        messages = [reg.ScoreRegistryRequest(settings=settings)]
+        for record_id, errors in (("r1", 3), ("r2", 300)):
+            record = reg.RegistryRecord(record_id=record_id, model_name="m", model_version="1")
+            record.evidence.holdout.error_count = errors
+            record.evidence.holdout.sample_count = 1000
+            messages.append(reg.ScoreRegistryRequest(record=record))
+        call = self.stub.ScoreRegistry(iter(messages), timeout=60,
+                                       metadata=[("x-request-id", "registry-run-5")])
+        answers = list(call)
+        self.assertEqual(dict(call.initial_metadata())["x-request-id"], "registry-run-5")
+        gated = [a.result.gated for a in answers if a.HasField("result")]
+        self.assertEqual(len(gated), 2)
+        self.assertEqual([g.audit.request_id for g in gated], ["registry-run-5"] * 2)
+        lines = self.log_lines_with("registry-run-5")
+        self.assertEqual([line["rpc"] for line in lines], ["ScoreRegistry"])
 
     # --- HTTP ------------------------------------------------------------
 
