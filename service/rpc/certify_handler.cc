@@ -6,12 +6,12 @@
 namespace riskbound::rpc {
 
 absl::StatusOr<v1::CertifyResponse> HandleCertify(const v1::CertifyRequest& request,
-                                                  const core::StopToken& stop) {
+                                                  const CallInfo& call) {
   const Converted<core::CertifyRequest> in = CertifyRequestFromProto(request);
   if (!in.refusals.empty()) {
     return WithRefusals(in.refusals, core::ValidateCertifyRequest(in.request));
   }
-  absl::StatusOr<core::CertifyResult> result = core::Certify(in.request, stop);
+  absl::StatusOr<core::CertifyResult> result = core::Certify(in.request, call.stop);
   if (!result.ok()) return result.status();
   return CertifyResponseToProto(*result);
 }

@@ -7,12 +7,12 @@
 namespace riskbound::rpc {
 
 absl::StatusOr<v1::EstimateCapacityResponse> HandleEstimateCapacity(
-    const v1::EstimateCapacityRequest& request, const core::StopToken& stop) {
+    const v1::EstimateCapacityRequest& request, const CallInfo& call) {
   const Converted<core::ModelDescription> in = EstimateCapacityRequestFromProto(request);
   // An oversized model is refused as a whole: nothing else of it is judged.
   if (!in.refusals.empty()) return WithRefusals(in.refusals, absl::OkStatus());
   absl::StatusOr<core::CapacityEstimate> estimate =
-      core::EstimateCapacity(in.request, stop, "model");
+      core::EstimateCapacity(in.request, call.stop, "model");
   if (!estimate.ok()) return estimate.status();
   return EstimateCapacityResponseToProto(*estimate);
 }

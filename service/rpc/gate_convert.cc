@@ -92,7 +92,7 @@ std::string FormatAuditTimestamp(absl::Time t) {
 }
 
 v1::GateResponse GateResponseToProto(const core::GateDecision& d, const v1::GateRequest& request,
-                                     absl::Time now) {
+                                     absl::Time now, absl::string_view request_id) {
   v1::GateResponse out;
   out.set_verdict(VerdictToProto(d.verdict));
   for (const std::string& reason : d.reasons) out.add_reasons(reason);
@@ -121,6 +121,7 @@ v1::GateResponse GateResponseToProto(const core::GateDecision& d, const v1::Gate
   audit->set_spent_failure_probability(d.spent_failure_probability);
   audit->set_timestamp(FormatAuditTimestamp(now));
   for (const std::string& caution : d.cautions) audit->add_cautions(caution);
+  audit->set_request_id(std::string(request_id));
   return out;
 }
 

@@ -55,9 +55,11 @@ std::string FormatAuditTimestamp(absl::Time t);
 // Copies `decision` on `request`: verdict, reasons, bounds, ledger, and the
 // audit record (engine version, digest of the canonical request, families
 // used, failure probability spent, `now` as the timestamp, the core's
-// cautions). `now` is a parameter so tests can fix it. Thread-safe.
+// cautions, `request_id`). `now` is a parameter so tests can fix it.
+// Thread-safe.
 v1::GateResponse GateResponseToProto(const core::GateDecision& decision,
-                                     const v1::GateRequest& request, absl::Time now);
+                                     const v1::GateRequest& request, absl::Time now,
+                                     absl::string_view request_id);
 
 }  // namespace riskbound::rpc
 

@@ -7,33 +7,52 @@
 #include "absl/time/clock.h"
 #include "google/protobuf/util/json_util.h"
 #include "httplib.h"
-#include "service/core/field_violation.h"
+#include "google/rpc/status.pb.h"
 #include "service/core/stop.h"
 #include "service/rpc/handlers.h"
 #include "service/rpc/logging.h"
+#include "service/rpc/request_id.h"
+#include "service/rpc/status.h"
 
 namespace riskbound::rpc {
 namespace {
 
 constexpr char kJson[] = "application/json";
+// The JSON methods' paths, for the answer to an unknown path.
+constexpr char kMethodPaths[] =
+    "/v1/Certify, /v1/EstimateCapacity, /v1/Gate, /v1/SelectStructure, /v1/PlanSamples, "
+    "/v1/ListFamilies";
 
 // The outcome of one JSON call.
 struct JsonAnswer {
   absl::StatusCode code = absl::StatusCode::kOk;
   std::string body;
+  std::string message;  // the error message, for the log line
 };
 
-JsonAnswer Error(const absl::Status& status) { return {status.code(), ErrorJson(status)}; }
+JsonAnswer Error(const absl::Status& status) {
+  return {status.code(), ErrorJson(status), std::string(status.message())};
+}
+
+// The caller's X-Request-Id header when usable, else a fresh one
+// (request_id.h).
+std::string RequestIdOf(const httplib::Request& req) {
+  if (!req.has_header(kRequestIdKey)) return RequestIdFor(absl::nullopt);
+  return RequestIdFor(req.get_header_value(kRequestIdKey));
+}
 
 // Runs `handler` on the pool for a JSON body.
 template <class Request, class Response>
-JsonAnswer RunJson(
-    CallPool* pool, const CallLimits& limits, const std::string& body,
-    absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&)) {
+JsonAnswer RunJson(CallPool* pool, const CallLimits& limits, const std::string& body,
+                   absl::string_view request_id,
+                   absl::StatusOr<Response> (*handler)(const Request&, const CallInfo&)) {
   Request request;
   google::protobuf::util::JsonParseOptions parse;
   parse.ignore_unknown_fields = false;
-  if (auto parsed = google::protobuf::util::JsonStringToMessage(body, &request, parse);
+  // An empty body is the empty message, as "{}" is.
+  const google::protobuf::StringPiece json =
+      body.empty() ? google::protobuf::StringPiece("{}") : google::protobuf::StringPiece(body);
+  if (auto parsed = google::protobuf::util::JsonStringToMessage(json, &request, parse);
       !parsed.ok()) {
     return Error(absl::InvalidArgumentError(
         absl::StrCat("the request body could not be decoded as ",
@@ -45,7 +64,7 @@ JsonAnswer RunJson(
   absl::StatusOr<Response> answer = absl::UnknownError("not run");
   const CallPool::Admission admission = pool->TrySubmit([&] {
     answer = stop.StopRequested() ? absl::StatusOr<Response>(stop.Status())
-                                  : handler(request, stop);
+                                  : handler(request, {.stop = stop, .request_id = request_id});
     done.Notify();
   });
   if (admission == CallPool::Admission::kFull) {
@@ -73,7 +92,7 @@ JsonAnswer RunJson(
   std::string out;
   google::protobuf::util::JsonPrintOptions print;
   (void)google::protobuf::util::MessageToJsonString(*answer, &out, print);
-  return {absl::StatusCode::kOk, out};
+  return {absl::StatusCode::kOk, out, std::string()};
 }
 
 }  // namespace
@@ -99,19 +118,20 @@ int HttpStatusFor(absl::StatusCode code) {
 }
 
 std::string ErrorJson(const absl::Status& status) {
-  std::string out = absl::StrCat("{\"code\":", static_cast<int>(status.code()),
-                                 ",\"message\":\"", JsonEscape(status.message()), "\"");
-  const std::vector<core::FieldViolation> violations = core::FieldViolationsOf(status);
-  if (!violations.empty()) {
-    absl::StrAppend(&out, ",\"details\":[{\"@type\":\"type.googleapis.com/google.rpc.BadRequest\","
-                          "\"fieldViolations\":[");
-    for (std::size_t i = 0; i < violations.size(); ++i) {
-      absl::StrAppend(&out, i == 0 ? "" : ",", "{\"field\":\"", JsonEscape(violations[i].field),
-                      "\",\"description\":\"", JsonEscape(violations[i].description), "\"}");
-    }
-    absl::StrAppend(&out, "]}]");
+  // The google.rpc.Status a gRPC client gets in grpc-status-details-bin
+  // (same sanitized message, same violations and caps), or code and message.
+  const grpc::Status wire = ToGrpcStatus(status);
+  google::rpc::Status body;
+  if (wire.error_details().empty() || !body.ParseFromString(wire.error_details())) {
+    body.Clear();
+    body.set_code(static_cast<int>(status.code()));
+    body.set_message(wire.error_message());
   }
-  absl::StrAppend(&out, "}");
+  std::string out;
+  if (!google::protobuf::util::MessageToJsonString(body, &out).ok()) {
+    out = absl::StrCat("{\"code\":", static_cast<int>(status.code()), ",\"message\":\"",
+                       JsonEscape(wire.error_message()), "\"}");
+  }
   return out;
 }
 
@@ -190,14 +210,29 @@ void HttpGateway::Route() {
     server_->Post(absl::StrCat("/v1/", name),
                   [this, name, handler](const httplib::Request& req, httplib::Response& res) {
                     const absl::Time start = absl::Now();
+                    const std::string request_id = RequestIdOf(req);
                     const JsonAnswer answer =
                         draining_.load()
                             ? Error(absl::UnavailableError(
                                   "the server is shutting down; retry on another replica"))
-                            : RunJson(pool_, limits_, req.body, handler);
+                            : RunJson(pool_, limits_, req.body, request_id, handler);
                     res.status = HttpStatusFor(answer.code);
+                    res.set_header(kRequestIdKey, request_id);
                     res.set_content(answer.body, kJson);
                     metrics_->RecordCall("http", name, answer.code, absl::Now() - start);
+                    const std::string peer = absl::StrCat(req.remote_addr, ":",
+                                                          req.remote_port);
+                    LogCall({.transport = "http",
+                             .rpc = name,
+                             .code = answer.code,
+                             .latency_us = absl::ToInt64Microseconds(absl::Now() - start),
+                             .peer = peer,
+                             .request_id = request_id,
+                             .message = answer.code == absl::StatusCode::kOk
+                                            ? absl::string_view()
+                                            : absl::string_view(answer.message),
+                             .request_bytes = static_cast<std::int64_t>(req.body.size()),
+                             .response_bytes = static_cast<std::int64_t>(answer.body.size())});
                   });
   };
   method("Certify", &HandleCertify);
@@ -205,17 +240,23 @@ void HttpGateway::Route() {
   method("Gate", &HandleGate);
   method("SelectStructure", &HandleSelectStructure);
   method("PlanSamples", &HandlePlanSamples);
+  method("ListFamilies", &HandleListFamilies);
   server_->set_error_handler([](const httplib::Request& req, httplib::Response& res) {
     if (!res.body.empty()) return;
-    absl::Status s = res.status == 404
-                         ? absl::NotFoundError(absl::StrCat(
-                               "no such path: ", req.path,
-                               " (POST /v1/<Method> with a JSON body, or GET /metrics)"))
-                     : res.status == 413
-                         ? absl::ResourceExhaustedError(
-                               "the request body is above the server's limit "
-                               "(--max-request-bytes)")
-                         : absl::InvalidArgumentError(absl::StrCat("HTTP ", res.status));
+    res.set_header(kRequestIdKey, RequestIdOf(req));
+    absl::Status s =
+        res.status == 404
+            ? absl::NotFoundError(absl::StrCat(
+                  "no such path: ", req.method, " ", req.path, " (the methods are POST ",
+                  kMethodPaths, " with a JSON body; the metrics are GET /metrics)"))
+        : res.status == 413
+            ? absl::ResourceExhaustedError(
+                  "the request body is above the server's limit (--max-request-bytes)")
+        : res.status == 400
+            ? absl::InvalidArgumentError(
+                  "the HTTP request could not be read (a POST needs its body's length in "
+                  "Content-Length or chunked encoding; send {} for a request with no fields)")
+            : absl::InvalidArgumentError(absl::StrCat("HTTP ", res.status));
     res.set_content(ErrorJson(s), kJson);
   });
 }

@@ -7,8 +7,11 @@
 // the gRPC methods. Errors are JSON in the shape of google.rpc.Status in the
 // protobuf JSON mapping: {"code": 3, "message": "...", "details": [
 // {"@type": "type.googleapis.com/google.rpc.BadRequest", "fieldViolations":
-// [{"field": "...", "description": "..."}]}]}, with the HTTP status mapped
-// from the gRPC code in the usual way (400, 429, 503, 504, ...).
+// [{"field": "...", "description": "..."}]}, {"@type":
+// "type.googleapis.com/google.rpc.ErrorInfo", ...}]}, with the HTTP status
+// mapped from the gRPC code in the usual way (400, 429, 503, 504, ...).
+// Every answer carries the call's request id (request_id.h) in the
+// X-Request-Id header, and each method call adds one log line (LogCall).
 //
 // The port shares the gRPC port's transport security (TLS, or mutual TLS
 // requiring a client certificate from the client CA, from the same files)
@@ -47,8 +50,11 @@ namespace riskbound::rpc {
 int HttpStatusFor(absl::StatusCode code);
 
 // ErrorJson
-// The JSON error body for a non-OK status, with its field violations (if
-// any) as a google.rpc.BadRequest detail.
+// The JSON error body for a non-OK status: the google.rpc.Status that a gRPC
+// client gets in the grpc-status-details-bin trailer (status.h), in the
+// protobuf JSON mapping; with field violations its details are a
+// google.rpc.BadRequest and a google.rpc.ErrorInfo, else it is code and
+// message only.
 std::string ErrorJson(const absl::Status& status);
 
 class HttpGateway {

@@ -7,8 +7,8 @@
 namespace riskbound::rpc {
 
 absl::StatusOr<v1::ListFamiliesResponse> HandleListFamilies(
-    const v1::ListFamiliesRequest& /*request*/, const core::StopToken& stop) {
-  if (stop.StopRequested()) return stop.Status();
+    const v1::ListFamiliesRequest& /*request*/, const CallInfo& call) {
+  if (call.stop.StopRequested()) return call.stop.Status();
   return ListFamiliesResponseToProto(core::Families());
 }
 

@@ -116,7 +116,8 @@ void LogCall(const CallRecord& r) {
   const std::string code = absl::StatusCodeToString(r.code);
   if (g_format == LogFormat::kJson) {
     std::string line = absl::StrCat(
-        std::string(1, kFieldsMarker), "\"message\":\"call\",\"rpc\":\"", JsonEscape(r.rpc),
+        std::string(1, kFieldsMarker), "\"message\":\"call\",\"transport\":\"",
+        JsonEscape(r.transport), "\",\"rpc\":\"", JsonEscape(r.rpc),
         "\",\"code\":\"", code, "\",\"latency_us\":", r.latency_us, ",\"peer\":\"",
         JsonEscape(r.peer), "\",\"request_id\":\"", JsonEscape(r.request_id),
         "\",\"request_bytes\":", r.request_bytes, ",\"response_bytes\":", r.response_bytes);
@@ -124,9 +125,10 @@ void LogCall(const CallRecord& r) {
     spdlog::debug("{}", line);
     return;
   }
-  spdlog::debug("call rpc={} code={} latency_us={} peer={} request_id={} request_bytes={} "
-                "response_bytes={}{}{}",
-                std::string(r.rpc), code, r.latency_us, std::string(r.peer),
+  spdlog::debug("call transport={} rpc={} code={} latency_us={} peer={} request_id={} "
+                "request_bytes={} response_bytes={}{}{}",
+                std::string(r.transport), std::string(r.rpc), code, r.latency_us,
+                std::string(r.peer),
                 std::string(r.request_id), r.request_bytes,
                 r.response_bytes, failed ? " error=" : "",
                 failed ? JsonEscape(r.message) : std::string());

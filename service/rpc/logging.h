@@ -24,6 +24,7 @@ absl::Status ConfigureLogging(LogFormat format, absl::string_view level);
 
 // The fields of one finished call.
 struct CallRecord {
+  absl::string_view transport;   // "grpc" or "http" (the HTTP port's JSON methods)
   absl::string_view rpc;         // method name, e.g. "Certify"
   absl::StatusCode code = absl::StatusCode::kOk;
   std::int64_t latency_us = 0;   // from admission to the answer
@@ -36,7 +37,7 @@ struct CallRecord {
 
 // LogCall
 // Writes one line for a finished call at debug level: in JSON, one object
-// with the fields "rpc", "code", "latency_us", "peer", "request_id",
+// with the fields "transport", "rpc", "code", "latency_us", "peer", "request_id",
 // "request_bytes", "response_bytes" and, for an error, "error"; in text,
 // the same as key=value pairs. Error messages can quote request values, so
 // they are written at debug level only. Thread-safe.

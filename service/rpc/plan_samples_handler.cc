@@ -6,12 +6,12 @@
 namespace riskbound::rpc {
 
 absl::StatusOr<v1::PlanSamplesResponse> HandlePlanSamples(const v1::PlanSamplesRequest& request,
-                                                          const core::StopToken& stop) {
+                                                          const CallInfo& call) {
   const Converted<core::PlanSamplesRequest> in = PlanRequestFromProto(request);
   if (!in.refusals.empty()) {
     return WithRefusals(in.refusals, core::ValidatePlanSamplesRequest(in.request));
   }
-  absl::StatusOr<core::PlanSamplesResult> result = core::PlanSamples(in.request, stop);
+  absl::StatusOr<core::PlanSamplesResult> result = core::PlanSamples(in.request, call.stop);
   if (!result.ok()) return result.status();
   return PlanResponseToProto(*result);
 }

@@ -164,7 +164,7 @@ v1::RecordResult ItemErrorResult(std::uint64_t record_index, const std::string& 
 
 v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::RegistryRecord& record,
                              std::uint64_t record_index, std::int64_t max_result_bytes,
-                             core::RegistryLedger* ledger, const core::StopToken& stop) {
+                             core::RegistryLedger* ledger, const CallInfo& call) {
   v1::RecordResult out;
   out.set_record_index(record_index);
   const bool gate = settings.has_gate();
@@ -212,7 +212,7 @@ v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::Regist
     request.mutable_candidate()->set_id(record.record_id());
     *request.mutable_candidate()->mutable_evidence() = record.evidence();
     if (record.has_champion()) *request.mutable_champion() = record.champion();
-    absl::StatusOr<v1::GateResponse> answer = HandleGate(request, stop);
+    absl::StatusOr<v1::GateResponse> answer = HandleGate(request, call);
     if (answer.ok()) {
       *out.mutable_gated() = std::move(*answer);
     } else {
@@ -224,7 +224,7 @@ v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::Regist
     request.set_failure_probability(share);
     if (settings.certify().has_listed()) *request.mutable_listed() = settings.certify().listed();
     if (settings.certify().has_all_applicable()) request.mutable_all_applicable();
-    absl::StatusOr<v1::CertifyResponse> answer = HandleCertify(request, stop);
+    absl::StatusOr<v1::CertifyResponse> answer = HandleCertify(request, call);
     if (answer.ok()) {
       *out.mutable_certified() = std::move(*answer);
     } else {

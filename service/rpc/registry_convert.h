@@ -13,6 +13,7 @@
 #include "riskbound/v1/registry.pb.h"
 #include "service/core/registry.h"
 #include "service/core/stop.h"
+#include "service/rpc/handlers.h"
 #include "service/rpc/refusals.h"
 
 namespace riskbound::rpc {
@@ -53,10 +54,12 @@ struct RegistryTally {
 // result.error, with field paths relative to the record ("evidence.*",
 // "champion.*", "record_id", "holdout_set_id", "delta_weight"; a settings
 // field as "settings.*"). Answers larger than `max_result_bytes` become a
-// RESOURCE_EXHAUSTED error. REQUIRES: `settings` passed ValidatedSettings.
+// RESOURCE_EXHAUSTED error. `call` is the record's stop token and the
+// stream's request id (a gate answer's audit.request_id). REQUIRES:
+// `settings` passed ValidatedSettings.
 v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::RegistryRecord& record,
                              std::uint64_t record_index, std::int64_t max_result_bytes,
-                             core::RegistryLedger* ledger, const core::StopToken& stop);
+                             core::RegistryLedger* ledger, const CallInfo& call);
 
 // CountLedgerOnly
 // A record re-sent with ledger_only: its share counted against its set

@@ -5,8 +5,6 @@
 #include <string>
 #include <vector>
 
-#include "absl/random/random.h"
-#include "absl/strings/ascii.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
@@ -17,6 +15,7 @@
 #include "service/rpc/handlers.h"
 #include "service/rpc/logging.h"
 #include "service/rpc/registry_convert.h"
+#include "service/rpc/request_id.h"
 #include "service/rpc/status.h"
 
 namespace riskbound::rpc {
@@ -48,24 +47,13 @@ namespace {
 
 using internal::CallReactor;
 
-constexpr std::size_t kMaxRequestIdLength = 64;
-
-// The caller's x-request-id when it is a sane token (letters, digits and
-// ".-_:", at most 64 characters), else a fresh random one.
-std::string RequestIdFor(const grpc::CallbackServerContext& context) {
+// The caller's x-request-id metadata when usable, else a fresh one
+// (request_id.h).
+std::string RequestIdOf(const grpc::CallbackServerContext& context) {
   const auto& metadata = context.client_metadata();
-  auto it = metadata.find("x-request-id");
-  if (it != metadata.end()) {
-    const std::string given(it->second.data(), it->second.size());
-    const bool sane = !given.empty() && given.size() <= kMaxRequestIdLength &&
-                      std::all_of(given.begin(), given.end(), [](char c) {
-                        return absl::ascii_isalnum(static_cast<unsigned char>(c)) ||
-                               c == '.' || c == '-' || c == '_' || c == ':';
-                      });
-    if (sane) return given;
-  }
-  thread_local absl::BitGen bits;
-  return absl::StrFormat("%016x", absl::Uniform<std::uint64_t>(bits));
+  auto it = metadata.find(kRequestIdKey);
+  if (it == metadata.end()) return RequestIdFor(absl::nullopt);
+  return RequestIdFor(absl::string_view(it->second.data(), it->second.size()));
 }
 
 bool Decode(const grpc::ByteBuffer& bytes, google::protobuf::Message* out) {
@@ -141,13 +129,13 @@ template <class Request, class Response>
 grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
     const char* method, grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
     grpc::ByteBuffer* response,
-    absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&)) {
+    absl::StatusOr<Response> (*handler)(const Request&, const CallInfo&)) {
   const absl::Time start = absl::Now();
   const absl::Duration budget =
       std::min(limits_.max_call_time, ToDuration(context->deadline()));
   auto* reactor = new CallReactor(this, start + budget);
-  const std::string request_id = RequestIdFor(*context);
-  context->AddInitialMetadata("x-request-id", request_id);
+  const std::string request_id = RequestIdOf(*context);
+  context->AddInitialMetadata(kRequestIdKey, request_id);
   const std::int64_t request_bytes = static_cast<std::int64_t>(request->Length());
 
   // Finishes the call; the only place that does. REQUIRES: called once.
@@ -155,7 +143,8 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
                     const absl::Status& status, std::int64_t response_bytes) {
     if (metrics_ != nullptr) metrics_->RecordCall("grpc", method, status.code(), absl::Now() - start);
     const std::string peer = context->peer();
-    LogCall({.rpc = method,
+    LogCall({.transport = "grpc",
+             .rpc = method,
              .code = status.code(),
              .latency_us = absl::ToInt64Microseconds(absl::Now() - start),
              .peer = peer,
@@ -179,7 +168,8 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
     finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
     return reactor;
   }
-  auto work = [this, method, request, response, reactor, finish, handler, budget, refused]() {
+  auto work = [this, method, request, response, reactor, finish, handler, budget, refused,
+               request_id]() {
     const core::StopToken& stop = reactor->stop();
     // The reason a stopped call gives, when the caller can still read it.
     auto stopped = [this, method, &stop, budget, &refused]() {
@@ -206,7 +196,7 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
                         "string field is not valid UTF-8)")),
                     0);
     }
-    absl::StatusOr<Response> answer = handler(decoded, stop);
+    absl::StatusOr<Response> answer = handler(decoded, {.stop = stop, .request_id = request_id});
     if (stop.StopRequested() &&
         (answer.ok() || answer.status().code() == absl::StatusCode::kCancelled ||
          answer.status().code() == absl::StatusCode::kDeadlineExceeded)) {
@@ -303,8 +293,8 @@ class ScoreStream final : public grpc::ServerBidiReactor<grpc::ByteBuffer, grpc:
         start_(absl::Now()),
         stream_deadline_(start_ + ToDuration(context->deadline())),
         peer_(context->peer()),
-        request_id_(RequestIdFor(*context)) {
-    context->AddInitialMetadata("x-request-id", request_id_);
+        request_id_(RequestIdOf(*context)) {
+    context->AddInitialMetadata(kRequestIdKey, request_id_);
     owner_->Register(this);
   }
 
@@ -361,7 +351,8 @@ class ScoreStream final : public grpc::ServerBidiReactor<grpc::ByteBuffer, grpc:
     if (owner_->metrics_ != nullptr) {
       owner_->metrics_->RecordCall("grpc", "ScoreRegistry", final_.code(), latency);
     }
-    LogCall({.rpc = "ScoreRegistry",
+    LogCall({.transport = "grpc",
+             .rpc = "ScoreRegistry",
              .code = final_.code(),
              .latency_us = absl::ToInt64Microseconds(latency),
              .peer = peer_,
@@ -452,7 +443,8 @@ class ScoreStream final : public grpc::ServerBidiReactor<grpc::ByteBuffer, grpc:
         record_stop_ = &stop;
       }
       *result = ScoreRecord(wire_settings_, item.record(), index,
-                            owner_->limits_.max_response_bytes, &*ledger_, stop);
+                            owner_->limits_.max_response_bytes, &*ledger_,
+                            {.stop = stop, .request_id = request_id_});
       {
         absl::MutexLock lock(&mu_);
         record_stop_ = nullptr;

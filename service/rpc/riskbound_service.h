@@ -25,6 +25,7 @@
 #include "service/core/stop.h"
 #include "service/rpc/auth.h"
 #include "service/rpc/call_pool.h"
+#include "service/rpc/handlers.h"
 #include "service/rpc/metrics.h"
 
 namespace riskbound::rpc {
@@ -119,7 +120,7 @@ class RiskBoundService final : public internal::RawRiskBoundService {
   grpc::ServerUnaryReactor* Dispatch(
       const char* method, grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
       grpc::ByteBuffer* response,
-      absl::StatusOr<Response> (*handler)(const Request&, const core::StopToken&));
+      absl::StatusOr<Response> (*handler)(const Request&, const CallInfo&));
   // True when no token is needed, or the call's `authorization` metadata
   // holds a valid bearer token (auth.h). Every method, unary or streaming,
   // asks before it admits the call.

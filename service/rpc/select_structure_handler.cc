@@ -6,12 +6,12 @@
 namespace riskbound::rpc {
 
 absl::StatusOr<v1::SelectStructureResponse> HandleSelectStructure(
-    const v1::SelectStructureRequest& request, const core::StopToken& stop) {
+    const v1::SelectStructureRequest& request, const CallInfo& call) {
   const Converted<core::SelectRequest> in = SelectRequestFromProto(request);
   if (!in.refusals.empty()) {
     return WithRefusals(in.refusals, core::ValidateSelectRequest(in.request));
   }
-  absl::StatusOr<core::SelectResult> result = core::SelectStructure(in.request, stop);
+  absl::StatusOr<core::SelectResult> result = core::SelectStructure(in.request, call.stop);
   if (!result.ok()) return result.status();
   return SelectResponseToProto(*result);
 }

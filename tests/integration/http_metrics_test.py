@@ -130,12 +130,107 @@ class HttpTest(unittest.TestCase):
         payload = {"evidence": {"holdout": {"errorCount": 5, "sampleCount": 3}},
                    "failureProbability": 2}
         status, answer = self.post("Certify", payload)
+        # HTTP 400 for INVALID_ARGUMENT: the mapping of google.rpc.Code's
+        # documentation (common practice for gRPC-to-HTTP gateways).
         self.assertEqual(status, 400)
         self.assertEqual(answer["code"], 3)  # INVALID_ARGUMENT
-        detail = answer["details"][0]
-        self.assertEqual(detail["@type"], "type.googleapis.com/google.rpc.BadRequest")
-        fields = [v["field"] for v in detail["fieldViolations"]]
-        self.assertEqual(sorted(fields), ["evidence.holdout.error_count", "failure_probability"])
+        self.assertIn("failure_probability", answer["message"])
+        self.assertIn("evidence.holdout.error_count", answer["message"])
+        by_type = {d["@type"]: d for d in answer["details"]}
+        self.assertEqual(sorted(by_type), ["type.googleapis.com/google.rpc.BadRequest",
+                                           "type.googleapis.com/google.rpc.ErrorInfo"])
+        violations = by_type["type.googleapis.com/google.rpc.BadRequest"]["fieldViolations"]
+        self.assertEqual([v["field"] for v in violations],
+                         ["failure_probability", "evidence.holdout.error_count"])
+        self.assertIn("strictly between 0 and 1", violations[0]["description"])
+        self.assertIn("5 errors exceed the 3 samples", violations[1]["description"])
+        info = by_type["type.googleapis.com/google.rpc.ErrorInfo"]
+        self.assertEqual((info["reason"], info["domain"]), ("INVALID_FIELDS", "riskbound.v1"))
+        self.assertEqual(info["metadata"]["violation_count"], "2")
+        # The body is the google.rpc.Status a gRPC client gets in the
+        # grpc-status-details-bin trailer for the same request, in the
+        # protobuf JSON mapping (parsed back with protobuf's json_format).
+        from google.protobuf import json_format
+        from google.rpc import error_details_pb2, status_pb2
+        req = certify_pb.CertifyRequest(failure_probability=2)
+        req.evidence.holdout.error_count = 5
+        req.evidence.holdout.sample_count = 3
+        with self.assertRaises(grpc.RpcError) as ctx:
+            self.stub.Certify(req, timeout=10)
+        raw = dict(ctx.exception.trailing_metadata() or ()).get("grpc-status-details-bin")
+        over_grpc = status_pb2.Status.FromString(raw)
+        over_http = json_format.Parse(json.dumps(answer), status_pb2.Status())
+        self.assertEqual((over_http.code, over_http.message), (over_grpc.code, over_grpc.message))
+
+        def unpacked(status):
+            out = []
+            for detail in status.details:
+                for kind in (error_details_pb2.BadRequest, error_details_pb2.ErrorInfo):
+                    if detail.Is(kind.DESCRIPTOR):
+                        message = kind()
+                        detail.Unpack(message)
+                        out.append(message)
+            return out
+
+        self.assertEqual(unpacked(over_http), unpacked(over_grpc))
+        self.assertEqual(len(unpacked(over_http)), 2)
+
+    def test_every_method_in_json_matches_grpc(self):
+        # Each of the six methods, POSTed in the protobuf JSON mapping, gives
+        # the answer the gRPC method gives for the same request (the Gate
+        # audit record's timestamp and request id aside).
+        from google.protobuf import json_format
+        from riskbound.v1 import capacity_pb2, families_pb2, plan_pb2, select_pb2
+        source = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..")
+
+        def example(path):
+            with open(os.path.join(source, "examples", "fernhill", path)) as f:
+                return json.load(f)
+
+        with open(os.path.join(source, "examples", "fernhill", "gate", "policy.json")) as f:
+            policy = json.load(f)
+        cases = [
+            ("Certify", certify_pb.CertifyRequest, certify_pb.CertifyResponse,
+             example("models/address-normalizer-v3.json")),
+            ("EstimateCapacity", capacity_pb2.EstimateCapacityRequest,
+             capacity_pb2.EstimateCapacityResponse,
+             example("requests/late-risk-net-capacity.json")),
+            ("Gate", gate_pb.GateRequest, gate_pb.GateResponse,
+             {"policy": policy, "candidate": example("gate/late-risk-v14.candidate.json")}),
+            ("SelectStructure", select_pb2.SelectStructureRequest,
+             select_pb2.SelectStructureResponse, example("structure.json")),
+            ("PlanSamples", plan_pb2.PlanSamplesRequest, plan_pb2.PlanSamplesResponse,
+             {"holdout": {"targetRisk": 0.05, "expectedRisk": 0.0,
+                          "failureProbability": 0.05}}),
+            ("ListFamilies", families_pb2.ListFamiliesRequest,
+             families_pb2.ListFamiliesResponse, {}),
+        ]
+        answers = {}
+        for method, request_type, response_type, payload in cases:
+            status, body = self.post(method, payload)
+            self.assertEqual(status, 200, (method, body))
+            over_http = json_format.Parse(json.dumps(body), response_type())
+            request = json_format.Parse(json.dumps(payload), request_type())
+            over_grpc = getattr(self.stub, method)(request, timeout=10)
+            if method == "Gate":
+                for answer in (over_http, over_grpc):
+                    answer.audit.ClearField("timestamp")
+                    answer.audit.ClearField("request_id")
+            self.assertEqual(over_http, over_grpc, method)
+            answers[method] = over_http
+        # Outside values for some of them. Source: zero-failure binomial
+        # plan, the smallest n with (1 - 0.05)^n <= 0.05: ceil(ln 0.05 /
+        # ln 0.95) = 59 (Python math).
+        self.assertEqual(answers["PlanSamples"].holdout.zero_failure_sample_count,
+                         math.ceil(math.log(0.05) / math.log(0.95)))
+        self.assertEqual(answers["Gate"].verdict, gate_pb.VERDICT_REJECT)
+        self.assertIn("holdout-binomial",
+                      [f.family_name for f in answers["ListFamilies"].families])
+        # An empty body is the empty message, as {} is.
+        status, ctype, body = self.request("POST", "/v1/ListFamilies", "")
+        self.assertEqual(status, 200)
+        self.assertEqual(json_format.Parse(body, families_pb2.ListFamiliesResponse()),
+                         answers["ListFamilies"])
 
     def test_undecodable_and_unknown(self):
         status, answer = self.post("Certify", {"noSuchField": 1})
@@ -146,6 +241,9 @@ class HttpTest(unittest.TestCase):
         status, ctype, body = self.request("GET", "/v1/NoSuchMethod")
         self.assertEqual(status, 404)
         self.assertEqual(json.loads(body)["code"], 5)  # NOT_FOUND
+        status, ctype, body = self.request("POST", "/v1/NoSuchMethod", "{}")
+        self.assertEqual(status, 404)
+        self.assertIn("/v1/ListFamilies", json.loads(body)["message"])
 
     def test_body_above_the_request_limit_is_413(self):
         status, ctype, body = self.request("POST", "/v1/Certify", " " * 100_000)

@@ -152,7 +152,7 @@ class ServerTest(unittest.TestCase):
         self.assertEqual(self.server.stop(), 0)
         logs = self.server.logs()
         self.assertIn('"message":"serving riskbound.v1', logs)
-        self.assertIn('"message":"call","rpc":"Certify","code":"OK"', logs)
+        self.assertIn('"message":"call","transport":"grpc","rpc":"Certify","code":"OK"', logs)
         self.assertIn('"message":"stopped: every call in flight finished"', logs)
 
 

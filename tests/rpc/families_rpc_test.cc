@@ -104,7 +104,8 @@ TEST_F(FamiliesRpcTest, NamesAgreeWithCertify) {
 TEST(ListFamiliesHandlerTest, StoppedCallReturnsTheStopStatus) {
   core::StopToken stop;
   stop.Cancel();
-  EXPECT_EQ(HandleListFamilies(v1::ListFamiliesRequest(), stop).status().code(),
+  const CallInfo call{.stop = stop, .request_id = ""};
+  EXPECT_EQ(HandleListFamilies(v1::ListFamiliesRequest(), call).status().code(),
             absl::StatusCode::kCancelled);
 }
 

@@ -320,10 +320,12 @@ TEST(GateConvertTest, TimestampFromInjectedClock) {
   auto decision =
       core::DecideGate(inputs.request.policy, inputs.request.candidate, inputs.request.champion);
   ASSERT_TRUE(decision.ok()) << decision.status();
-  const v1::GateResponse resp =
-      GateResponseToProto(*decision, ReferenceRequest(), absl::FromUnixSeconds(1772366400));
+  const v1::GateResponse resp = GateResponseToProto(
+      *decision, ReferenceRequest(), absl::FromUnixSeconds(1772366400), "deploy-7f3a:42");
   EXPECT_EQ(resp.audit().timestamp(), "2026-03-01T12:00:00Z");
   EXPECT_EQ(resp.audit().request_sha256(), kReferenceDigest);
+  // The request id is the call's, copied as given; it is not in the digest.
+  EXPECT_EQ(resp.audit().request_id(), "deploy-7f3a:42");
 }
 
 std::vector<std::string> ViolatedFields(const grpc::Status& status) {
