@@ -21,7 +21,9 @@ namespace riskbound::cli {
 
 std::vector<OptionSpec> ConnectionOptions() {
   return {
-      {"server", "HOST:PORT", "riskbound-server address (default $RISKBOUND_SERVER or 127.0.0.1:50051)"},
+      {"server", "HOST:PORT", "riskbound-server address, or a gRPC target of several replicas "
+                              "(dns:///NAME:PORT, ipv4:A:P,B:P; calls go round robin) (default "
+                              "$RISKBOUND_SERVER or 127.0.0.1:50051)"},
       {"timeout", "SECONDS", "deadline of each call (default 10)"},
       {"plaintext", "",
        "connect without TLS (the default only for a loopback --server: 127.0.0.1, localhost, "
@@ -38,12 +40,10 @@ std::vector<OptionSpec> ConnectionOptions() {
   };
 }
 
-bool IsLoopbackAddress(const std::string& server) {
-  absl::string_view target = server;
-  if (absl::StartsWith(target, "unix:") || absl::StartsWith(target, "unix-abstract:")) return true;
-  absl::ConsumePrefix(&target, "ipv4:");
-  absl::ConsumePrefix(&target, "ipv6:");
-  absl::string_view host = target;
+namespace {
+
+// One HOST:PORT (or [IPV6]:PORT) of a target.
+bool IsLoopbackHostPort(absl::string_view host) {
   if (absl::ConsumePrefix(&host, "[")) {
     host = host.substr(0, host.find(']'));
     return host == "::1";
@@ -57,6 +57,21 @@ bool IsLoopbackAddress(const std::string& server) {
     if (!absl::SimpleAtoi(part, &octet) || octet < 0 || octet > 255) return false;
   }
   return true;
+}
+
+}  // namespace
+
+bool IsLoopbackAddress(const std::string& server) {
+  absl::string_view target = server;
+  if (absl::StartsWith(target, "unix:") || absl::StartsWith(target, "unix-abstract:")) return true;
+  if (absl::ConsumePrefix(&target, "ipv4:") || absl::ConsumePrefix(&target, "ipv6:")) {
+    // A list of addresses (several replicas): loopback when every one is.
+    for (absl::string_view address : absl::StrSplit(target, ',')) {
+      if (!IsLoopbackHostPort(address)) return false;
+    }
+    return true;
+  }
+  return IsLoopbackHostPort(target);
 }
 
 namespace {

@@ -41,8 +41,8 @@ struct ClientOptions {
 std::vector<OptionSpec> ConnectionOptions();
 
 // IsLoopbackAddress
-// True for a HOST:PORT whose host is localhost, 127.0.0.0/8 or [::1] (also
-// with an ipv4:/ipv6: scheme), or a unix: socket.
+// True for a HOST:PORT whose host is localhost, 127.0.0.0/8 or [::1], an
+// ipv4:/ipv6: target whose every address is one, or a unix: socket.
 bool IsLoopbackAddress(const std::string& server);
 
 // ClientOptionsFromArgs

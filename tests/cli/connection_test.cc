@@ -30,12 +30,14 @@ class ConnectionTest : public ::testing::Test {
 
 TEST_F(ConnectionTest, LoopbackAddresses) {
   for (const char* address : {"127.0.0.1:50051", "127.1.2.3:1", "localhost:50051",
-                              "LOCALHOST:1", "[::1]:50051", "ipv4:127.0.0.1:5", "unix:/tmp/s"}) {
+                              "LOCALHOST:1", "[::1]:50051", "ipv4:127.0.0.1:5", "unix:/tmp/s",
+                              "ipv4:127.0.0.1:5,127.0.0.2:6", "ipv6:[::1]:5,[::1]:6"}) {
     EXPECT_TRUE(IsLoopbackAddress(address)) << address;
   }
   for (const char* address : {"10.0.0.1:50051", "128.0.0.1:1", "127.0.0.1.example.com:1",
                               "riskbound.example.internal:50051", "[::2]:1", "[fe80::1]:1",
-                              "localhost.example.com:1", "0.0.0.0:50051"}) {
+                              "localhost.example.com:1", "0.0.0.0:50051",
+                              "ipv4:127.0.0.1:5,10.0.0.1:6", "ipv4:10.0.0.1:5,127.0.0.1:6"}) {
     EXPECT_FALSE(IsLoopbackAddress(address)) << address;
   }
 }
