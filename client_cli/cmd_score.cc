@@ -690,16 +690,14 @@ int RunScore(const std::vector<std::string>& raw_args, std::ostream& out, std::o
   const std::uint64_t total = prior.size() + written;
   err << "\n" << total << " rows";
   if (!prior.empty()) err << " (" << prior.size() << " from the earlier run)";
+  // Counts of this run's rows (with --resume, of the rows scored now: the
+  // report counts the whole file).
+  const std::string part = prior.empty() ? "" : "this part: ";
   if (settings.has_gate()) {
-    if (report.has_value()) {
-      err << ": " << report->promote_count() << " PROMOTE, " << report->hold_count() << " HOLD, "
-          << report->reject_count() << " REJECT";
-    } else {
-      err << " (this part: " << summary.promote_count() << " PROMOTE, " << summary.hold_count()
-          << " HOLD, " << summary.reject_count() << " REJECT)";
-    }
+    err << " (" << part << summary.promote_count() << " PROMOTE, " << summary.hold_count()
+        << " HOLD, " << summary.reject_count() << " REJECT)";
   } else {
-    err << " (this part: " << summary.non_vacuous_count() << " certified, "
+    err << " (" << part << summary.non_vacuous_count() << " certified, "
         << summary.vacuous_count() << " vacuous)";
   }
   err << "; " << error_rows << " error rows\n" << summary.statement() << "\n";

@@ -252,8 +252,8 @@ std::string RegistryLedger::Statement(std::uint64_t scored) const {
       "Failure probability shared per hold-out set (union bound over the records declared for "
       "each set): all statements about the records of one hold-out set hold together with "
       "probability at least 1 - %s, so a choice among them (the best model on a shared "
-      "hold-out set) is covered; %d records scored over %d hold-out sets.",
-      DeltaText(delta_), scored, accounts_.size());
+      "hold-out set) is covered; %d records scored, %d hold-out %s declared.",
+      DeltaText(delta_), scored, accounts_.size(), accounts_.size() == 1 ? "set" : "sets");
 }
 
 }  // namespace riskbound::core

@@ -226,6 +226,9 @@ v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::Regist
     if (settings.certify().has_all_applicable()) request.mutable_all_applicable();
     absl::StatusOr<v1::CertifyResponse> answer = HandleCertify(request, call);
     if (answer.ok()) {
+      // The cautions are the same for every record: the RunSummary carries
+      // them once.
+      answer->clear_cautions();
       *out.mutable_certified() = std::move(*answer);
     } else {
       failed = answer.status();

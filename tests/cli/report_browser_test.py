@@ -34,7 +34,7 @@ class ReportInBrowserTest(unittest.TestCase):
         code, out, err = harness.run_cli("score", REGISTRY, "--policy", POLICY, "--output",
                                          "csv", "--report", report)
         self.assertEqual(code, 12, err)  # the demo registry has 3 malformed rows
-        m = re.search(r"(\d+) rows: (\d+) PROMOTE, (\d+) HOLD, (\d+) REJECT; (\d+) error rows",
+        m = re.search(r"(\d+) rows \((\d+) PROMOTE, (\d+) HOLD, (\d+) REJECT\); (\d+) error rows",
                       err)
         self.assertIsNotNone(m, err)
         rows, promote, hold, reject, errors = map(int, m.groups())
