@@ -26,11 +26,17 @@ namespace {
 using Predicate = std::function<bool(std::uint64_t)>;
 
 // CPU time one plan's searches may take. Ordinary plans need well under a
-// millisecond, large ones (answers near 1e9) tens of milliseconds; only an
+// millisecond, large ones (answers near 1e9) a few milliseconds; only an
 // expected rate within a hair of the target (whose answer lies near or
 // beyond 2^53, with bound evaluations at huge n) comes near it. Past it the
-// plan is reported unreachable with kOverBudget.
-constexpr double kPlanCpuBudgetSeconds = 0.1;
+// plan is reported unreachable with kOverBudget. With the check of the
+// teeth below a pass-probability plan (kMinimalityBudgetSeconds) and the
+// final evaluations, a plan stays below 100 ms of CPU.
+constexpr double kPlanCpuBudgetSeconds = 0.065;
+
+// CPU time the check that no earlier tooth passes may take (it stops there
+// and the rule says down to which n it got).
+constexpr double kMinimalityBudgetSeconds = 0.015;
 
 constexpr char kOverBudget[] =
     "the expected error rate is so close to the target risk that the plan would need "
@@ -296,8 +302,10 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
     const auto first_feasible = [&](std::uint64_t k) -> absl::StatusOr<std::uint64_t> {
       if (auto it = s_known.find(k); it != s_known.end()) return it->second;
       std::uint64_t lo = k + 1;
+      // Binbar(n, K) >= K/n holds for delta <= 1/2 only (the median of
+      // Bin(n, K/n) is K: Kaas & Buhrman 1980).
       const double by_rate = std::ceil(static_cast<double>(k) / eps);
-      if (by_rate < static_cast<double>(kPlanMaxSamples)) {
+      if (delta <= 0.5 && by_rate < static_cast<double>(kPlanMaxSamples)) {
         lo = std::max(lo, static_cast<std::uint64_t>(by_rate));
       }
       std::uint64_t hi = kPlanMaxSamples;
@@ -374,8 +382,73 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
       plan.sample_count = 0;
       return plan;
     }
-    const std::uint64_t good = *k_star;
-    const std::uint64_t n96 = *s_star;
+    // The bisection over K stops at a crossing (P(pass at s_K) >= target,
+    // at s_{K-1} not), but P(pass at s_K) is not monotone in K, so an
+    // earlier tooth may pass too. Every n below s_{K*} is checked, downward
+    // from the crossing, by blocks of teeth [lo, hi]: for n in [s_lo,
+    // s_{hi+1}), k_max(n) <= hi and n >= s_lo, so P(pass at n) <= P(Bin(s_lo,
+    // p) <= hi); a block whose bound is below the target holds no passing n.
+    // Blocks double while they are ruled out and halve when not; a single
+    // tooth that cannot be ruled out is evaluated (its start passes when the
+    // tail's lower bound reaches the target). The blocks grow by a factor
+    // of about eps/p per step away from the crossing, so a few dozen
+    // searches cover every K down to 0 unless p is within a hair of eps.
+    std::uint64_t best = k_star.ok() ? *k_star : 0;
+    // The smallest K such that every tooth from K up was checked.
+    std::uint64_t checked_from = best;
+    if (k_star.ok() && s_star.ok() && *k_star > 0) {
+      WorkBudget minimality_budget(kMinimalityBudgetSeconds);
+      std::int64_t hi = static_cast<std::int64_t>(*k_star) - 1;
+      std::uint64_t block = 1;
+      while (hi >= 0 && !ok.spent() && !minimality_budget.Spent()) {
+        const std::uint64_t top = static_cast<std::uint64_t>(hi);
+        const std::uint64_t lo = top + 1 > block ? top + 1 - block : 0;
+        const absl::StatusOr<std::uint64_t> s_lo = first_feasible(lo);
+        if (ok.spent() || !s_lo.ok()) break;
+        bool unused = true;
+        // An upper bound on P(Bin(s_lo, p) <= top): one minus a lower
+        // bound on the complement P(Bin(s_lo, p) >= top + 1).
+        const double bound =
+            top >= *s_lo ? 1.0
+                         : 1.0 - BinomialTailLowerBound(*s_lo, top + 1, p,
+                                                        BinomialTail::kAtLeast, &unused);
+        if (bound < target) {
+          checked_from = lo;
+          if (lo == 0) break;
+          hi = static_cast<std::int64_t>(lo) - 1;
+          block = block > kPlanMaxSamples / 2 ? block : 2 * block;
+          continue;
+        }
+        if (block > 1) {
+          block /= 2;
+          continue;
+        }
+        // One tooth, K = top = lo: its start passes when its own tooth is
+        // not empty (s_{K+1} > s_K) and P(Bin(s_K, p) <= K) reaches the target.
+        const absl::StatusOr<std::uint64_t> s_next = first_feasible(top + 1);
+        if (ok.spent()) break;
+        if (s_next.ok() && *s_next > *s_lo &&
+            BinomialTailLowerBound(*s_lo, top, p, BinomialTail::kAtMost, &unused) >= target) {
+          best = top;
+        }
+        checked_from = top;
+        hi -= 1;
+      }
+    }
+    if (ok.stopped()) return stop.Status();
+    if (ok.exhausted()) {
+      plan.reason = kOverBudget;
+      plan.sample_count = 0;
+      return plan;
+    }
+    const std::uint64_t good = best;
+    const absl::StatusOr<std::uint64_t> s_best = first_feasible(best);
+    if (!s_best.ok()) {
+      plan.reason = kBeyondRange;
+      plan.sample_count = 0;
+      return plan;
+    }
+    const std::uint64_t n96 = *s_best;
     plan.pass_probability_sample_count = n96;
     plan.sample_count = n96;
     tolerated = k_max(n96, good);
@@ -385,11 +458,21 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
       plan.sample_count = 0;
       return plan;
     }
+    // Where the check of the earlier teeth ran out of its budget, the rule
+    // says from which n up it holds.
+    const std::uint64_t checked_from_n =
+        checked_from == 0 ? 0 : first_feasible(checked_from).value_or(n96);
+    const std::string checked =
+        checked_from_n == 0
+            ? std::string("every smaller n was checked")
+            : absl::StrCat("every smaller n from ", checked_from_n,
+                           " up was checked; smaller ones were not, within the work budget");
     plan.rule = absl::StrFormat(
-        "smallest n at which a model with true error rate %g passes (exact binomial "
-        "bound <= %g) with probability >= %g (a power calculation on the binomial "
-        "distribution of the error count; exact integer search)",
-        p, eps, target);
+        "smallest n with P(Bin(n, %g) <= k_max(n)) >= %g, where k_max(n) is the most errors "
+        "at which the exact binomial bound on n examples is <= %g: the probability that a "
+        "model with true error rate %g passes (a power calculation; %s, since the pass "
+        "probability is a sawtooth in n) (Clopper & Pearson 1934; exact integer search)",
+        p, target, eps, p, checked);
     plan.notes.emplace_back(
         "the pass probability is a sawtooth in n: a few samples more than planned can "
         "lower it until the hold-out set tolerates one more error");
