@@ -138,12 +138,19 @@ double LogChooseMinusEntropy(double n, double k) {
 // kl(q || q + d) for q + d in [0, 1], from the offset d itself, so that
 // nothing is lost to rounding q + d: q f(d/q) + (1-q) f(-d/(1-q)) with
 // f(x) = x - ln(1 + x) (kl(0 || d) = -ln(1 - d), kl(1 || 1 + d) = -ln(1 + d)).
-double KlAtOffset(double q, double d) {
+// With `log_odds_ratio`, also ln((q + d)/q) - ln((1 - q - d)/(1 - q)) = x -
+// f(x) - (y - f(y)) (x = d/q, y = -d/(1-q)), from the same f values; only
+// asked for 0 < q < 1.
+double KlAtOffset(double q, double d, double* log_odds_ratio = nullptr) {
   if (q <= 0.0) return -std::log1p(-d);
   if (q >= 1.0) return -std::log1p(d);
   const double w = 1.0 - q;
-  return WeightedXMinusLog1p(q, d, [&] { return std::log1p(d / q); }) +
-         WeightedXMinusLog1p(w, -d, [&] { return std::log1p(-d / w); });
+  const double x = d / q;
+  const double y = -d / w;
+  const double fx = std::fabs(x) <= 0.5 ? XMinusLog1pSmall(x) : x - std::log1p(x);
+  const double fy = std::fabs(y) <= 0.5 ? XMinusLog1pSmall(y) : y - std::log1p(y);
+  if (log_odds_ratio != nullptr) *log_odds_ratio = (x - fx) - (y - fy);
+  return q * fx + w * fy;
 }
 
 // k/n as a double and what its rounding left out: r = k - n q exactly (one
@@ -250,9 +257,10 @@ std::optional<double> LogPowerIntegral(double m, double j, double a, double b) {
   const double q = rate.q;
   const double r = rate.r;
   const auto exponent = [&](double d) {
-    double v = -m * KlAtOffset(q, d);
-    if (r != 0.0) v += r * (std::log1p(d / q) - std::log1p(-d / (1.0 - q)));
-    return v;
+    if (r == 0.0) return -m * KlAtOffset(q, d);
+    double log_odds_ratio = 0.0;
+    const double kl = KlAtOffset(q, d, &log_odds_ratio);
+    return -m * kl + r * log_odds_ratio;
   };
   const double lo = a - q;
   const double hi = b - q;
@@ -343,9 +351,20 @@ LogBounds LogTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
   const double odds = upper_tail ? p / (1.0 - p) : (1.0 - p) / p;
   // exp() of the gap to the threshold, capped so it stays finite.
   const double enough = std::exp(std::min(log_enough - log_first, 700.0));
-  LogBounds s = LogTailRatioSum(nd, m, odds, enough, kTailTermsFirst);
-  if (s.Converged() || s.lower + log_first >= log_enough) {
-    return {log_first + s.lower, log_first + s.upper};
+  // The first ratio r bounds every later one, so the first kTailTermsFirst
+  // terms cover at most kTailTermsFirst terms' worth: when that sum cannot
+  // reach `enough` and r^kTailTermsFirst is not even below 2^-56 (near the
+  // mode at large n), the sum is skipped, not tried.
+  const double first_ratio = m / (nd - m + 1.0) * odds;
+  const bool hopeless =
+      enough > static_cast<double>(kTailTermsFirst) &&
+      static_cast<double>(kTailTermsFirst) * std::log(first_ratio) > std::log(kTailNegligible);
+  LogBounds s{-std::numeric_limits<double>::infinity(), 0.0};
+  if (!hopeless) {
+    s = LogTailRatioSum(nd, m, odds, enough, kTailTermsFirst);
+    if (s.Converged() || s.lower + log_first >= log_enough) {
+      return {log_first + s.lower, log_first + s.upper};
+    }
   }
   if (!precise && nd <= kBoostInverseMaxSamples) {
     try {
