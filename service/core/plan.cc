@@ -1,6 +1,7 @@
 #include "service/core/plan.h"
 
 #include <algorithm>
+#include <charconv>
 #include <cmath>
 #include <exception>
 #include <functional>
@@ -136,6 +137,14 @@ double HoldoutUpper(std::uint64_t n, std::uint64_t k, double delta, bool* exact)
   return std::max(v, static_cast<double>(k) / static_cast<double>(n));
 }
 
+
+// The shortest decimal that reads back as v (std::to_chars), for rule texts
+// that name the request's values exactly.
+std::string Shortest(double v) {
+  char buf[32];
+  const std::to_chars_result r = std::to_chars(buf, buf + sizeof(buf), v);
+  return std::string(buf, r.ptr);
+}
 
 std::string Unreachable(double target, double expected, absl::string_view what) {
   if (target >= 1.0) {
@@ -462,17 +471,30 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
     // says from which n up it holds.
     const std::uint64_t checked_from_n =
         checked_from == 0 ? 0 : first_feasible(checked_from).value_or(n96);
-    const std::string checked =
-        checked_from_n == 0
-            ? std::string("every smaller n was checked")
-            : absl::StrCat("every smaller n from ", checked_from_n,
-                           " up was checked; smaller ones were not, within the work budget");
-    plan.rule = absl::StrFormat(
-        "smallest n with P(Bin(n, %g) <= k_max(n)) >= %g, where k_max(n) is the most errors "
-        "at which the exact binomial bound on n examples is <= %g: the probability that a "
-        "model with true error rate %g passes (a power calculation; %s, since the pass "
-        "probability is a sawtooth in n) (Clopper & Pearson 1934; exact integer search)",
-        p, target, eps, p, checked);
+    const std::string definition = absl::StrCat(
+        "P(Bin(n, ", Shortest(p), ") <= k_max(n)) >= ", Shortest(target),
+        ", where k_max(n) is the most errors at which the exact binomial bound on n "
+        "examples is <= ",
+        Shortest(eps), ": the probability that a model with true error rate ", Shortest(p),
+        " passes (a power calculation");
+    constexpr char kSources[] = " (Clopper & Pearson 1934; exact integer search)";
+    if (checked_from_n == 0) {
+      plan.rule = absl::StrCat("smallest n with ", definition,
+                               "; every smaller n was checked, since the pass probability "
+                               "is a sawtooth in n)",
+                               kSources);
+    } else {
+      plan.rule = absl::StrCat(
+          "an n with ", definition,
+          ") found by bisection over the teeth of the sawtooth (the sizes s_K from which K "
+          "errors certify), the tooth before it falling short; ",
+          checked_from_n < n96
+              ? absl::StrCat("every smaller n down to ", checked_from_n,
+                             " was checked too, smaller ones were not")
+              : std::string("smaller n were not checked"),
+          " within the work budget, so an earlier crossing below that is possible",
+          kSources);
+    }
     plan.notes.emplace_back(
         "the pass probability is a sawtooth in n: a few samples more than planned can "
         "lower it until the hold-out set tolerates one more error");
