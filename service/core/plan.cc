@@ -33,11 +33,16 @@ using Predicate = std::function<bool(std::uint64_t)>;
 // plan is reported unreachable with kOverBudget. With the check of the
 // teeth below a pass-probability plan (kMinimalityBudgetSeconds) and the
 // final evaluations, a plan stays below 100 ms of CPU.
-constexpr double kPlanCpuBudgetSeconds = 0.065;
+constexpr double kPlanCpuBudgetSeconds = 0.08;
 
-// CPU time the check that no earlier tooth passes may take (it stops there
-// and the rule says down to which n it got).
-constexpr double kMinimalityBudgetSeconds = 0.015;
+// The part of that budget kept for what every plan computes after its
+// searches (k_max at the answer, the final limit and pass probability): the
+// checks that no smaller n meets the rule stop once only this is left.
+constexpr double kPlanReserveSeconds = 0.012;
+
+// CPU time each check that no smaller n meets the rule may take at most (it
+// stops there and the rule says down to which n it got).
+constexpr double kMinimalityBudgetSeconds = 0.01;
 
 constexpr char kOverBudget[] =
     "the expected error rate is so close to the target risk that the plan would need "
@@ -84,12 +89,17 @@ class CountedBound {
   }
   // True when the work budget ran out (the searches' answers are then void).
   bool exhausted() const { return budget_.spent(); }
+  // True once less than kPlanReserveSeconds of the budget is left (or
+  // stopped): the optional checks stop there, so that what every plan needs
+  // afterwards still fits.
+  bool nearly_spent() const { return spent() || reserve_.Spent(); }
 
  private:
   std::function<bool(std::uint64_t, std::uint64_t)> ok_;
   std::uint64_t* evaluations_;
   const StopToken& stop_;
   mutable WorkBudget budget_{kPlanCpuBudgetSeconds};
+  mutable WorkBudget reserve_{kPlanCpuBudgetSeconds - kPlanReserveSeconds};
   mutable bool stopped_ = false;
 };
 
@@ -126,6 +136,110 @@ absl::StatusOr<std::uint64_t> RobustSmallest(double rate, std::uint64_t lo,
     return true;
   };
   return SmallestSatisfying(lo, kPlanMaxSamples, robust);
+}
+
+// The smallest robust n (the rule of RobustSmallest) of a hold-out plan,
+// given one, n_found, that RobustSmallest's bisection returned: robust(n) is
+// not monotone in n, so the bisection can stop at a later crossing. Robust
+// n are the starts of runs of at least window + 1 consecutive good sizes
+// (good(m): the bound at m samples and ceil(rate m) errors is <= eps); within
+// a tooth (a fixed count) the bound falls in m, so a tooth's good sizes are
+// a suffix of it. The sizes below n_found are classified downward, tooth by
+// tooth: a run's lowest good size is found by bisection within each tooth,
+// and a block of teeth [lo, K] whose sizes are all bad is ruled out at once
+// by one tail: every m <= top has at least lo errors (if in those teeth), so
+// P(Bin(top, eps) <= lo) > delta makes every bound there exceed eps
+// (Clopper & Pearson 1934: the limit at (m, j) exceeds eps iff P(Bin(m,
+// eps) <= j) > delta, which grows as m falls and j rises). Blocks double
+// while they are ruled out and halve when not. Returns the lowest qualifying
+// run start found; *checked_down_to is 0 when every size down to `floor`
+// was classified, else the lowest size classified when `budget` ran out.
+std::uint64_t SmallestRobustHoldout(double rate, double eps, double delta, std::uint64_t floor,
+                                    std::uint64_t n_found, const CountedBound& ok,
+                                    WorkBudget* budget, std::uint64_t* checked_down_to) {
+  *checked_down_to = 0;
+  if (rate <= 0.0) return n_found;  // no sawtooth: the predicate is monotone
+  const std::uint64_t window = SawtoothWindow(rate);
+  const auto good = [&](std::uint64_t m) { return ok(m, ErrorsAt(rate, m)); };
+  // First size with at least k errors (ErrorsAt is monotone in m).
+  const auto tooth_start = [&](std::uint64_t m) {
+    const std::uint64_t k = ErrorsAt(rate, m);
+    return SmallestSatisfying(1, m, [&](std::uint64_t x) { return ErrorsAt(rate, x) >= k; })
+        .value_or(m);
+  };
+  // Lowest good size of the run through `start` (good), extended downward
+  // tooth by tooth while the end of the tooth below is good too.
+  // Stops early when a budget runs out: every size from the start returned
+  // up to the run's end is good all the same.
+  bool out_of_time = false;
+  const auto time_left = [&] {
+    if (!out_of_time && (ok.nearly_spent() || budget->Spent())) out_of_time = true;
+    return !out_of_time;
+  };
+  const auto run_start_from = [&](std::uint64_t start) {
+    while (time_left()) {
+      const std::uint64_t t = tooth_start(start);
+      std::uint64_t g = start;
+      if (t < start) {
+        g = good(t) ? t
+                    : SmallestSatisfying(t + 1, start, good).value_or(start);
+      }
+      start = g;
+      if (g != t || t <= floor || !good(t - 1)) break;
+      start = t - 1;
+    }
+    return start;
+  };
+  std::uint64_t answer = run_start_from(n_found);  // its run reaches n_found + window
+  if (out_of_time) {
+    *checked_down_to = answer;
+    return answer;
+  }
+  if (answer < 2 || answer - 1 <= floor) return answer;
+  std::uint64_t top = answer - 2;  // answer - 1 is bad
+  std::uint64_t block = 1;
+  while (top > floor) {
+    if (!time_left()) {
+      *checked_down_to = top + 1;
+      return answer;
+    }
+    const std::uint64_t k = ErrorsAt(rate, top);
+    if (block > 1) {
+      const std::uint64_t lo = k + 1 > block ? k + 1 - block : 0;
+      bool unused = true;
+      if (BinomialTailLowerBound(top, lo, eps, BinomialTail::kAtMost, &unused) > delta) {
+        // Every size from the start of tooth lo up to top is bad.
+        const std::uint64_t start_lo =
+            lo == 0 ? 0
+                    : SmallestSatisfying(1, top, [&](std::uint64_t x) {
+                        return ErrorsAt(rate, x) >= lo;
+                      }).value_or(top);
+        if (start_lo <= floor + 1) break;
+        top = start_lo - 1;
+        block = block > kPlanMaxSamples / 2 ? block : 2 * block;
+        continue;
+      }
+      block /= 2;
+      continue;
+    }
+    if (!good(top)) {
+      // Bad at top, so bad from the start of its tooth up to top; try a
+      // block of two teeth next.
+      const std::uint64_t t = tooth_start(top);
+      if (t <= floor + 1) break;
+      top = t - 1;
+      block = 2;
+      continue;
+    }
+    // A run ends at top (top + 1 is bad).
+    const std::uint64_t start = run_start_from(top);
+    if (out_of_time) continue;
+    if (top - start >= window) answer = start;
+    if (start < 2 || start - 1 <= floor) break;
+    top = start - 2;
+    block = 1;
+  }
+  return answer;
 }
 
 // The upper bound HoldoutExactBinomial reports: the Clopper-Pearson limit,
@@ -285,10 +399,28 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
     plan.reason = kBeyondRange;
     return plan;
   }
-  plan.expected_rate_sample_count = *n95;
-  plan.sample_count = *n95;
+  // The bisection's answer can be a later crossing of the sawtooth: the
+  // sizes below it are classified down to the zero-failure size.
+  std::uint64_t rate_checked_down_to = 0;
+  WorkBudget rate_budget(kMinimalityBudgetSeconds);
+  const std::uint64_t n_rate = SmallestRobustHoldout(
+      p, eps, delta, std::max<std::uint64_t>(1, plan.zero_failure_sample_count - 1), *n95, ok,
+      &rate_budget, &rate_checked_down_to);
+  if (ok.stopped()) return stop.Status();
+  if (ok.exhausted()) {
+    plan.reason = kOverBudget;
+    return plan;
+  }
+  plan.expected_rate_sample_count = n_rate;
+  plan.sample_count = n_rate;
   plan.rule = AnticipatedRateRule("exact binomial (Clopper-Pearson) bound", "n", p, eps,
                                   "Clopper & Pearson 1934; exact integer search");
+  if (rate_checked_down_to != 0) {
+    plan.rule = absl::StrCat(
+        plan.rule, "; every smaller n down to ", rate_checked_down_to,
+        " was checked, smaller ones were not within the work budget, so an earlier n "
+        "meeting the rule below that is possible");
+  }
 
   // k_max(n) = max { k : Binbar(n, k) <= eps }, given a count `known` that
   // certifies eps at n (so k_max >= known); the search runs upward from it.
@@ -298,7 +430,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
         known + 1, n, [&](std::uint64_t k) { return !ok(n, k); });
     return first_bad.ok() ? *first_bad - 1 : known;
   };
-  std::uint64_t tolerated = k_max(*n95, ErrorsAt(p, *n95));
+  std::uint64_t tolerated = k_max(n_rate, ErrorsAt(p, n_rate));
 
   if (request.pass_probability.has_value()) {
     const double target = *request.pass_probability;
@@ -409,7 +541,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
       WorkBudget minimality_budget(kMinimalityBudgetSeconds);
       std::int64_t hi = static_cast<std::int64_t>(*k_star) - 1;
       std::uint64_t block = 1;
-      while (hi >= 0 && !ok.spent() && !minimality_budget.Spent()) {
+      while (hi >= 0 && !ok.nearly_spent() && !minimality_budget.Spent()) {
         const std::uint64_t top = static_cast<std::uint64_t>(hi);
         const std::uint64_t lo = top + 1 > block ? top + 1 - block : 0;
         const absl::StatusOr<std::uint64_t> s_lo = first_feasible(lo);

@@ -19,7 +19,10 @@
 // about two more errors). Within a tooth the bound falls, so the
 // window is checked at n and at each tooth start (first n' with a larger
 // k(n')) inside it. At the answer n the bound is <= target and at n - 1 it is
-// above it.
+// above it. The rule is not monotone in n, so the hold-out planner checks
+// every smaller n after its search (SmallestRobustHoldout in plan.cc) and
+// returns the first that meets it; the training planner returns the
+// search's answer.
 #ifndef RISKBOUND_SERVICE_CORE_PLAN_H_
 #define RISKBOUND_SERVICE_CORE_PLAN_H_
 
@@ -105,8 +108,9 @@ struct HoldoutPlan {
 // (HoldoutExactBinomial: Clopper & Pearson 1934).
 // Returns OK with reachable = false and a reason when target_risk >= 1,
 // expected_risk >= target_risk, the answer exceeds kPlanMaxSamples, or the
-// searches would take more than their work budget (65 ms of CPU; with the
-// minimality check and the final evaluations a call stays under 100 ms):
+// searches would take more than their work budget (80 ms of CPU, the checks
+// that no smaller n meets the rule included; with the final evaluations a
+// call stays under 100 ms):
 // only an expected rate within a hair of the target, whose answer lies above
 // about 10^12 with a pass probability or near 2^53 without.
 // Errors: INVALID_ARGUMENT naming every bad field at once under `prefix`

@@ -76,6 +76,9 @@ def main():
 
     # The audited case (1409, not 1416) and the two plans of docs/plan.md (410, 601).
     cases = [(0.3, 0.27, 0.05, 0.8), (0.05, 0.03, 0.05, None), (0.05, 0.03, 0.05, 0.8)]
+    # Expected-rate plans whose bisection stopped at a later crossing (4580
+    # for 4559, 22159 for 22138, 5639 for 5620 before the downward check).
+    cases += [(0.2, 0.19, 0.05, None), (0.2, 0.19, 1e-4, None), (0.5, 0.475, 1e-4, None)]
     for eps in (0.05, 0.1, 0.3):
         for ratio in (0.0, 0.5, 0.8, 0.9):
             for delta in (0.05, 0.01, 0.001):
