@@ -91,6 +91,23 @@ std::vector<WorstCase> Cases() {
                          CompressionEvidence{n, n / 1000, n / 2000, false};
                      benchmark::DoNotOptimize(Certify(req));
                    }});
+  cases.push_back({"Certify",
+                   "hold-out binomial, n = 2^53, half errors, delta = the smallest positive "
+                   "double (quadrature and post-check)",
+                   [] {
+                     CertifyRequest req;
+                     req.failure_probability = 4.9406564584124654e-324;
+                     req.evidence.holdout = SampleCounts{kTwoTo53 / 2, kTwoTo53};
+                     benchmark::DoNotOptimize(Certify(req));
+                   }});
+  cases.push_back({"Certify",
+                   "hold-out binomial, n = 10^9, 10^8 errors, delta = 0.5 (Boost at its caps)",
+                   [] {
+                     CertifyRequest req;
+                     req.failure_probability = 0.5;
+                     req.evidence.holdout = SampleCounts{100'000'000, 1'000'000'000};
+                     benchmark::DoNotOptimize(Certify(req));
+                   }});
   cases.push_back({"SelectStructure", "10 000 candidates, occam-kl, n = 2^53, delta = 1e-300",
                    [] {
                      SelectRequest req;
@@ -114,6 +131,16 @@ std::vector<WorstCase> Cases() {
                      req.target_risk = 0.001;
                      req.expected_risk = 0.000999999;
                      req.pass_probability = 0.999;
+                     benchmark::DoNotOptimize(PlanHoldout(req));
+                   }});
+  cases.push_back({"PlanHoldout",
+                   "target 0.3, expected rate 0.29999997, pass probability 0.5 (answer "
+                   "6.3e14, exact tails at every step)",
+                   [] {
+                     HoldoutPlanRequest req;
+                     req.target_risk = 0.3;
+                     req.expected_risk = 0.29999997;
+                     req.pass_probability = 0.5;
                      benchmark::DoNotOptimize(PlanHoldout(req));
                    }});
   cases.push_back({"PlanTraining",

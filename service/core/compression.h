@@ -21,9 +21,10 @@ namespace riskbound::core {
 // dropped when size_fixed_in_advance. Inverted in log space (the level
 // underflows a double). d = m leaves no examples to test on: the certificate
 // is vacuous (upper 1) with a note. empirical_risk = k / (m - d) (0 when
-// d = m). Upper bound only. The inversion is a bracketed search with a
-// bounded number of steps and terms (numeric.h); exact = false only at counts
-// near 2^53 where it could not be settled, the limit then still conservative.
+// d = m). Upper bound only. The level is rounded down by more than its own
+// rounding, and the inversion (numeric.h BinomialUpperLimitLogDelta) is
+// post-checked on the tail, so the limit is never below the exact one
+// (checked against mpmath up to m = 2^53: tests/reference/tail_limits_test.py).
 // Source: Langford (2005), sample compression bound; Littlestone & Warmuth
 // (1986); Floyd & Warmuth (1995): the union bound over the C(m, d) possible
 // compression sets (and over d when it was not fixed in advance).

@@ -8,9 +8,9 @@ namespace riskbound::core {
 namespace {
 
 constexpr char kRelaxedNote[] =
-    "the exact binomial inversion could not be settled to double precision at this "
-    "sample size; conservative limits (never tighter than the exact ones, never looser "
-    "than the kl-Chernoff limits) are reported instead";
+    "the binomial tail at the exact limit could not be confirmed in double precision "
+    "at these counts; the kl-Chernoff limit (valid, slightly looser) is reported in its "
+    "place";
 
 }  // namespace
 

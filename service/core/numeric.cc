@@ -26,15 +26,6 @@ using CappedPolicy = boost::math::policies::policy<
     boost::math::policies::max_root_iterations<kBoostRootIterations>,
     boost::math::policies::max_series_iterations<kBoostSeriesIterations>>;
 using Binomial = boost::math::binomial_distribution<double, CappedPolicy>;
-// Above 2^32 samples the CDF, asked many times per search, gets a tighter
-// series cap: where it would need more terms (near the mode) it gives up
-// within tens of microseconds and the log-space bounds answer instead.
-constexpr int kBoostCdfSeriesIterations = 1000;
-using CdfBinomial = boost::math::binomial_distribution<
-    double, boost::math::policies::policy<
-                boost::math::policies::max_root_iterations<kBoostRootIterations>,
-                boost::math::policies::max_series_iterations<kBoostCdfSeriesIterations>>>;
-
 // Above this many samples Boost's inversion is not tried at all: it rarely
 // converges there within the caps and only costs time.
 constexpr double kBoostInverseMaxSamples = 4294967296.0;  // 2^32
@@ -51,13 +42,42 @@ constexpr double kTailNegligible = 0x1p-56;
 // Below this, exp() of a log probability is not a normal double.
 constexpr double kLogNormalMin = -700.0;
 
-// x - ln(1 + x) >= 0, given x and ln(1 + x) computed without forming 1 + x.
-// For small |x| the series replaces the difference, which would cancel.
-double XMinusLog1p(double x, double log1p_x) {
-  if (std::fabs(x) < 1e-4) {
-    return x * x * (0.5 - x * (1.0 / 3.0 - x * (0.25 - x / 5.0)));
-  }
-  return x - log1p_x;
+// x - ln(1 + x) >= 0 for |x| <= 1/2, to a few ulps: with t = x / (2 + x),
+// ln(1 + x) = 2 atanh(t) = 2 (t + t^3/3 + t^5/5 + ...) and x - 2t = x t, so
+// x - ln(1 + x) = x t - 2 t^3 (1/3 + t^2/5 + ...), |t| <= 1/3: no term
+// cancels (the plain difference loses up to half the digits near x = 1e-4).
+double XMinusLog1pSmall(double x) {
+  // 1 / (2i + 3), i = 0..19.
+  static constexpr double kOdd[20] = {
+      1.0 / 3,  1.0 / 5,  1.0 / 7,  1.0 / 9,  1.0 / 11, 1.0 / 13, 1.0 / 15,
+      1.0 / 17, 1.0 / 19, 1.0 / 21, 1.0 / 23, 1.0 / 25, 1.0 / 27, 1.0 / 29,
+      1.0 / 31, 1.0 / 33, 1.0 / 35, 1.0 / 37, 1.0 / 39, 1.0 / 41};
+  const double t = x / (2.0 + x);
+  const double t2 = t * t;
+  // Terms up to t2^(terms-1): the first left out is below 2^-56 of the sum.
+  const int terms = t2 < 1e-9 ? 2 : t2 < 1e-4 ? 5 : t2 < 1e-2 ? 9 : 20;
+  double s = 0.0;
+  for (int i = terms - 1; i >= 0; --i) s = s * t2 + kOdd[i];
+  return x * t - 2.0 * t * t2 * s;
+}
+
+// w f(d / w) with f(x) = x - ln(1 + x), w > 0, for the terms of kl(q || q +
+// d) (w = q) and its mirror (w = 1 - q, d negated): the series above for
+// |d / w| <= 1/2, else d - w ln(1 + d / w) with the logarithm `log_ratio` of
+// (w + d) / w supplied by the caller from the unrounded values.
+template <typename LogRatio>
+double WeightedXMinusLog1p(double w, double d, LogRatio log_ratio) {
+  const double x = d / w;
+  if (std::fabs(x) <= 0.5) return w * XMinusLog1pSmall(x);
+  return d - w * log_ratio();
+}
+
+// ln(a / b) for 0 < a, b: the quotient's logarithm when it is a normal
+// double (one rounding), else the difference of logarithms.
+double LogRatio(double a, double b) {
+  const double r = a / b;
+  if (std::isfinite(r) && r >= std::numeric_limits<double>::min()) return std::log(r);
+  return std::log(a) - std::log(b);
 }
 
 bool FiniteProbability(double v) { return std::isfinite(v) && v >= 0.0 && v <= 1.0; }
@@ -82,10 +102,13 @@ double LogGammaRatio(double y, double diff) {
 }
 
 // Bisection stops when the bracket is below kBisectionTolerance in absolute
-// terms AND relative to the limit's size, so limits near 1e-11 (n ~ 1e15)
-// keep twelve significant digits.
+// terms AND relative to the limit's size AND relative to its distance from 1,
+// so limits near 1e-11 (n ~ 1e15) keep twelve significant digits, and so do
+// 1 - limit for limits near 1 (k = n - 1 at n ~ 1e12 puts the upper limit
+// 7e-13 below 1).
 bool BracketClosed(double lo, double hi) {
-  return hi - lo <= kBisectionTolerance * std::min(1.0, std::max(hi, 1e-300));
+  return hi - lo <=
+         kBisectionTolerance * std::min({1.0, std::max(hi, 1e-300), std::max(1.0 - lo, 1e-300)});
 }
 
 // The midpoint of a bisection step: geometric while the bracket spans more
@@ -112,14 +135,57 @@ double LogChooseMinusEntropy(double n, double k) {
          StirlingRemainder(k) - StirlingRemainder(nk);
 }
 
-// ln P(Bin(n, p) = k) = [ln C(n, k) - n H(k/n)] - n kl(k/n || p): exact
-// identity; both parts keep full relative precision, so the result is good
-// to about 1e-15 of its size even at n = 2^53 (summing ln C(n, k), k ln p and
-// (n - k) ln(1 - p) would lose everything to cancellation there).
+// kl(q || q + d) for q + d in [0, 1], from the offset d itself, so that
+// nothing is lost to rounding q + d: q f(d/q) + (1-q) f(-d/(1-q)) with
+// f(x) = x - ln(1 + x) (kl(0 || d) = -ln(1 - d), kl(1 || 1 + d) = -ln(1 + d)).
+// With `log_odds_ratio`, also ln((q + d)/q) - ln((1 - q - d)/(1 - q)) = x -
+// f(x) - (y - f(y)) (x = d/q, y = -d/(1-q)), from the same f values; only
+// asked for 0 < q < 1.
+double KlAtOffset(double q, double d, double* log_odds_ratio = nullptr) {
+  if (q <= 0.0) return -std::log1p(-d);
+  if (q >= 1.0) return -std::log1p(d);
+  const double w = 1.0 - q;
+  const double x = d / q;
+  const double y = -d / w;
+  const double fx = std::fabs(x) <= 0.5 ? XMinusLog1pSmall(x) : x - std::log1p(x);
+  const double fy = std::fabs(y) <= 0.5 ? XMinusLog1pSmall(y) : y - std::log1p(y);
+  if (log_odds_ratio != nullptr) *log_odds_ratio = (x - fx) - (y - fy);
+  return q * fx + w * fy;
+}
+
+// k/n as a double and what its rounding left out: r = k - n q exactly (one
+// fma), |r| <= n ulp(q) / 2.
+struct RoundedRate {
+  double q;
+  double r;
+};
+RoundedRate Rate(double n, double k) {
+  const double q = k / n;
+  return {q, std::fma(-n, q, k)};
+}
+
+// ln P(Bin(n, p) = k) = ln C(n, k) + k ln p + (n - k) ln(1 - p), written with
+// q = k/n rounded to a double and r = k - n q as
+//   [ln C(n, k) - n H(k/n)] + r ln((1 - q)/q) - n kl(q || p) + r ln(p/(1 - p))
+// (the first bracket from Stirling's formula with exact remainders, the r ln
+// terms exact up to r^2 / (2 n q (1 - q)), below 1e-17 here): every part keeps
+// full relative precision, so the result is good to about 1e-15 of its size
+// even at n = 2^53 (summing ln C(n, k), k ln p and (n - k) ln(1 - p) would
+// lose everything to cancellation there, and dropping r costs up to
+// k 1e-16 ln(p/q)). Above k = 3n/4 with p >= 1/2 the mirror image (n, n - k,
+// 1 - p) is used, where 1 - q keeps its relative precision and 1 - p is
+// exact (Sterbenz); with p < 1/2 there the term is below e^(-n/8) and only
+// small n matter, where q = k/n is as good.
 double LogPmf(double n, double k, double p) {
   if (p <= 0.0) return k <= 0.0 ? 0.0 : -std::numeric_limits<double>::infinity();
   if (p >= 1.0) return k >= n ? 0.0 : -std::numeric_limits<double>::infinity();
-  return LogChooseMinusEntropy(n, k) - n * BernoulliKl(k / n, p);
+  if (k > 0.75 * n && p >= 0.5) return LogPmf(n, n - k, 1.0 - p);
+  const RoundedRate rate = Rate(n, k);
+  double v = LogChooseMinusEntropy(n, k) - n * BernoulliKl(rate.q, p);
+  if (rate.r != 0.0) {
+    v += rate.r * (std::log(p) - std::log(rate.q) + std::log1p(-rate.q) - std::log1p(-p));
+  }
+  return v;
 }
 
 // Bounds on ln of a binomial tail.
@@ -158,16 +224,126 @@ LogBounds LogTailRatioSum(double n, double m, double odds, double enough,
   }
 }
 
+// Gauss-Legendre nodes and weights of order 20 on [-1, 1], the positive half
+// (the rule is symmetric); from numpy.polynomial.legendre.leggauss(20).
+constexpr double kGaussLegendre20[10][2] = {
+    {0.07652652113349734, 0.15275338713072578}, {0.2277858511416451, 0.14917298647260366},
+    {0.37370608871541955, 0.14209610931838187}, {0.5108670019508271, 0.13168863844917653},
+    {0.636053680726515, 0.11819453196151825},   {0.7463319064601508, 0.10193011981724026},
+    {0.8391169718222188, 0.08327674157670467},  {0.9122344282513258, 0.06267204833410944},
+    {0.9639719272779138, 0.04060142980038622},  {0.9931285991850949, 0.017614007139153273},
+};
+
+// A segment stops the integral once the integrand has fallen this far (in
+// nats) below its largest value on the range: the rest of a log-concave
+// integrand is then below e^-42 (4e-19) of the sum, below half an ulp.
+constexpr double kQuadratureDrop = 42.0;
+constexpr int kQuadratureSegments = 400;
+
+// ln of the integral of u^j (1-u)^(m-j) du over [a, b] (0 <= a < b <= 1,
+// m >= 1, 0 <= j <= m), minus ln C(m, j) - m H(j/m). With q = j/m rounded
+// and r = j - m q (RoundedRate), the integrand over that constant is
+// exp(-m kl(q || u) + r ln(u (1-q) / (q (1-u)))) (as in LogPmf); it is evaluated at
+// offsets d = u - q, so that neither q + d nor the node positions are
+// rounded next to the peak (at m = 2^53 the peak is 5e-9 wide). The integrand
+// is log-concave with its peak at q, so the integral is taken outward from
+// c = clamp(q, a, b) (its largest value on [a, b]) in Gauss-Legendre
+// segments whose width follows the local scale 1 / (|l'| + sqrt|l''|) of the
+// exponent l, until the integrand has fallen kQuadratureDrop below its value
+// at c or the range ends. At most kQuadratureSegments segments per direction
+// (a few dozen are used); nullopt if that was not enough.
+std::optional<double> LogPowerIntegral(double m, double j, double a, double b) {
+  const RoundedRate rate = Rate(m, j);
+  const double q = rate.q;
+  const double r = rate.r;
+  const auto exponent = [&](double d) {
+    if (r == 0.0) return -m * KlAtOffset(q, d);
+    double log_odds_ratio = 0.0;
+    const double kl = KlAtOffset(q, d, &log_odds_ratio);
+    return -m * kl + r * log_odds_ratio;
+  };
+  const double lo = a - q;
+  const double hi = b - q;
+  const double c = std::clamp(0.0, lo, hi);
+  const double l_c = exponent(c);
+  const auto log_g = [&](double d) { return exponent(d) - l_c; };
+  // 1 / (|l'(u)| + sqrt(|l''(u)|)) at u = q + d: l'(u) = -m d / (u (1 - u)),
+  // l''(u) = -m (q / u^2 + (1 - q) / (1 - u)^2).
+  const auto scale = [&](double d) {
+    const double u = std::clamp(q + d, 1e-300, 1.0 - 0x1p-53);
+    const double d1 = m * std::fabs(d) / (u * (1.0 - u));
+    const double d2 = m * (q / (u * u) + (1.0 - q) / ((1.0 - u) * (1.0 - u)));
+    return 1.0 / (d1 + std::sqrt(d2));
+  };
+  double sum = 0.0;
+  bool complete = true;
+  // One direction: from c toward `end` (dir = +1 right, -1 left).
+  const auto sweep = [&](double end, double dir) {
+    double x = c;
+    for (int segment = 0; segment < kQuadratureSegments; ++segment) {
+      if (dir > 0 ? x >= end : x <= end) return;
+      double next = x + dir * 4.0 * scale(x);
+      if (dir > 0 ? next > end : next < end) next = end;
+      if (next == x) return;
+      const double mid = 0.5 * (x + next);
+      const double half = 0.5 * (next - x);
+      double part = 0.0;
+      for (const auto& [node, weight] : kGaussLegendre20) {
+        part += weight * (std::exp(log_g(mid + half * node)) + std::exp(log_g(mid - half * node)));
+      }
+      sum += std::fabs(half) * part;
+      x = next;
+      if (log_g(x) < -kQuadratureDrop) return;
+    }
+    complete = false;
+  };
+  if (c < hi) sweep(hi, 1.0);
+  if (c > lo) sweep(lo, -1.0);
+  if (!complete || !(sum > 0.0)) return std::nullopt;
+  return l_c + std::log(sum);
+}
+
+// ln P(Bin(n, p) <= k) (upper_tail false; k < n) or ln P(Bin(n, p) >= k)
+// (upper_tail true; k >= 1) by quadrature, for counts where the tail's terms
+// fall too slowly to sum (near the mode, at large n): the incomplete-beta
+// identities P(X <= k) = n C(n-1, k) Int_p^1 u^k (1-u)^(n-1-k) du and
+// P(X >= k) = n C(n-1, k-1) Int_0^p u^(k-1) (1-u)^(n-k) du (e.g. Johnson,
+// Kemp & Kotz 2005, Univariate Discrete Distributions, section 3.6), so
+// ln P = ln n + [ln C(m, j) - m H(j/m)] + LogPowerIntegral(m, j, ...) with
+// m = n - 1 and j the power of u: every part keeps its relative precision at
+// n = 2^53. Where j > 3m/4 and p >= 1/2 the mirror image (n - k, 1 - p,
+// exact there) is integrated instead. Relative error about 1e-14 (checked
+// against mpmath in tests/reference/tail_limits_test.py). nullopt where the
+// segments did not suffice. REQUIRES: n >= 2, 0 < p < 1.
+std::optional<double> LogTailQuadrature(std::uint64_t n, std::uint64_t k, double p,
+                                        bool upper_tail) {
+  const double m = static_cast<double>(n - 1);
+  const double j = static_cast<double>(upper_tail ? k - 1 : k);
+  if (j > 0.75 * m && p >= 0.5) {
+    // P(X <= k; p) = P(n - X >= n - k; 1 - p) and P(X >= k; p) = P(n - X <= n - k; 1 - p).
+    return LogTailQuadrature(n, n - k, 1.0 - p, !upper_tail);
+  }
+  const std::optional<double> log_integral =
+      upper_tail ? LogPowerIntegral(m, j, 0.0, p) : LogPowerIntegral(m, j, p, 1.0);
+  if (!log_integral.has_value()) return std::nullopt;
+  return std::log(static_cast<double>(n)) + LogChooseMinusEntropy(m, j) + *log_integral;
+}
+
 // Bounds on ln P(Bin(n, p) <= k) (upper_tail false) or ln P(Bin(n, p) >= k)
 // (upper_tail true), for p on the side where the tail's terms fall away from
 // k (REQUIRES): p > k/(n+1) for the lower tail, p < (k+1)/(n+1) for the
 // upper tail, and k >= 1 for the upper tail.
 // `log_enough`: stop once the lower bound reaches it (the caller's question
 // is then answered). Tries, in order: the log-space sum with kTailTermsFirst
-// terms; Boost.Math's capped CDF (an exact value, when it converges and is a
-// normal double); the log-space sum with kTailTermsMax terms (bounds).
+// terms; up to 2^32 samples Boost.Math's capped CDF (an exact value, when it
+// converges and is a normal double), above it the quadrature of
+// LogTailQuadrature (Boost's CDF is slow and loses about six digits there);
+// the log-space sum with kTailTermsMax terms (bounds). With `precise`, the
+// quadrature is used at every size instead of Boost's CDF: the post-check of
+// a limit asks it, so that the check does not rest on the method that found
+// the limit.
 LogBounds LogTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_tail,
-                        double log_enough) {
+                        double log_enough, bool precise = false) {
   const double nd = static_cast<double>(n);
   const double kd = static_cast<double>(k);
   const double log_first = LogPmf(nd, kd, p);
@@ -175,33 +351,39 @@ LogBounds LogTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
   const double odds = upper_tail ? p / (1.0 - p) : (1.0 - p) / p;
   // exp() of the gap to the threshold, capped so it stays finite.
   const double enough = std::exp(std::min(log_enough - log_first, 700.0));
-  LogBounds s = LogTailRatioSum(nd, m, odds, enough, kTailTermsFirst);
-  if (s.Converged() || s.lower + log_first >= log_enough) {
-    return {log_first + s.lower, log_first + s.upper};
+  // The first ratio r bounds every later one, so the first kTailTermsFirst
+  // terms cover at most kTailTermsFirst terms' worth: when that sum cannot
+  // reach `enough` and r^kTailTermsFirst is not even below 2^-56 (near the
+  // mode at large n), the sum is skipped, not tried.
+  const double first_ratio = m / (nd - m + 1.0) * odds;
+  const bool hopeless =
+      enough > static_cast<double>(kTailTermsFirst) &&
+      static_cast<double>(kTailTermsFirst) * std::log(first_ratio) > std::log(kTailNegligible);
+  LogBounds s{-std::numeric_limits<double>::infinity(), 0.0};
+  if (!hopeless) {
+    s = LogTailRatioSum(nd, m, odds, enough, kTailTermsFirst);
+    if (s.Converged() || s.lower + log_first >= log_enough) {
+      return {log_first + s.lower, log_first + s.upper};
+    }
   }
-  // Above 2^32 samples Boost's CDF within one standard deviation of the mode
-  // is both slow (up to ~0.1 s) and off by ~1e-6 relative (at 2^53): it is
-  // not asked there; the sums' bounds (and the median bound of AnyTailBounds)
-  // answer, or the step stays unsure.
-  const bool near_mode_at_scale =
-      nd > kBoostInverseMaxSamples &&
-      std::fabs(kd - nd * p) < std::sqrt(nd * p * (1.0 - p));
-  if (!near_mode_at_scale) try {
-    double v = 0.0;
-    if (nd <= kBoostInverseMaxSamples) {
+  if (!precise && nd <= kBoostInverseMaxSamples) {
+    try {
       const Binomial bin(nd, p);
-      v = upper_tail ? boost::math::cdf(boost::math::complement(bin, kd - 1.0))
-                     : boost::math::cdf(bin, kd);
-    } else {
-      const CdfBinomial bin(nd, p);
-      v = upper_tail ? boost::math::cdf(boost::math::complement(bin, kd - 1.0))
-                     : boost::math::cdf(bin, kd);
+      const double v = upper_tail ? boost::math::cdf(boost::math::complement(bin, kd - 1.0))
+                                  : boost::math::cdf(bin, kd);
+      if (std::isfinite(v) && v > 0.0 && v <= 1.0 && std::log(v) > kLogNormalMin) {
+        return {std::log(v), std::log(v)};
+      }
+    } catch (const std::exception&) {
+      // Boost gave up within its caps: the quadrature answers.
     }
-    if (std::isfinite(v) && v > 0.0 && v <= 1.0 && std::log(v) > kLogNormalMin) {
-      return {std::log(v), std::log(v)};
+  }
+  if (n >= 2 && p > 0.0 && p < 1.0) {
+    if (const std::optional<double> v = LogTailQuadrature(n, k, p, upper_tail);
+        v.has_value() && std::isfinite(*v)) {
+      const double clipped = std::min(*v, 0.0);
+      return {clipped, clipped};
     }
-  } catch (const std::exception&) {
-    // Boost gave up within its caps: bound the sum instead.
   }
   s = LogTailRatioSum(nd, m, odds, enough, kTailTermsMax);
   return {log_first + s.lower, log_first + s.upper};
@@ -216,7 +398,7 @@ constexpr double kLogHalf = -0.69314718055994531;
 // k, else one minus the complementary tail (which then has that property).
 // `log_enough` as in LogTailBounds (a threshold for the tail asked about).
 LogBounds AnyTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_tail,
-                        double log_enough) {
+                        double log_enough, bool precise = false) {
   if (upper_tail ? k == 0 : k >= n) return {0.0, 0.0};
   const double s = p * (static_cast<double>(n) + 1.0);
   const double kd = static_cast<double>(k);
@@ -246,7 +428,7 @@ LogBounds AnyTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
     return b;
   };
   if (upper_tail ? s < kd + 1.0 : s > kd) {
-    return with_median(LogTailBounds(n, k, p, upper_tail, log_enough));
+    return with_median(LogTailBounds(n, k, p, upper_tail, log_enough, precise));
   }
   // Complement: P(X <= k) = 1 - P(X >= k + 1); P(X >= k) = 1 - P(X <= k - 1).
   // Asked whether the tail reaches exp(log_enough), the complement answers
@@ -254,7 +436,7 @@ LogBounds AnyTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
   const double complement_enough = log_enough < 0.0 ? std::log(-std::expm1(log_enough))
                                                     : std::numeric_limits<double>::infinity();
   const LogBounds c =
-      LogTailBounds(n, upper_tail ? k - 1 : k + 1, p, !upper_tail, complement_enough);
+      LogTailBounds(n, upper_tail ? k - 1 : k + 1, p, !upper_tail, complement_enough, precise);
   // ln(1 - e^x) for the complement's bounds; an upper bound of 1 or more on
   // the complement leaves no lower bound here.
   const auto log_one_minus = [](double x) {
@@ -357,6 +539,97 @@ TailLimit LowerLimitSearch(std::uint64_t n, std::uint64_t k, double log_delta) {
   return {lo, exact};
 }
 
+// The post-check of every returned limit keeps the tail at the limit this far
+// (in nats) inside delta: it covers the rounding of the tail itself (sums,
+// quadrature and the Stirling terms, each good to about 1e-15 of ln P), so a
+// limit that passes is on the conservative side of the exact one.
+double CheckMargin(double log_delta) { return 2e-14 + 4e-16 * std::fabs(log_delta); }
+
+// Outward steps the post-check may take (each twice the last, from one ulp:
+// 2^64 ulps in all, far more than any limit can be off by).
+constexpr int kMaxNudges = 64;
+
+// The post-check of an upper limit: t.value when the tail P(Bin(n, t.value)
+// <= k), computed independently of the method that found the limit
+// (LogTailBounds with `precise`), is at most delta (with CheckMargin to
+// spare); else the smallest double above it found to hold (outward steps of
+// 1, 2, 4, ... ulps, then a bisection back), up to 1. So the value is never
+// below the exact Clopper-Pearson limit, whatever rounding Boost's inversion
+// or the search made. Where no nudge settles it, the kl-Chernoff limit (which
+// always holds, Chernoff 1952) with exact = false. REQUIRES: k < n.
+TailLimit CheckedUpper(std::uint64_t n, std::uint64_t k, double log_delta, TailLimit t) {
+  const double target = log_delta - CheckMargin(log_delta);
+  const auto holds = [&](double u) {
+    if (u >= 1.0) return true;
+    if (u <= 0.0) return false;
+    return AnyTailBounds(n, k, u, /*upper_tail=*/false, std::numeric_limits<double>::infinity(),
+                         /*precise=*/true)
+               .upper <= target;
+  };
+  double u = std::clamp(t.value, 0.0, 1.0);
+  if (holds(u)) return {u, t.exact};
+  // Nudge outward by 1, 2, 4, ... ulps until the check holds, then bisect
+  // back between the last value that failed and the first that held, so the
+  // result is the smallest double found to hold, not up to twice as far out.
+  double failed = u;
+  double step = std::nextafter(u, 2.0) - u;
+  for (int i = 0; i < kMaxNudges; ++i) {
+    const double next = std::min(1.0, failed + step);
+    if (holds(next)) {
+      double good = next;
+      while (true) {
+        const double mid = failed + (good - failed) / 2.0;
+        if (mid <= failed || mid >= good) break;
+        (holds(mid) ? good : failed) = mid;
+      }
+      return {good, t.exact};
+    }
+    failed = next;
+    step *= 2.0;
+  }
+  const double kl = KlInverseUpper(static_cast<double>(k) / static_cast<double>(n),
+                                   -log_delta / static_cast<double>(n));
+  return {std::max(kl, t.value), false};
+}
+
+// The post-check of a lower limit, mirrored: t.value, or the largest double
+// below it found to hold P(Bin(n, p) >= k) <= delta (with the margin), down
+// to 0; 0 once below the smallest normal double. REQUIRES: k >= 1.
+TailLimit CheckedLower(std::uint64_t n, std::uint64_t k, double log_delta, TailLimit t) {
+  const double target = log_delta - CheckMargin(log_delta);
+  const auto holds = [&](double l) {
+    if (l < std::numeric_limits<double>::min()) return true;  // reported as 0
+    if (l >= 1.0) return false;
+    return AnyTailBounds(n, k, l, /*upper_tail=*/true, std::numeric_limits<double>::infinity(),
+                         /*precise=*/true)
+               .upper <= target;
+  };
+  const auto result = [&](double l) {
+    return TailLimit{l < std::numeric_limits<double>::min() ? 0.0 : l, t.exact};
+  };
+  double l = std::clamp(t.value, 0.0, 1.0);
+  if (holds(l)) return result(l);
+  double failed = l;
+  double step = l - std::nextafter(l, -1.0);
+  for (int i = 0; i < kMaxNudges; ++i) {
+    const double next = std::max(0.0, failed - step);
+    if (holds(next)) {
+      double good = next;
+      while (true) {
+        const double mid = good + (failed - good) / 2.0;
+        if (mid <= good || mid >= failed) break;
+        (holds(mid) ? good : failed) = mid;
+      }
+      return result(good);
+    }
+    failed = next;
+    step *= 2.0;
+  }
+  const double kl = KlInverseLower(static_cast<double>(k) / static_cast<double>(n),
+                                   -log_delta / static_cast<double>(n));
+  return {std::min(kl, t.value), false};
+}
+
 }  // namespace
 
 double BernoulliKl(double q, double p) {
@@ -368,9 +641,10 @@ double BernoulliKl(double q, double p) {
   // The linear terms cancel exactly, so kl keeps full relative precision
   // even when p is within 1e-7 of q.
   const double d = p - q;
-  const double first = XMinusLog1p(d / q, std::log(p) - std::log(q));
-  const double second = XMinusLog1p(-d / (1.0 - q), std::log1p(-p) - std::log1p(-q));
-  return q * first + (1.0 - q) * second;
+  const double first = WeightedXMinusLog1p(q, d, [&] { return LogRatio(p, q); });
+  const double second = WeightedXMinusLog1p(
+      1.0 - q, -d, [&] { return std::log1p(-p) - std::log1p(-q); });
+  return first + second;
 }
 
 double KlInverseUpper(double q, double c) {
@@ -420,31 +694,33 @@ double KlInverseLower(double q, double c) {
 TailLimit BinomialUpperLimit(std::uint64_t n, std::uint64_t k, double delta) {
   if (k >= n) return {1.0, true};
   const double nd = static_cast<double>(n);
-  if (k == 0) return {-std::expm1(std::log(delta) / nd), true};
+  const double log_delta = std::log(delta);
+  if (k == 0) return CheckedUpper(n, k, log_delta, {-std::expm1(log_delta / nd), true});
   if (nd <= kBoostInverseMaxSamples) {
     try {
       const double v = Binomial::find_upper_bound_on_p(nd, static_cast<double>(k), delta);
-      if (FiniteProbability(v)) return {v, true};
+      if (FiniteProbability(v)) return CheckedUpper(n, k, log_delta, {v, true});
     } catch (const std::exception&) {
       // Boost gave up within its caps: search in log space instead.
     }
   }
-  return UpperLimitSearch(n, k, std::log(delta));
+  return CheckedUpper(n, k, log_delta, UpperLimitSearch(n, k, log_delta));
 }
 
 TailLimit BinomialLowerLimit(std::uint64_t n, std::uint64_t k, double delta) {
   if (k == 0) return {0.0, true};
   const double nd = static_cast<double>(n);
-  if (k >= n) return {std::exp(std::log(delta) / nd), true};
+  const double log_delta = std::log(delta);
+  if (k >= n) return CheckedLower(n, k, log_delta, {std::exp(log_delta / nd), true});
   if (nd <= kBoostInverseMaxSamples) {
     try {
       const double v = Binomial::find_lower_bound_on_p(nd, static_cast<double>(k), delta);
-      if (FiniteProbability(v)) return {v, true};
+      if (FiniteProbability(v)) return CheckedLower(n, k, log_delta, {v, true});
     } catch (const std::exception&) {
       // Boost gave up within its caps: search in log space instead.
     }
   }
-  return LowerLimitSearch(n, k, std::log(delta));
+  return CheckedLower(n, k, log_delta, LowerLimitSearch(n, k, log_delta));
 }
 
 double LogChoose(double n, double k) {
@@ -473,8 +749,9 @@ bool UpperLimitAtMost(std::uint64_t n, std::uint64_t k, double delta, double eps
   if (k == 0) return BinomialUpperLimit(n, k, delta).value <= eps;  // closed form
   // The limit exceeds k/n (k < n), so it exceeds eps when k/n >= eps.
   if (static_cast<double>(k) >= eps * static_cast<double>(n)) return false;
-  // u <= eps  <=>  P(Bin(n, eps) <= k) <= delta (the tail falls in p).
-  const double log_delta = std::log(delta);
+  // u <= eps  <=>  P(Bin(n, eps) <= k) <= delta (the tail falls in p); the
+  // reported limit holds the post-check's margin, so the decision does too.
+  const double log_delta = std::log(delta) - CheckMargin(std::log(delta));
   const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/false, log_delta + 1e-6);
   const double margin = DecideMargin(n, k, eps, /*upper_tail=*/false, b.lower);
   if (b.upper < log_delta - margin) return true;
@@ -490,8 +767,9 @@ bool LowerLimitAbove(std::uint64_t n, std::uint64_t k, double delta, double eps)
   // The limit is below k/n (k >= 1), so it is not above eps when k/n <= eps.
   if (static_cast<double>(k) <= eps * static_cast<double>(n)) return false;
   if (eps <= 0.0) return true;  // the limit is positive for k >= 1
-  // l > eps  <=>  P(Bin(n, eps) >= k) < delta (the tail grows in p).
-  const double log_delta = std::log(delta);
+  // l > eps  <=>  P(Bin(n, eps) >= k) < delta (the tail grows in p), with
+  // the post-check's margin as above.
+  const double log_delta = std::log(delta) - CheckMargin(std::log(delta));
   const LogBounds b = AnyTailBounds(n, k, eps, /*upper_tail=*/true, log_delta + 1e-6);
   const double margin = DecideMargin(n, k, eps, /*upper_tail=*/true, b.lower);
   if (b.upper < log_delta - margin) return true;
@@ -520,10 +798,10 @@ TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
                                      double log_delta) {
   if (k >= n) return {1.0, true};
   const double nd = static_cast<double>(n);
-  if (k == 0) return {-std::expm1(log_delta / nd), true};
+  if (k == 0) return CheckedUpper(n, k, log_delta, {-std::expm1(log_delta / nd), true});
   // exp() of anything above ln(DBL_MIN) ~ -708.4 is a normal double.
   if (log_delta > kLogNormalMin) return BinomialUpperLimit(n, k, std::exp(log_delta));
-  return UpperLimitSearch(n, k, log_delta);
+  return CheckedUpper(n, k, log_delta, UpperLimitSearch(n, k, log_delta));
 }
 
 absl::StatusOr<std::uint64_t> SmallestSatisfying(

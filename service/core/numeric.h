@@ -14,8 +14,9 @@
 
 namespace riskbound::core {
 
-// Tolerance of every bisection in this header: absolute on probabilities, and
-// relative to the limit when the limit is below 1.
+// Tolerance of every bisection in this header: absolute on probabilities,
+// relative to the limit when the limit is below 1, and relative to 1 - limit
+// when that is below 1.
 inline constexpr double kBisectionTolerance = 1e-12;
 
 // BernoulliKl
@@ -44,9 +45,12 @@ double KlInverseLower(double q, double c);
 // A binomial confidence limit and how it was obtained.
 struct TailLimit {
   double value = 0.0;
-  // True when the exact Clopper-Pearson limit was found (to the bisection
-  // tolerance); false when a conservative limit (looser, still valid, never
-  // looser than the kl-Chernoff relaxation) had to stand in for it.
+  // True when the exact Clopper-Pearson limit was found (to a relative 1e-12,
+  // on its conservative side); false only when the post-check below could not
+  // settle the tail at the limit within 64 outward steps and the kl-Chernoff
+  // limit (looser, still valid) stands in for it. No input of the tests'
+  // grid (n from 10 to 2^53, delta down to the smallest positive double)
+  // reaches that case.
   bool exact = true;
 };
 
@@ -56,21 +60,26 @@ struct TailLimit {
 // Beta(k + 1, n - k), computed with Boost.Math's complement inverse (never as
 // a quantile at 1 - delta), its iterations capped. k = 0 uses the closed form
 // 1 - delta^(1/n); k = n returns 1. Where Boost gives up within its caps, and
-// always above 2^32 samples, a bracketed bisection on the binomial tail
-// (summed in log space from the term at k, with Boost's capped CDF where the
-// sum would need more than a few thousand terms) takes over; it never
-// returns less than the exact limit (to the bisection tolerance) and stays
-// below the kl-Chernoff limit. exact = false only where neither the sum nor
-// Boost could settle a step (counts near 2^53 with many errors); the value is
-// then still an upper limit, rounded up.
-// Cost: bounded, under a millisecond at any admissible n and k.
-// REQUIRES: n >= 1, k <= n, 0 < delta < 1.
+// always above 2^32 samples, a bracketed bisection between the kl-Chernoff
+// limit and k/n on the binomial tail takes over: the tail is summed in log
+// space from the term at k where its terms fall fast, else computed by
+// Gauss-Legendre quadrature of the incomplete-beta integral in log space.
+// Post-check: whichever way the limit was found, the tail at it is
+// recomputed (sum or quadrature, never Boost) and the limit moved outward
+// (nextafter steps, then bisection back) until P(Bin(n, limit) <= k) <=
+// delta holds with a margin for the tail's own rounding: the value is never
+// below the exact limit (checked against mpmath on a grid of n from 10 to
+// 2^53 and delta down to the smallest positive double:
+// tests/reference/tail_limits_test.py). A limit that rounds to 1 is 1.
+// Cost: bounded, under a few milliseconds at any admissible n, k and delta.
+// REQUIRES: n >= 1, k <= n, 0 < delta < 1 (subnormal delta allowed).
 TailLimit BinomialUpperLimit(std::uint64_t n, std::uint64_t k, double delta);
 
 // BinomialLowerLimit
 // One-sided Clopper-Pearson lower limit: the smallest p with
-// P(Bin(n, p) >= k) >= delta. k = 0 returns 0. Fallback as above, mirrored
-// (never larger than the exact limit).
+// P(Bin(n, p) >= k) >= delta. k = 0 returns 0. Methods and post-check as
+// above, mirrored (never larger than the exact limit; 0 once below the
+// smallest normal double).
 // REQUIRES: n >= 1, k <= n, 0 < delta < 1.
 TailLimit BinomialLowerLimit(std::uint64_t n, std::uint64_t k, double delta);
 
@@ -78,18 +87,18 @@ TailLimit BinomialLowerLimit(std::uint64_t n, std::uint64_t k, double delta);
 // As BinomialUpperLimit, but the failure probability is given by its natural
 // logarithm, for the tiny levels of union bounds (delta / C(m, d),
 // delta * 2^-bits) that underflow a double. Uses BinomialUpperLimit while
-// exp(log_delta) is a normal double, else the bracketed log-space search
-// (bounded number of steps and terms per step; exact = false only where the
-// tail sum could not be settled, the value then still conservative).
+// exp(log_delta) is a normal double, else the bracketed log-space search;
+// the same post-check at log_delta either way.
 // REQUIRES: n >= 1, k <= n, log_delta < 0.
 TailLimit BinomialUpperLimitLogDelta(std::uint64_t n, std::uint64_t k,
                                      double log_delta);
 
 // LogBinomialCdf
 // Returns ln P(Bin(n, p) <= k), summed in log space from the term at k (or
-// k + 1 for the complement) away from the mode, so the cost does not grow
-// with k: at most 65536 terms, else Boost's CDF; where neither settles it,
-// an upper bound on the true value.
+// k + 1 for the complement) away from the mode while its terms fall fast (at
+// most 1024 terms), else Boost's CDF (up to 2^32 samples) or the log-space
+// quadrature of the incomplete-beta integral (above, or where Boost gives
+// up); good to about 1e-14 relative; where none settles it, an upper bound.
 // REQUIRES: k <= n, 0 <= p <= 1.
 double LogBinomialCdf(std::uint64_t n, std::uint64_t k, double p);
 

@@ -1,6 +1,7 @@
 #include "service/core/plan.h"
 
 #include <algorithm>
+#include <charconv>
 #include <cmath>
 #include <exception>
 #include <functional>
@@ -26,11 +27,22 @@ namespace {
 using Predicate = std::function<bool(std::uint64_t)>;
 
 // CPU time one plan's searches may take. Ordinary plans need well under a
-// millisecond, large ones (answers near 1e9) tens of milliseconds; only an
+// millisecond, large ones (answers near 1e9) a few milliseconds; only an
 // expected rate within a hair of the target (whose answer lies near or
 // beyond 2^53, with bound evaluations at huge n) comes near it. Past it the
-// plan is reported unreachable with kOverBudget.
-constexpr double kPlanCpuBudgetSeconds = 0.1;
+// plan is reported unreachable with kOverBudget. With the check of the
+// teeth below a pass-probability plan (kMinimalityBudgetSeconds) and the
+// final evaluations, a plan stays below 100 ms of CPU.
+constexpr double kPlanCpuBudgetSeconds = 0.08;
+
+// The part of that budget kept for what every plan computes after its
+// searches (k_max at the answer, the final limit and pass probability): the
+// checks that no smaller n meets the rule stop once only this is left.
+constexpr double kPlanReserveSeconds = 0.012;
+
+// CPU time each check that no smaller n meets the rule may take at most (it
+// stops there and the rule says down to which n it got).
+constexpr double kMinimalityBudgetSeconds = 0.01;
 
 constexpr char kOverBudget[] =
     "the expected error rate is so close to the target risk that the plan would need "
@@ -77,12 +89,17 @@ class CountedBound {
   }
   // True when the work budget ran out (the searches' answers are then void).
   bool exhausted() const { return budget_.spent(); }
+  // True once less than kPlanReserveSeconds of the budget is left (or
+  // stopped): the optional checks stop there, so that what every plan needs
+  // afterwards still fits.
+  bool nearly_spent() const { return spent() || reserve_.Spent(); }
 
  private:
   std::function<bool(std::uint64_t, std::uint64_t)> ok_;
   std::uint64_t* evaluations_;
   const StopToken& stop_;
   mutable WorkBudget budget_{kPlanCpuBudgetSeconds};
+  mutable WorkBudget reserve_{kPlanCpuBudgetSeconds - kPlanReserveSeconds};
   mutable bool stopped_ = false;
 };
 
@@ -121,6 +138,110 @@ absl::StatusOr<std::uint64_t> RobustSmallest(double rate, std::uint64_t lo,
   return SmallestSatisfying(lo, kPlanMaxSamples, robust);
 }
 
+// The smallest robust n (the rule of RobustSmallest) of a hold-out plan,
+// given one, n_found, that RobustSmallest's bisection returned: robust(n) is
+// not monotone in n, so the bisection can stop at a later crossing. Robust
+// n are the starts of runs of at least window + 1 consecutive good sizes
+// (good(m): the bound at m samples and ceil(rate m) errors is <= eps); within
+// a tooth (a fixed count) the bound falls in m, so a tooth's good sizes are
+// a suffix of it. The sizes below n_found are classified downward, tooth by
+// tooth: a run's lowest good size is found by bisection within each tooth,
+// and a block of teeth [lo, K] whose sizes are all bad is ruled out at once
+// by one tail: every m <= top has at least lo errors (if in those teeth), so
+// P(Bin(top, eps) <= lo) > delta makes every bound there exceed eps
+// (Clopper & Pearson 1934: the limit at (m, j) exceeds eps iff P(Bin(m,
+// eps) <= j) > delta, which grows as m falls and j rises). Blocks double
+// while they are ruled out and halve when not. Returns the lowest qualifying
+// run start found; *checked_down_to is 0 when every size down to `floor`
+// was classified, else the lowest size classified when `budget` ran out.
+std::uint64_t SmallestRobustHoldout(double rate, double eps, double delta, std::uint64_t floor,
+                                    std::uint64_t n_found, const CountedBound& ok,
+                                    WorkBudget* budget, std::uint64_t* checked_down_to) {
+  *checked_down_to = 0;
+  if (rate <= 0.0) return n_found;  // no sawtooth: the predicate is monotone
+  const std::uint64_t window = SawtoothWindow(rate);
+  const auto good = [&](std::uint64_t m) { return ok(m, ErrorsAt(rate, m)); };
+  // First size with at least k errors (ErrorsAt is monotone in m).
+  const auto tooth_start = [&](std::uint64_t m) {
+    const std::uint64_t k = ErrorsAt(rate, m);
+    return SmallestSatisfying(1, m, [&](std::uint64_t x) { return ErrorsAt(rate, x) >= k; })
+        .value_or(m);
+  };
+  // Lowest good size of the run through `start` (good), extended downward
+  // tooth by tooth while the end of the tooth below is good too.
+  // Stops early when a budget runs out: every size from the start returned
+  // up to the run's end is good all the same.
+  bool out_of_time = false;
+  const auto time_left = [&] {
+    if (!out_of_time && (ok.nearly_spent() || budget->Spent())) out_of_time = true;
+    return !out_of_time;
+  };
+  const auto run_start_from = [&](std::uint64_t start) {
+    while (time_left()) {
+      const std::uint64_t t = tooth_start(start);
+      std::uint64_t g = start;
+      if (t < start) {
+        g = good(t) ? t
+                    : SmallestSatisfying(t + 1, start, good).value_or(start);
+      }
+      start = g;
+      if (g != t || t <= floor || !good(t - 1)) break;
+      start = t - 1;
+    }
+    return start;
+  };
+  std::uint64_t answer = run_start_from(n_found);  // its run reaches n_found + window
+  if (out_of_time) {
+    *checked_down_to = answer;
+    return answer;
+  }
+  if (answer < 2 || answer - 1 <= floor) return answer;
+  std::uint64_t top = answer - 2;  // answer - 1 is bad
+  std::uint64_t block = 1;
+  while (top > floor) {
+    if (!time_left()) {
+      *checked_down_to = top + 1;
+      return answer;
+    }
+    const std::uint64_t k = ErrorsAt(rate, top);
+    if (block > 1) {
+      const std::uint64_t lo = k + 1 > block ? k + 1 - block : 0;
+      bool unused = true;
+      if (BinomialTailLowerBound(top, lo, eps, BinomialTail::kAtMost, &unused) > delta) {
+        // Every size from the start of tooth lo up to top is bad.
+        const std::uint64_t start_lo =
+            lo == 0 ? 0
+                    : SmallestSatisfying(1, top, [&](std::uint64_t x) {
+                        return ErrorsAt(rate, x) >= lo;
+                      }).value_or(top);
+        if (start_lo <= floor + 1) break;
+        top = start_lo - 1;
+        block = block > kPlanMaxSamples / 2 ? block : 2 * block;
+        continue;
+      }
+      block /= 2;
+      continue;
+    }
+    if (!good(top)) {
+      // Bad at top, so bad from the start of its tooth up to top; try a
+      // block of two teeth next.
+      const std::uint64_t t = tooth_start(top);
+      if (t <= floor + 1) break;
+      top = t - 1;
+      block = 2;
+      continue;
+    }
+    // A run ends at top (top + 1 is bad).
+    const std::uint64_t start = run_start_from(top);
+    if (out_of_time) continue;
+    if (top - start >= window) answer = start;
+    if (start < 2 || start - 1 <= floor) break;
+    top = start - 2;
+    block = 1;
+  }
+  return answer;
+}
+
 // The upper bound HoldoutExactBinomial reports: the Clopper-Pearson limit,
 // clipped to [0, 1] and never below k/n (as MakeCertificate does).
 double HoldoutUpper(std::uint64_t n, std::uint64_t k, double delta, bool* exact) {
@@ -130,6 +251,14 @@ double HoldoutUpper(std::uint64_t n, std::uint64_t k, double delta, bool* exact)
   return std::max(v, static_cast<double>(k) / static_cast<double>(n));
 }
 
+
+// The shortest decimal that reads back as v (std::to_chars), for rule texts
+// that name the request's values exactly.
+std::string Shortest(double v) {
+  char buf[32];
+  const std::to_chars_result r = std::to_chars(buf, buf + sizeof(buf), v);
+  return std::string(buf, r.ptr);
+}
 
 std::string Unreachable(double target, double expected, absl::string_view what) {
   if (target >= 1.0) {
@@ -270,10 +399,28 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
     plan.reason = kBeyondRange;
     return plan;
   }
-  plan.expected_rate_sample_count = *n95;
-  plan.sample_count = *n95;
+  // The bisection's answer can be a later crossing of the sawtooth: the
+  // sizes below it are classified down to the zero-failure size.
+  std::uint64_t rate_checked_down_to = 0;
+  WorkBudget rate_budget(kMinimalityBudgetSeconds);
+  const std::uint64_t n_rate = SmallestRobustHoldout(
+      p, eps, delta, std::max<std::uint64_t>(1, plan.zero_failure_sample_count - 1), *n95, ok,
+      &rate_budget, &rate_checked_down_to);
+  if (ok.stopped()) return stop.Status();
+  if (ok.exhausted()) {
+    plan.reason = kOverBudget;
+    return plan;
+  }
+  plan.expected_rate_sample_count = n_rate;
+  plan.sample_count = n_rate;
   plan.rule = AnticipatedRateRule("exact binomial (Clopper-Pearson) bound", "n", p, eps,
                                   "Clopper & Pearson 1934; exact integer search");
+  if (rate_checked_down_to != 0) {
+    plan.rule = absl::StrCat(
+        plan.rule, "; every smaller n down to ", rate_checked_down_to,
+        " was checked, smaller ones were not within the work budget, so an earlier n "
+        "meeting the rule below that is possible");
+  }
 
   // k_max(n) = max { k : Binbar(n, k) <= eps }, given a count `known` that
   // certifies eps at n (so k_max >= known); the search runs upward from it.
@@ -283,7 +430,7 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
         known + 1, n, [&](std::uint64_t k) { return !ok(n, k); });
     return first_bad.ok() ? *first_bad - 1 : known;
   };
-  std::uint64_t tolerated = k_max(*n95, ErrorsAt(p, *n95));
+  std::uint64_t tolerated = k_max(n_rate, ErrorsAt(p, n_rate));
 
   if (request.pass_probability.has_value()) {
     const double target = *request.pass_probability;
@@ -296,8 +443,10 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
     const auto first_feasible = [&](std::uint64_t k) -> absl::StatusOr<std::uint64_t> {
       if (auto it = s_known.find(k); it != s_known.end()) return it->second;
       std::uint64_t lo = k + 1;
+      // Binbar(n, K) >= K/n holds for delta <= 1/2 only (the median of
+      // Bin(n, K/n) is K: Kaas & Buhrman 1980).
       const double by_rate = std::ceil(static_cast<double>(k) / eps);
-      if (by_rate < static_cast<double>(kPlanMaxSamples)) {
+      if (delta <= 0.5 && by_rate < static_cast<double>(kPlanMaxSamples)) {
         lo = std::max(lo, static_cast<std::uint64_t>(by_rate));
       }
       std::uint64_t hi = kPlanMaxSamples;
@@ -374,8 +523,73 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
       plan.sample_count = 0;
       return plan;
     }
-    const std::uint64_t good = *k_star;
-    const std::uint64_t n96 = *s_star;
+    // The bisection over K stops at a crossing (P(pass at s_K) >= target,
+    // at s_{K-1} not), but P(pass at s_K) is not monotone in K, so an
+    // earlier tooth may pass too. Every n below s_{K*} is checked, downward
+    // from the crossing, by blocks of teeth [lo, hi]: for n in [s_lo,
+    // s_{hi+1}), k_max(n) <= hi and n >= s_lo, so P(pass at n) <= P(Bin(s_lo,
+    // p) <= hi); a block whose bound is below the target holds no passing n.
+    // Blocks double while they are ruled out and halve when not; a single
+    // tooth that cannot be ruled out is evaluated (its start passes when the
+    // tail's lower bound reaches the target). The blocks grow by a factor
+    // of about eps/p per step away from the crossing, so a few dozen
+    // searches cover every K down to 0 unless p is within a hair of eps.
+    std::uint64_t best = k_star.ok() ? *k_star : 0;
+    // The smallest K such that every tooth from K up was checked.
+    std::uint64_t checked_from = best;
+    if (k_star.ok() && s_star.ok() && *k_star > 0) {
+      WorkBudget minimality_budget(kMinimalityBudgetSeconds);
+      std::int64_t hi = static_cast<std::int64_t>(*k_star) - 1;
+      std::uint64_t block = 1;
+      while (hi >= 0 && !ok.nearly_spent() && !minimality_budget.Spent()) {
+        const std::uint64_t top = static_cast<std::uint64_t>(hi);
+        const std::uint64_t lo = top + 1 > block ? top + 1 - block : 0;
+        const absl::StatusOr<std::uint64_t> s_lo = first_feasible(lo);
+        if (ok.spent() || !s_lo.ok()) break;
+        bool unused = true;
+        // An upper bound on P(Bin(s_lo, p) <= top): one minus a lower
+        // bound on the complement P(Bin(s_lo, p) >= top + 1).
+        const double bound =
+            top >= *s_lo ? 1.0
+                         : 1.0 - BinomialTailLowerBound(*s_lo, top + 1, p,
+                                                        BinomialTail::kAtLeast, &unused);
+        if (bound < target) {
+          checked_from = lo;
+          if (lo == 0) break;
+          hi = static_cast<std::int64_t>(lo) - 1;
+          block = block > kPlanMaxSamples / 2 ? block : 2 * block;
+          continue;
+        }
+        if (block > 1) {
+          block /= 2;
+          continue;
+        }
+        // One tooth, K = top = lo: its start passes when its own tooth is
+        // not empty (s_{K+1} > s_K) and P(Bin(s_K, p) <= K) reaches the target.
+        const absl::StatusOr<std::uint64_t> s_next = first_feasible(top + 1);
+        if (ok.spent()) break;
+        if (s_next.ok() && *s_next > *s_lo &&
+            BinomialTailLowerBound(*s_lo, top, p, BinomialTail::kAtMost, &unused) >= target) {
+          best = top;
+        }
+        checked_from = top;
+        hi -= 1;
+      }
+    }
+    if (ok.stopped()) return stop.Status();
+    if (ok.exhausted()) {
+      plan.reason = kOverBudget;
+      plan.sample_count = 0;
+      return plan;
+    }
+    const std::uint64_t good = best;
+    const absl::StatusOr<std::uint64_t> s_best = first_feasible(best);
+    if (!s_best.ok()) {
+      plan.reason = kBeyondRange;
+      plan.sample_count = 0;
+      return plan;
+    }
+    const std::uint64_t n96 = *s_best;
     plan.pass_probability_sample_count = n96;
     plan.sample_count = n96;
     tolerated = k_max(n96, good);
@@ -385,11 +599,34 @@ absl::StatusOr<HoldoutPlan> PlanHoldout(const HoldoutPlanRequest& request, const
       plan.sample_count = 0;
       return plan;
     }
-    plan.rule = absl::StrFormat(
-        "smallest n at which a model with true error rate %g passes (exact binomial "
-        "bound <= %g) with probability >= %g (a power calculation on the binomial "
-        "distribution of the error count; exact integer search)",
-        p, eps, target);
+    // Where the check of the earlier teeth ran out of its budget, the rule
+    // says from which n up it holds.
+    const std::uint64_t checked_from_n =
+        checked_from == 0 ? 0 : first_feasible(checked_from).value_or(n96);
+    const std::string definition = absl::StrCat(
+        "P(Bin(n, ", Shortest(p), ") <= k_max(n)) >= ", Shortest(target),
+        ", where k_max(n) is the most errors at which the exact binomial bound on n "
+        "examples is <= ",
+        Shortest(eps), ": the probability that a model with true error rate ", Shortest(p),
+        " passes (a power calculation");
+    constexpr char kSources[] = " (Clopper & Pearson 1934; exact integer search)";
+    if (checked_from_n == 0) {
+      plan.rule = absl::StrCat("smallest n with ", definition,
+                               "; every smaller n was checked, since the pass probability "
+                               "is a sawtooth in n)",
+                               kSources);
+    } else {
+      plan.rule = absl::StrCat(
+          "an n with ", definition,
+          ") found by bisection over the teeth of the sawtooth (the sizes s_K from which K "
+          "errors certify), the tooth before it falling short; ",
+          checked_from_n < n96
+              ? absl::StrCat("every smaller n down to ", checked_from_n,
+                             " was checked too, smaller ones were not")
+              : std::string("smaller n were not checked"),
+          " within the work budget, so an earlier crossing below that is possible",
+          kSources);
+    }
     plan.notes.emplace_back(
         "the pass probability is a sawtooth in n: a few samples more than planned can "
         "lower it until the hold-out set tolerates one more error");

@@ -19,7 +19,10 @@
 // about two more errors). Within a tooth the bound falls, so the
 // window is checked at n and at each tooth start (first n' with a larger
 // k(n')) inside it. At the answer n the bound is <= target and at n - 1 it is
-// above it.
+// above it. The rule is not monotone in n, so the hold-out planner checks
+// every smaller n after its search (SmallestRobustHoldout in plan.cc) and
+// returns the first that meets it; the training planner returns the
+// search's answer.
 #ifndef RISKBOUND_SERVICE_CORE_PLAN_H_
 #define RISKBOUND_SERVICE_CORE_PLAN_H_
 
@@ -82,9 +85,15 @@ struct HoldoutPlan {
   // Smallest n with Binbar(n, ceil(p n), delta) <= target, robust to the
   // sawtooth (see the file comment).
   std::uint64_t expected_rate_sample_count = 0;
-  // With pass_probability: smallest n with P(pass at n) >= pass_probability
-  // (a power calculation); the pass probability is itself a sawtooth in n, so it
-  // can dip below the request again for a few samples after this n.
+  // With pass_probability: smallest n with P(pass at n) = P(Bin(n, p) <=
+  // k_max(n)) >= pass_probability (a power calculation). The pass
+  // probability is itself a sawtooth in n (it falls while k_max stays put),
+  // so a bisection over the teeth can stop at a later crossing: every
+  // earlier tooth is ruled out by the bound P(pass at n) <= P(Bin(s_lo, p)
+  // <= hi) for n in a block of teeth [lo, hi], or evaluated on its own.
+  // Where that check would exceed its share of the work budget, the rule
+  // text names the n from which it holds. It can dip below the request
+  // again for a few samples after this n.
   std::optional<std::uint64_t> pass_probability_sample_count;
   // Which rule set `samples`, in plain words.
   std::string rule;
@@ -99,8 +108,11 @@ struct HoldoutPlan {
 // (HoldoutExactBinomial: Clopper & Pearson 1934).
 // Returns OK with reachable = false and a reason when target_risk >= 1,
 // expected_risk >= target_risk, the answer exceeds kPlanMaxSamples, or the
-// searches would take more than a work budget of 100 ms of CPU (only an
-// expected rate within a hair of the target, whose answer lies near 2^53).
+// searches would take more than their work budget (80 ms of CPU, the checks
+// that no smaller n meets the rule included; with the final evaluations a
+// call stays under 100 ms):
+// only an expected rate within a hair of the target, whose answer lies above
+// about 10^12 with a pass probability or near 2^53 without.
 // Errors: INVALID_ARGUMENT naming every bad field at once under `prefix`
 // (the request's path: "holdout" in PlanSamples): <prefix>.target_risk (NaN,
 // <= 0), .expected_risk (NaN, outside [0, 1]), .failure_probability (outside

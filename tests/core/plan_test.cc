@@ -288,7 +288,9 @@ TEST(PlanHoldoutTest, PassProbabilityAtLargeSize) {
   EXPECT_GT(HoldoutUpper(k, n - 1, 0.05), 0.01);
   EXPECT_GE(plan->pass_probability_at_plan, 0.8);
   EXPECT_LT(plan->pass_probability_at_plan, 0.801);
-  EXPECT_LT(plan->bound_evaluation_count, 2000u);
+  // Logarithmic searches plus the checks that no smaller n meets either rule
+  // (blocks of teeth that double while they are ruled out).
+  EXPECT_LT(plan->bound_evaluation_count, 5000u);
 }
 
 TEST(PlanHoldoutTest, InvalidFieldsAreNamed) {
