@@ -1,4 +1,5 @@
 // riskbound certify: certificates on one model's true error.
+#include <algorithm>
 #include <cmath>
 #include <map>
 #include <optional>
@@ -388,9 +389,13 @@ int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ost
 
   v1::CertifyRequest request;
   if (auto input = start.args.Get("input")) {
+    // The file is the whole request: flags that set its fields are refused;
+    // --output and the connection flags (ConnectionOptions) are not fields.
+    std::vector<std::string> allowed = {"input", "output"};
+    for (const OptionSpec& c : ConnectionOptions()) allowed.push_back(c.name);
     for (const OptionSpec& spec : specs) {
-      if (spec.name != "input" && spec.name != "output" && spec.name != "server" &&
-          spec.name != "timeout" && start.args.Has(spec.name)) {
+      if (std::find(allowed.begin(), allowed.end(), spec.name) == allowed.end() &&
+          start.args.Has(spec.name)) {
         return Usage(err, absl::StrCat("--input excludes --", spec.name));
       }
     }

@@ -122,13 +122,23 @@ class CertifyCommandTest(unittest.TestCase):
                    "failure_probability": 0.05, "listed": {"families": ["BOUND_FAMILY_HOLDOUT_KL_CHERNOFF"]}}
         code, out, err = cli("certify", "--input", "-", "--output", "json", stdin=json.dumps(request))
         self.assertEqual(code, 0, err)
-        # Source: formula sheet row 4.3: n = 1000, k = 20 -> kl 0.032813.
+        # Source: the kl-Chernoff upper limit (Langford 2005), n = 1000, k = 20,
+        # delta = 0.05: kl(0.02 || q) = ln(20)/1000 solved with
+        # scipy.optimize.brentq gives q = 0.0328132.
         self.assertAlmostEqual(json.loads(out)["tightest"]["riskUpperBound"], 0.032813, places=6)
         with tempfile.NamedTemporaryFile("w", suffix=".json", delete=False) as f:
             json.dump(request, f)
         code, out, err = cli("certify", "--input", f.name)
         self.assertEqual(code, 0, err)
         self.assertIn("holdout-kl", out)
+        # Connection flags go with --input (they are no field of the request):
+        # the compose file's one-shot client says --plaintext to a non-loopback
+        # server name.
+        code, out, err = cli("certify", "--input", f.name, "--plaintext", "--timeout", "5")
+        self.assertEqual(code, 0, err)
+        code, out, err = cli("certify", "--input", f.name, "--errors", "3")
+        self.assertEqual(code, 2)
+        self.assertIn("--input excludes --holdout-error-count", err)
 
     def test_exit_code_invalid_input(self):
         code, out, err = cli("certify", "--errors", "5", "--samples", "3")
@@ -294,7 +304,9 @@ class OneSpellingTest(unittest.TestCase):
             self.assertEqual(code, 0, (name, err))
             doc = json.loads(out)
             self.assertEqual(doc["certificates"][0]["family"], "BOUND_FAMILY_HOLDOUT_KL_CHERNOFF")
-            # Source: formula sheet row 4.3: n = 1000, k = 20 -> kl 0.032813.
+            # Source: the kl-Chernoff upper limit (Langford 2005), n = 1000, k = 20,
+        # delta = 0.05: kl(0.02 || q) = ln(20)/1000 solved with
+        # scipy.optimize.brentq gives q = 0.0328132.
             self.assertAlmostEqual(doc["tightest"]["riskUpperBound"], 0.032813, places=6)
         # A model kind by its CLI word inside a file; an id that happens to be a
         # family word is left alone.
