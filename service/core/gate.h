@@ -217,7 +217,8 @@ const char* VerdictName(Verdict verdict);
 //        a normal-approximation guess, from that guess, and returns the
 //        smallest such size it finds that reaches the probability (the
 //        probability moves in steps, so not always the very smallest n);
-//        given up past a work budget of 50 ms of CPU (plans of millions);
+//        given up past a work budget of 80 ms of CPU (plans of about a
+//        million samples and more);
 //      - below the minimum: at least the samples missing to reach it.
 //    The largest of these is reported.
 // Errors: INVALID_ARGUMENT naming every bad field by its API path

@@ -28,7 +28,7 @@ namespace {
 // millisecond; only rates within a hair of the threshold come near it).
 constexpr double kRejectionPlanCpuSeconds = 0.15;
 // The same for the paired champion-comparison plan (two limits per size).
-constexpr double kPairedPlanCpuSeconds = 0.05;
+constexpr double kPairedPlanCpuSeconds = 0.08;
 // The paired plan's enumeration takes B and C one by one up to this many
 // standard deviations' worth of counts, in blocks of 1/kPairedGrid of a
 // standard deviation beyond (PairedPassProbability).

@@ -131,7 +131,7 @@ class GatePlanProbabilityTest(unittest.TestCase):
         (10, 20, 40, 2000, 0.0),
         (3, 5, 15, 1500, 0.002),
         (0, 1, 9, 800, 0.0),
-        (100, 200, 215, 20000, 0.0),  # plans of about a million: blocks and grid
+        (100, 200, 250, 20000, 0.0),  # plans of tens of thousands: blocks and grid
     ]
 
     def test_reported_total_settles_with_the_policy_probability(self):

@@ -267,7 +267,7 @@ std::vector<CoverageRow> RunHoldout(std::int64_t trials, std::uint64_t seed) {
       if (setup.sheet.has_value()) {
         row.reference_value = (*setup.sheet)[f];
         row.reference_is_exact = true;
-        row.reference_source = "bounds.md row 4.6 (check_formulas.py, scipy binomial pmf)";
+        row.reference_source = "exact coverage sum, scipy.stats.binom.pmf";
       }
       rows.push_back(std::move(row));
     }
@@ -333,7 +333,7 @@ std::vector<CoverageRow> RunHoldoutUnion(std::int64_t trials, std::uint64_t seed
     row.exact_coverage = ExactBinomialCoverage(n, p, min4);
     // Source: bounds.md row 11.3: coverage 0.9918 (check_formulas.py, Monte-Carlo).
     row.reference_value = 0.9918;
-    row.reference_source = "bounds.md row 11.3 (check_formulas.py, Monte-Carlo)";
+    row.reference_source = "independent Python Monte-Carlo";
     rows.push_back(std::move(row));
   }
   return rows;
@@ -513,7 +513,7 @@ std::vector<CoverageRow> RunThresholdClass(std::int64_t trials, std::uint64_t se
       // Source: bounds.md row 3.5 (check_formulas.py, 5000 trials): uniform
       // coverage Hoeffding 1.0000, kl 0.9994 (Monte-Carlo, not exact).
       row.reference_value = families[f].slug == "occam-kl" ? 0.9994 : 1.0000;
-      row.reference_source = "bounds.md row 3.5 (check_formulas.py, 5000 Monte-Carlo trials)";
+      row.reference_source = "independent Python Monte-Carlo, 5000 trials";
     }
     rows.push_back(std::move(row));
   }
@@ -558,7 +558,7 @@ std::vector<CoverageRow> RunThresholdRealizable(std::int64_t trials, std::uint64
       // Source: bounds.md row 3.6: coverage 0.9994 (Monte-Carlo) of the
       // realizable Occam bound over all consistent thresholds.
       row.reference_value = 0.9994;
-      row.reference_source = "bounds.md row 3.6 (check_formulas.py, Monte-Carlo)";
+      row.reference_source = "independent Python Monte-Carlo";
     }
     rows.push_back(std::move(row));
   }
