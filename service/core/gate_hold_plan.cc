@@ -14,6 +14,7 @@
 #include "boost/math/distributions/binomial.hpp"
 #include "boost/math/distributions/normal.hpp"
 #include "boost/math/policies/policy.hpp"
+#include "service/core/anytime.h"
 #include "service/core/certify.h"
 #include "service/core/gate_internal.h"
 #include "service/core/numeric.h"
@@ -380,6 +381,36 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
   const std::string rate_words = evidence.holdout.has_value()
                                      ? "the observed hold-out error rate"
                                      : "the training error rate (no hold-out counts yet)";
+  if (policy.sequential) {
+    const bool has_anytime =
+        std::any_of(next.families.begin(), next.families.end(),
+                    [](const FamilySpec* s) { return s->family == Family::kHoldoutAnytime; });
+    if (!has_anytime) {
+      plan->reasons.push_back(
+          "no hold-out plan: the policy does not allow the anytime-valid hold-out bound");
+      return std::optional<std::uint64_t>();
+    }
+    const bool promote = rate < epsilon;
+    absl::StatusOr<std::uint64_t> n =
+        PlanAnytime(epsilon, rate, promote ? next.per_family : next.risk_lower, pass, m.held, stop);
+    if (stop.StopRequested()) return stop.Status();
+    if (n.ok()) {
+      const std::uint64_t more = *n - std::min(*n, m.held);
+      plan->reasons.push_back(
+          absl::StrCat("if the error rate stays near ", rate_words, " ", Num(rate), ", about ",
+                       more, " more labelled hold-out samples (", *n, " in all) give ",
+                       promote ? "a PROMOTE" : "a REJECT", " on risk with probability at least ",
+                       Num(pass), " under the anytime-valid bounds (sequential mode)"));
+      return std::optional<std::uint64_t>(more);
+    }
+    plan->reasons.push_back(absl::StrCat(
+        rate_words, " ", Num(rate),
+        promote || rate > epsilon
+            ? " is too close to the threshold: no hold-out size up to 2^40 is expected to "
+              "settle the risk test under the anytime-valid bounds"
+            : " is at the threshold: no hold-out size is expected to settle the risk test"));
+    return std::optional<std::uint64_t>();
+  }
   if (!has_binomial) {
     plan->reasons.push_back(
         "no hold-out plan: the policy does not allow the hold-out exact binomial bound");
@@ -434,6 +465,12 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
 absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
     const ChampionComparison& champion, const Measured& m, double pass, const StopToken& stop,
     HoldPlan* plan) {
+  if (m.sequential) {
+    plan->reasons.push_back(
+        "no plan for the champion comparison in sequential mode (the paired plan is computed "
+        "for fixed-size limits only); re-run the gate as the shared hold-out set grows");
+    return std::optional<std::uint64_t>();
+  }
   if (!champion.paired.has_value()) {
     plan->reasons.push_back(
         "no plan for the unpaired champion comparison: score both models on one shared "

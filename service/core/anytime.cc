@@ -1,0 +1,176 @@
+#include "service/core/anytime.h"
+
+#include <algorithm>
+#include <cmath>
+#include <functional>
+#include <limits>
+
+#include "absl/status/status.h"
+#include "boost/math/policies/policy.hpp"
+#include "boost/math/special_functions/beta.hpp"
+#include "boost/math/special_functions/gamma.hpp"
+
+namespace riskbound::core {
+namespace {
+
+// Errors come back as NaN or infinity (handled by the callers), never as an
+// exception.
+using Quiet = boost::math::policies::policy<
+    boost::math::policies::domain_error<boost::math::policies::ignore_error>,
+    boost::math::policies::pole_error<boost::math::policies::ignore_error>,
+    boost::math::policies::overflow_error<boost::math::policies::ignore_error>,
+    boost::math::policies::underflow_error<boost::math::policies::ignore_error>,
+    boost::math::policies::evaluation_error<boost::math::policies::ignore_error>>;
+
+constexpr double kInf = std::numeric_limits<double>::infinity();
+// The plan's search stops here: beyond, one limit takes milliseconds.
+constexpr std::uint64_t kMaxPlanSampleCount = std::uint64_t{1} << 40;
+
+// ln B(a, b) from Boost.Math's lgamma.
+double LogBeta(double a, double b) {
+  return boost::math::lgamma(a, Quiet()) + boost::math::lgamma(b, Quiet()) -
+         boost::math::lgamma(a + b, Quiet());
+}
+
+}  // namespace
+
+double AnytimePriorConcentration(double delta, std::uint64_t tuned_sample_count) {
+  // Howard, Ramdas, McAuliffe & Sekhon (2021): the normal mixture with
+  // precision rho is tightest at intrinsic time m for
+  // rho = m / (2 ln(1/alpha) + ln(1 + 2 ln(1/alpha))) (from memory; the
+  // tightness it buys is measured in tests/soundness/REPORT.md).
+  const double l = -std::log(delta);
+  return static_cast<double>(tuned_sample_count) / (2.0 * l + std::log1p(2.0 * l));
+}
+
+double AnytimeLogMartingaleUpper(std::uint64_t n, std::uint64_t k, double p0,
+                                 double concentration) {
+  if (p0 >= 1.0) return k < n ? kInf : 0.0;
+  const double a = concentration * p0;
+  const double b = concentration * (1.0 - p0);
+  if (!(a > 0.0) || !(b > 0.0)) return std::numeric_limits<double>::quiet_NaN();
+  const double alpha = a + static_cast<double>(k);
+  const double beta = b + static_cast<double>(n - k);
+  // B(alpha, beta) / (p0^k (1 - p0)^(n - k)) = p0^(a-1) (1 - p0)^(b-1) /
+  // ibeta_derivative(alpha, beta, p0): no cancellation of two huge logs.
+  const double density = boost::math::ibeta_derivative(alpha, beta, p0, Quiet());
+  if (density == 0.0) return kInf;  // p0 far in the tail of the posterior
+  const double posterior_mass = boost::math::ibeta(alpha, beta, p0, Quiet());
+  const double prior_mass = boost::math::ibeta(a, b, p0, Quiet());
+  const double log_m = std::log(posterior_mass) + (a - 1.0) * std::log(p0) +
+                       (b - 1.0) * std::log1p(-p0) - std::log(density) - LogBeta(a, b) -
+                       std::log(prior_mass);
+  return log_m;
+}
+
+TailLimit AnytimeUpperLimit(std::uint64_t n, std::uint64_t k, double delta) {
+  TailLimit out;
+  if (k >= n) {
+    out.value = 1.0;
+    return out;
+  }
+  const double c = AnytimePriorConcentration(delta, kAnytimeTunedSampleCount);
+  const double threshold = -std::log(delta);
+  // M_n(k/n) <= 1 < 1/delta (k/n maximizes the likelihood): not rejected.
+  double lo = static_cast<double>(k) / static_cast<double>(n);
+  double hi = 1.0;  // rejected: the likelihood at 1 is 0 (k < n)
+  for (int step = 0; step < 400; ++step) {
+    if (hi - lo <= 1e-13 * hi || hi <= 1e-300) break;
+    const double mid = lo + (hi - lo) / 2.0;
+    if (mid <= lo || mid >= hi) break;
+    const double log_m = AnytimeLogMartingaleUpper(n, k, mid, c);
+    if (std::isnan(log_m)) {
+      out.exact = false;  // counted as not rejected: only widens the limit
+      lo = mid;
+    } else if (log_m >= threshold) {
+      hi = mid;
+    } else {
+      lo = mid;
+    }
+  }
+  out.value = hi;
+  return out;
+}
+
+TailLimit AnytimeLowerLimit(std::uint64_t n, std::uint64_t k, double delta) {
+  TailLimit upper = AnytimeUpperLimit(n, n - k, delta);
+  // 1 - hi is exact in binary when hi >= 1/2, and rounds to nearest otherwise;
+  // step one ulp down so the limit stays outward.
+  const double value = k == 0 ? 0.0 : std::nextafter(1.0 - upper.value, 0.0);
+  return TailLimit{std::max(0.0, value), upper.exact};
+}
+
+Certificate HoldoutAnytime(const SampleCounts& counts, double delta) {
+  const TailLimit upper = AnytimeUpperLimit(counts.sample_count, counts.error_count, delta);
+  const TailLimit lower = AnytimeLowerLimit(counts.sample_count, counts.error_count, delta);
+  Certificate c = MakeCertificate(Family::kHoldoutAnytime, delta, EmpiricalRate(counts),
+                                  upper.value, lower.value);
+  c.exact = upper.exact && lower.exact;
+  c.notes.emplace_back(
+      "anytime-valid: holds simultaneously for every hold-out size, so the hold-out set may "
+      "grow and the certificate be recomputed any number of times at this failure "
+      "probability (beta-binomial mixture tuned for " +
+      std::to_string(kAnytimeTunedSampleCount) + " samples)");
+  if (!c.exact) {
+    c.notes.emplace_back(
+        "a term of the mixture could not be evaluated at this sample size; the limits were "
+        "widened where it failed");
+  }
+  return c;
+}
+
+bool AnytimeUpperAtMost(std::uint64_t n, std::uint64_t k, double delta, double epsilon) {
+  return AnytimeUpperLimit(n, k, delta).value <= epsilon;
+}
+
+std::int64_t AnytimeMaxPassingErrors(std::uint64_t n, double delta, double epsilon) {
+  if (!AnytimeUpperAtMost(n, 0, delta, epsilon)) return -1;
+  // U >= k/n, so every k > epsilon n fails.
+  const std::uint64_t hi = std::min<std::uint64_t>(
+      n, static_cast<std::uint64_t>(std::floor(epsilon * static_cast<double>(n))) + 1);
+  absl::StatusOr<std::uint64_t> first_fail = SmallestSatisfying(
+      1, hi, [&](std::uint64_t k) { return !AnytimeUpperAtMost(n, k, delta, epsilon); });
+  if (!first_fail.ok()) return static_cast<std::int64_t>(hi);
+  return static_cast<std::int64_t>(*first_fail) - 1;
+}
+
+std::uint64_t AnytimeMinFailingErrors(std::uint64_t n, double delta, double epsilon) {
+  // L <= k/n, so every k <= epsilon n keeps L <= epsilon... up to rounding:
+  // start one below.
+  const double floor_k = std::floor(epsilon * static_cast<double>(n));
+  const std::uint64_t lo = floor_k >= 1.0 ? static_cast<std::uint64_t>(floor_k) - 1 : 0;
+  absl::StatusOr<std::uint64_t> k = SmallestSatisfying(std::min(lo, n), n, [&](std::uint64_t j) {
+    return AnytimeLowerLimit(n, j, delta).value > epsilon;
+  });
+  return k.ok() ? *k : n + 1;
+}
+
+absl::StatusOr<std::uint64_t> PlanAnytime(double epsilon, double rate, double delta, double pass,
+                                          std::uint64_t held, const StopToken& stop) {
+  if (rate == epsilon) {
+    return absl::NotFoundError("the error rate equals the threshold");
+  }
+  const bool toward_promote = rate < epsilon;
+  bool stopped = false;
+  const std::function<bool(std::uint64_t)> ok = [&](std::uint64_t n) {
+    if (stopped || stop.StopRequested()) {
+      stopped = true;
+      return true;
+    }
+    if (toward_promote) {
+      const std::int64_t k_max = AnytimeMaxPassingErrors(n, delta, epsilon);
+      return k_max >= 0 && BinomialTailLowerBound(n, static_cast<std::uint64_t>(k_max), rate,
+                                                  BinomialTail::kAtMost) >= pass;
+    }
+    const std::uint64_t k_min = AnytimeMinFailingErrors(n, delta, epsilon);
+    return k_min <= n && BinomialTailLowerBound(n, k_min, rate, BinomialTail::kAtLeast) >= pass;
+  };
+  const std::uint64_t lo = std::max<std::uint64_t>(held, 1);
+  if (lo > kMaxPlanSampleCount) return absl::NotFoundError("beyond 2^40 samples");
+  absl::StatusOr<std::uint64_t> n = SmallestSatisfying(lo, kMaxPlanSampleCount, ok, lo);
+  if (stopped) return stop.Status();
+  if (!n.ok()) return absl::NotFoundError("no sample size up to 2^40 settles it");
+  return n;
+}
+
+}  // namespace riskbound::core

@@ -1,0 +1,120 @@
+// Anytime-valid hold-out bounds: confidence sequences for a binomial
+// proportion that hold simultaneously for every sample size, so the same
+// failure probability covers any number of looks at a growing hold-out set.
+//
+// Construction (one-sided beta-binomial mixture martingale):
+// for a tested error rate p0, mix the likelihood ratio of the n hold-out
+// outcomes (k errors) over a Beta(c p0, c (1 - p0)) prior on the alternative
+// rate p, truncated to the side of p0 the bound guards against (p < p0 for
+// the upper limit, p > p0 for the lower one):
+//
+//   M_n(p0) = [ integral over the side of p^k (1-p)^(n-k) prior(p) dp ]
+//             / [ p0^k (1-p0)^(n-k) * prior mass of the side ].
+//
+// Under the rate p0, M_n(p0) is a nonnegative martingale with M_0 = 1
+// (Robbins 1970, mixtures of likelihood ratios), so by Ville's maximal
+// inequality (Ville 1939) P(M_n(p0) >= 1/delta for some n) <= delta. The
+// upper limit U_n = sup{p0 : M_n(p0) < 1/delta} therefore satisfies
+// P(true rate > U_n for some n) <= delta, whatever rule decides when to look
+// or stop. The one-sided (truncated) form and the tuning of the mixture to a
+// planned sample size follow Howard, Ramdas, McAuliffe & Sekhon (2021),
+// "Time-uniform, nonparametric, nonasymptotic confidence sequences",
+// Ann. Statist. 49(2); the prior concentration
+//   c = n0 / (2 ln(1/delta) + ln(1 + 2 ln(1/delta)))
+// is their normal-mixture tuning rule for the intrinsic time n0 (the sample
+// size at which the sequence is tightest), moved to the beta prior's
+// "prior sample size". n0 is kAnytimeTunedSampleCount, a constant fixed in
+// the code (before any data): nothing of the construction is chosen from
+// the counts. The prior may depend on p0 (the hypothesis tested), never on
+// the data.
+//
+// The integrals are Boost.Math's regularized incomplete beta functions
+// (ibeta / ibetac) and its ibeta_derivative, in log space; the limits are
+// found by bisection on M_n(p0) (not an incomplete-beta inverse), rounded
+// outward. Pure functions; thread-safe.
+#ifndef RISKBOUND_SERVICE_CORE_ANYTIME_H_
+#define RISKBOUND_SERVICE_CORE_ANYTIME_H_
+
+#include <cstdint>
+
+#include "absl/status/statusor.h"
+#include "service/core/evidence.h"
+#include "service/core/numeric.h"
+#include "service/core/stop.h"
+
+namespace riskbound::core {
+
+// The sample size the mixture is tuned for (tightest near it; valid at every
+// size). Fixed in advance; the same for Certify and the gate.
+inline constexpr std::uint64_t kAnytimeTunedSampleCount = 10000;
+
+// AnytimePriorConcentration
+// c of the Beta(c p0, c (1 - p0)) prior for failure probability `delta` and
+// tuning size `tuned_sample_count` (see the file comment).
+// REQUIRES: 0 < delta < 1, tuned_sample_count >= 1.
+double AnytimePriorConcentration(double delta, std::uint64_t tuned_sample_count);
+
+// AnytimeLogMartingaleUpper
+// ln M_n(p0) of the upper-limit mixture (prior truncated to p < p0) for k
+// errors in n samples. +infinity where the likelihood at p0 is 0 (p0 = 1
+// with k < n); NaN only where Boost.Math cannot evaluate a term.
+// REQUIRES: k <= n, 0 < p0 <= 1, concentration > 0.
+double AnytimeLogMartingaleUpper(std::uint64_t n, std::uint64_t k, double p0, double concentration);
+
+// AnytimeUpperLimit
+// U_n = sup{p0 : M_n(p0) < 1/delta}, tuned for kAnytimeTunedSampleCount:
+// P(true rate > U_n for some n) <= delta. k = n gives 1. Found by bisection
+// on [k/n, 1] to a width of 1e-13 relative (and 1e-300 absolute), reporting
+// the rejected end (outward); a term Boost.Math cannot evaluate counts as not
+// rejected, which only widens the limit (exact = false then).
+// REQUIRES: 1 <= n, k <= n, 0 < delta < 1.
+TailLimit AnytimeUpperLimit(std::uint64_t n, std::uint64_t k, double delta);
+
+// AnytimeLowerLimit
+// The mirror image (prior truncated to p > p0): 1 - AnytimeUpperLimit(n,
+// n - k, delta), by the symmetry p <-> 1 - p of the construction.
+// P(true rate < L_n for some n) <= delta. k = 0 gives 0.
+// REQUIRES: as AnytimeUpperLimit.
+TailLimit AnytimeLowerLimit(std::uint64_t n, std::uint64_t k, double delta);
+
+// HoldoutAnytime
+// The holdout-anytime certificate: AnytimeUpperLimit and AnytimeLowerLimit,
+// each at delta, on the hold-out counts.
+// REQUIRES: counts.sample_count >= 1, error_count <= sample_count,
+//           0 < delta < 1.
+Certificate HoldoutAnytime(const SampleCounts& counts, double delta);
+
+// AnytimeUpperAtMost
+// Whether AnytimeUpperLimit(n, k, delta).value <= epsilon (computed, so a
+// plan or a simulation decides exactly as the gate does).
+bool AnytimeUpperAtMost(std::uint64_t n, std::uint64_t k, double delta, double epsilon);
+
+// AnytimeMaxPassingErrors
+// The largest k in [0, n] with AnytimeUpperLimit(n, k, delta) <= epsilon, or
+// -1 when none (the limit grows with k, so the passing k are [0, answer]).
+// REQUIRES: n >= 1, 0 < delta < 1, 0 < epsilon < 1.
+std::int64_t AnytimeMaxPassingErrors(std::uint64_t n, double delta, double epsilon);
+
+// AnytimeMinFailingErrors
+// The smallest k in [0, n] with AnytimeLowerLimit(n, k, delta) > epsilon, or
+// n + 1 when none.
+// REQUIRES: as AnytimeMaxPassingErrors.
+std::uint64_t AnytimeMinFailingErrors(std::uint64_t n, double delta, double epsilon);
+
+// PlanAnytime
+// The gate's HOLD plan for sequential mode: the smallest total sample count
+// n >= max(held, 1) at which the anytime limit at `delta` settles the risk
+// test with probability >= pass if the error rate stays at `rate`:
+// toward PROMOTE (rate < epsilon) P(Bin(n, rate) <= AnytimeMaxPassingErrors)
+// >= pass; toward REJECT P(Bin(n, rate) >= AnytimeMinFailingErrors) >= pass.
+// The binomial tails are numeric.h's BinomialTailLowerBound (never above the
+// true value). NOT_FOUND when rate == epsilon or no n up to 2^40 does it
+// (the search stops there: beyond, each limit costs too much);
+// stop.Status() when `stop` stops.
+// REQUIRES: 0 <= rate <= 1, 0 < epsilon < 1, 0 < delta < 1, 0 < pass < 1.
+absl::StatusOr<std::uint64_t> PlanAnytime(double epsilon, double rate, double delta, double pass,
+                                          std::uint64_t held, const StopToken& stop);
+
+}  // namespace riskbound::core
+
+#endif  // RISKBOUND_SERVICE_CORE_ANYTIME_H_
