@@ -120,6 +120,21 @@ Certificate HoldoutAnytime(const SampleCounts& counts, double delta) {
 }
 
 bool AnytimeUpperAtMost(std::uint64_t n, std::uint64_t k, double delta, double epsilon) {
+  if (k >= n) return epsilon >= 1.0;
+  const double rate = static_cast<double>(k) / static_cast<double>(n);
+  if (epsilon < rate) return false;  // U >= k/n
+  // ln M_n(p0) increases with p0 above k/n (checked on a grid in
+  // tests/core/anytime_test.cc), so the limit is at most epsilon iff epsilon
+  // is rejected. Decided from the one value where it is clearly on one side
+  // of the threshold; the limit itself is computed only in between.
+  const double threshold = -std::log(delta);
+  const double log_m = AnytimeLogMartingaleUpper(
+      n, k, epsilon, AnytimePriorConcentration(delta, kAnytimeTunedSampleCount));
+  if (!std::isnan(log_m)) {
+    const double margin = 1e-9 * (1.0 + threshold);
+    if (log_m >= threshold + margin) return true;
+    if (log_m < threshold - margin) return false;
+  }
   return AnytimeUpperLimit(n, k, delta).value <= epsilon;
 }
 
