@@ -138,6 +138,22 @@ bool AnytimeUpperAtMost(std::uint64_t n, std::uint64_t k, double delta, double e
   return AnytimeUpperLimit(n, k, delta).value <= epsilon;
 }
 
+bool AnytimeLowerAbove(std::uint64_t n, std::uint64_t k, double delta, double epsilon) {
+  if (k == 0) return false;
+  if (epsilon >= static_cast<double>(k) / static_cast<double>(n)) return false;  // L <= k/n
+  // L = 1 - U(n, n - k) (one ulp down): L > epsilon iff the mirrored limit
+  // is below 1 - epsilon, i.e. 1 - epsilon is rejected with room to spare.
+  const double threshold = -std::log(delta);
+  const double log_m = AnytimeLogMartingaleUpper(
+      n, n - k, 1.0 - epsilon, AnytimePriorConcentration(delta, kAnytimeTunedSampleCount));
+  if (!std::isnan(log_m)) {
+    const double margin = 1e-9 * (1.0 + threshold);
+    if (log_m >= threshold + margin) return true;
+    if (log_m < threshold - margin) return false;
+  }
+  return AnytimeLowerLimit(n, k, delta).value > epsilon;
+}
+
 std::int64_t AnytimeMaxPassingErrors(std::uint64_t n, double delta, double epsilon) {
   if (!AnytimeUpperAtMost(n, 0, delta, epsilon)) return -1;
   // U >= k/n, so every k > epsilon n fails.
@@ -154,9 +170,8 @@ std::uint64_t AnytimeMinFailingErrors(std::uint64_t n, double delta, double epsi
   // start one below.
   const double floor_k = std::floor(epsilon * static_cast<double>(n));
   const std::uint64_t lo = floor_k >= 1.0 ? static_cast<std::uint64_t>(floor_k) - 1 : 0;
-  absl::StatusOr<std::uint64_t> k = SmallestSatisfying(std::min(lo, n), n, [&](std::uint64_t j) {
-    return AnytimeLowerLimit(n, j, delta).value > epsilon;
-  });
+  absl::StatusOr<std::uint64_t> k = SmallestSatisfying(
+      std::min(lo, n), n, [&](std::uint64_t j) { return AnytimeLowerAbove(n, j, delta, epsilon); });
   return k.ok() ? *k : n + 1;
 }
 

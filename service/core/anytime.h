@@ -89,6 +89,11 @@ Certificate HoldoutAnytime(const SampleCounts& counts, double delta);
 // plan or a simulation decides exactly as the gate does).
 bool AnytimeUpperAtMost(std::uint64_t n, std::uint64_t k, double delta, double epsilon);
 
+// AnytimeLowerAbove
+// Whether AnytimeLowerLimit(n, k, delta).value > epsilon, decided the same
+// way from the mirrored martingale at 1 - epsilon.
+bool AnytimeLowerAbove(std::uint64_t n, std::uint64_t k, double delta, double epsilon);
+
 // AnytimeMaxPassingErrors
 // The largest k in [0, n] with AnytimeUpperLimit(n, k, delta) <= epsilon, or
 // -1 when none (the limit grows with k, so the passing k are [0, answer]).

@@ -120,6 +120,10 @@ TEST(AnytimeTest, DecisionsAgreeWithTheLimits) {
       EXPECT_EQ(AnytimeUpperAtMost(n, k, 0.025, 0.05), AnytimeUpperLimit(n, k, 0.025).value <= 0.05)
           << k << "/" << n;
     }
+    for (std::uint64_t k = 0; k <= n / 5; k += std::max<std::uint64_t>(1, n / 500)) {
+      EXPECT_EQ(AnytimeLowerAbove(n, k, 0.025, 0.05), AnytimeLowerLimit(n, k, 0.025).value > 0.05)
+          << k << "/" << n;
+    }
   }
 }
 
