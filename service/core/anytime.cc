@@ -1,6 +1,7 @@
 #include "service/core/anytime.h"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <functional>
 #include <limits>
@@ -63,13 +64,27 @@ double AnytimeLogMartingaleUpper(std::uint64_t n, std::uint64_t k, double p0,
   return log_m;
 }
 
+double AnytimeLogMixtureUpper(std::uint64_t n, std::uint64_t k, double p0, double delta) {
+  std::array<double, kAnytimeTunedSampleCounts.size()> terms;
+  double top = -kInf;
+  for (std::size_t j = 0; j < terms.size(); ++j) {
+    terms[j] = AnytimeLogMartingaleUpper(
+        n, k, p0, AnytimePriorConcentration(delta, kAnytimeTunedSampleCounts[j]));
+    if (std::isnan(terms[j])) return terms[j];
+    top = std::max(top, terms[j]);
+  }
+  if (std::isinf(top)) return top;
+  double sum = 0.0;
+  for (double t : terms) sum += std::exp(t - top);
+  return top + std::log(sum / static_cast<double>(terms.size()));
+}
+
 TailLimit AnytimeUpperLimit(std::uint64_t n, std::uint64_t k, double delta) {
   TailLimit out;
   if (k >= n) {
     out.value = 1.0;
     return out;
   }
-  const double c = AnytimePriorConcentration(delta, kAnytimeTunedSampleCount);
   const double threshold = -std::log(delta);
   // M_n(k/n) <= 1 < 1/delta (k/n maximizes the likelihood): not rejected.
   double lo = static_cast<double>(k) / static_cast<double>(n);
@@ -78,7 +93,7 @@ TailLimit AnytimeUpperLimit(std::uint64_t n, std::uint64_t k, double delta) {
     if (hi - lo <= 1e-13 * hi || hi <= 1e-300) break;
     const double mid = lo + (hi - lo) / 2.0;
     if (mid <= lo || mid >= hi) break;
-    const double log_m = AnytimeLogMartingaleUpper(n, k, mid, c);
+    const double log_m = AnytimeLogMixtureUpper(n, k, mid, delta);
     if (std::isnan(log_m)) {
       out.exact = false;  // counted as not rejected: only widens the limit
       lo = mid;
@@ -109,8 +124,7 @@ Certificate HoldoutAnytime(const SampleCounts& counts, double delta) {
   c.notes.emplace_back(
       "anytime-valid: holds simultaneously for every hold-out size, so the hold-out set may "
       "grow and the certificate be recomputed any number of times at this failure "
-      "probability (beta-binomial mixture tuned for " +
-      std::to_string(kAnytimeTunedSampleCount) + " samples)");
+      "probability (beta-binomial mixture, its prior tuned for 100 to 1,000,000 samples)");
   if (!c.exact) {
     c.notes.emplace_back(
         "a term of the mixture could not be evaluated at this sample size; the limits were "
@@ -128,8 +142,7 @@ bool AnytimeUpperAtMost(std::uint64_t n, std::uint64_t k, double delta, double e
   // is rejected. Decided from the one value where it is clearly on one side
   // of the threshold; the limit itself is computed only in between.
   const double threshold = -std::log(delta);
-  const double log_m = AnytimeLogMartingaleUpper(
-      n, k, epsilon, AnytimePriorConcentration(delta, kAnytimeTunedSampleCount));
+  const double log_m = AnytimeLogMixtureUpper(n, k, epsilon, delta);
   if (!std::isnan(log_m)) {
     const double margin = 1e-9 * (1.0 + threshold);
     if (log_m >= threshold + margin) return true;
@@ -144,8 +157,7 @@ bool AnytimeLowerAbove(std::uint64_t n, std::uint64_t k, double delta, double ep
   // L = 1 - U(n, n - k) (one ulp down): L > epsilon iff the mirrored limit
   // is below 1 - epsilon, i.e. 1 - epsilon is rejected with room to spare.
   const double threshold = -std::log(delta);
-  const double log_m = AnytimeLogMartingaleUpper(
-      n, n - k, 1.0 - epsilon, AnytimePriorConcentration(delta, kAnytimeTunedSampleCount));
+  const double log_m = AnytimeLogMixtureUpper(n, n - k, 1.0 - epsilon, delta);
   if (!std::isnan(log_m)) {
     const double margin = 1e-9 * (1.0 + threshold);
     if (log_m >= threshold + margin) return true;

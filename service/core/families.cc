@@ -141,8 +141,8 @@ const std::array<FamilySpec, 16> kFamilies = {{
      kCompressionAssumptions, "evidence.compression", CapacityMeasure::kNone, false, HasCompression,
      [](const Evidence& e, double d) { return SampleCompression(*e.compression, d); }},
     {Family::kHoldoutAnytime, "holdout-anytime",
-     "Anytime-valid confidence sequence on a hold-out set (one-sided beta-binomial mixture, "
-     "tuned for 10000 samples): holds for every hold-out size at once",
+     "Anytime-valid confidence sequence on a hold-out set (one-sided beta-binomial mixture): "
+     "holds for every hold-out size at once",
      "Robbins (1970), mixtures of likelihood ratios; Ville (1939), maximal inequality; "
      "Howard, Ramdas, McAuliffe & Sekhon (2021), Ann. Statist. 49(2), one-sided mixture "
      "boundaries",

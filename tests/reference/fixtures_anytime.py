@@ -9,7 +9,9 @@ rate p0 and the prior Beta(c p0, c (1 - p0)) truncated to p < p0,
                  - k ln p0 - (n - k) ln(1 - p0)
                  - betaln(a, b) - ln betainc(a, b, p0),
 
-with a = c p0, b = c (1 - p0) and c = 10000 / (2 ln(1/delta) + ln(1 + 2 ln(1/delta))).
+with a = c p0, b = c (1 - p0) and c = n0 / (2 ln(1/delta) + ln(1 + 2 ln(1/delta)));
+the martingale inverted is the equal-weight mixture of the components
+n0 = 10^2, 10^3, 10^4, 10^5, 10^6 (scipy.special.logsumexp).
 The upper limit is the root of ln M_n(p0) = ln(1/delta) above k/n
 (scipy.optimize.brentq); the lower limit is 1 - upper(n, n - k) (the prior is
 symmetric under p <-> 1 - p). Here the two huge log terms are subtracted
@@ -27,12 +29,12 @@ import math
 
 from scipy import optimize, special, stats
 
-TUNED = 10000
+TUNED = (100, 1000, 10000, 100000, 1000000)
 
 
-def concentration(delta):
+def concentration(delta, tuned=10000):
     l = -math.log(delta)
-    return TUNED / (2 * l + math.log1p(2 * l))
+    return tuned / (2 * l + math.log1p(2 * l))
 
 
 def log_m_upper(n, k, p0, c):
@@ -42,14 +44,18 @@ def log_m_upper(n, k, p0, c):
     return num - den - k * math.log(p0) - (n - k) * math.log1p(-p0)
 
 
+def log_mixture(n, k, p0, delta):
+    terms = [log_m_upper(n, k, p0, concentration(delta, t)) for t in TUNED]
+    return float(special.logsumexp(terms) - math.log(len(TUNED)))
+
+
 def upper(n, k, delta):
     if k >= n:
         return 1.0
-    c = concentration(delta)
     t = -math.log(delta)
     lo = k / n if k > 0 else 1e-300
     hi = 1 - 1e-15
-    return optimize.brentq(lambda p: log_m_upper(n, k, p, c) - t, lo, hi,
+    return optimize.brentq(lambda p: log_mixture(n, k, p, delta) - t, lo, hi,
                            xtol=1e-300, rtol=1e-14, maxiter=1000)
 
 
@@ -70,13 +76,15 @@ def anytime():
 
 
 def martingale():
-    header = ["samples", "errors", "delta", "p0", "log_m"]
+    """ln M_n(p0) of the component tuned for 10^4 and of the mixture."""
+    header = ["samples", "errors", "delta", "p0", "log_m", "log_mixture"]
     rows = []
     for n, k, delta in [(1000, 50, 0.025), (10000, 500, 0.0125), (100, 0, 0.05)]:
         c = concentration(delta)
         for p0 in (0.01, 0.05, 0.06, 0.07, 0.1, 0.3):
             if p0 > k / n:
-                rows.append([n, k, delta, p0, log_m_upper(n, k, p0, c)])
+                rows.append([n, k, delta, p0, log_m_upper(n, k, p0, c),
+                             log_mixture(n, k, p0, delta)])
     return header, rows
 
 

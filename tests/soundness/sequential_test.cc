@@ -28,7 +28,9 @@ RerunResult RunCase(double p, std::uint64_t batch, std::uint64_t runs, RerunBoun
                                wrong == WrongVerdict::kPromote ? "PROMOTE" : "REJECT", r.exact,
                                r.simulated, r.standard_error);
   // The two computations agree (4 Monte-Carlo standard errors).
-  if (trials > 0) EXPECT_NEAR(r.simulated, r.exact, 4 * r.standard_error + 1e-12);
+  if (trials > 0) {
+    EXPECT_NEAR(r.simulated, r.exact, 4 * r.standard_error + 1e-12);
+  }
   return r;
 }
 
