@@ -53,8 +53,8 @@ namespace riskbound::core {
 // The sample sizes the mixture's components are tuned for, each with weight
 // 1/5 (valid at every size). Fixed in advance; the same for Certify and the
 // gate.
-inline constexpr std::array<std::uint64_t, 5> kAnytimeTunedSampleCounts = {
-    100, 1000, 10000, 100000, 1000000};
+inline constexpr std::array<std::uint64_t, 5> kAnytimeTunedSampleCounts = {100, 1000, 10000, 100000,
+                                                                           1000000};
 
 // AnytimePriorConcentration
 // c of the Beta(c p0, c (1 - p0)) prior for failure probability `delta` and
