@@ -10,6 +10,7 @@
 #include "boost/math/policies/policy.hpp"
 #include "boost/math/special_functions/beta.hpp"
 #include "boost/math/special_functions/gamma.hpp"
+#include "boost/math/tools/toms748_solve.hpp"
 
 namespace riskbound::core {
 namespace {
@@ -86,22 +87,61 @@ TailLimit AnytimeUpperLimit(std::uint64_t n, std::uint64_t k, double delta) {
     return out;
   }
   const double threshold = -std::log(delta);
+  // f(p0) = ln M_n(p0) - ln(1/delta): < 0 not rejected, >= 0 rejected. A term
+  // Boost.Math cannot evaluate counts as not rejected (only widens the limit).
+  const auto f = [&](double p0) {
+    const double log_m = AnytimeLogMixtureUpper(n, k, p0, delta);
+    if (std::isnan(log_m)) {
+      out.exact = false;
+      return -1.0;
+    }
+    return log_m - threshold;
+  };
   // M_n(k/n) <= 1 < 1/delta (k/n maximizes the likelihood): not rejected.
-  double lo = static_cast<double>(k) / static_cast<double>(n);
+  const double nd = static_cast<double>(n);
+  double lo = static_cast<double>(k) / nd;
   double hi = 1.0;  // rejected: the likelihood at 1 is 0 (k < n)
-  for (int step = 0; step < 400; ++step) {
-    if (hi - lo <= 1e-13 * hi || hi <= 1e-300) break;
+  double f_hi = kInf;
+  // ln M_n(k/n) <= 0, so f(k/n) <= -ln(1/delta): the right sign for the root
+  // finder (at k = 0, p0 = 0 itself cannot be evaluated).
+  double f_lo = -threshold;
+  // Bracket: steps growing from about one standard deviation above k/n, so
+  // the bracket is narrow from the start.
+  double step = std::sqrt(std::max(lo, 1.0 / nd) / nd) + 1.0 / nd;
+  while (lo + step < 1.0) {
+    const double x = lo + step;
+    const double fx = f(x);
+    if (fx >= 0.0) {
+      hi = x;
+      f_hi = fx;
+      break;
+    }
+    lo = x;
+    f_lo = fx;
+    step *= 2.0;
+  }
+  // Bisect while the rejected end is infinite (a density that underflows).
+  for (int i = 0; i < 200 && !std::isfinite(f_hi) && hi - lo > 1e-13 * hi; ++i) {
     const double mid = lo + (hi - lo) / 2.0;
     if (mid <= lo || mid >= hi) break;
-    const double log_m = AnytimeLogMixtureUpper(n, k, mid, delta);
-    if (std::isnan(log_m)) {
-      out.exact = false;  // counted as not rejected: only widens the limit
-      lo = mid;
-    } else if (log_m >= threshold) {
+    const double fm = f(mid);
+    if (fm >= 0.0) {
       hi = mid;
+      f_hi = fm;
     } else {
       lo = mid;
+      f_lo = fm;
     }
+  }
+  if (std::isfinite(f_hi) && hi - lo > 1e-13 * hi) {
+    // Alefeld, Potra & Shi's TOMS 748 bracketing root finder (Boost.Math):
+    // keeps a bracket [a, b] with f(a) < 0 <= f(b); b is the rejected end,
+    // reported (outward).
+    std::uintmax_t iterations = 200;
+    const auto bracket = boost::math::tools::toms748_solve(
+        f, lo, hi, f_lo, f_hi, boost::math::tools::eps_tolerance<double>(44), iterations,
+        Quiet());
+    hi = bracket.second;
   }
   out.value = hi;
   return out;

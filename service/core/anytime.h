@@ -34,8 +34,8 @@
 // (the hypothesis tested), never on the data.
 //
 // The integrals are Boost.Math's regularized incomplete beta functions
-// (ibeta / ibetac) and its ibeta_derivative, in log space; the limits are
-// found by bisection on M_n(p0) (not an incomplete-beta inverse), rounded
+// (ibeta) and its ibeta_derivative, in log space; the limits are roots of
+// ln M_n(p0) = ln(1/delta) (not an incomplete-beta inverse), rounded
 // outward. Pure functions; thread-safe.
 #ifndef RISKBOUND_SERVICE_CORE_ANYTIME_H_
 #define RISKBOUND_SERVICE_CORE_ANYTIME_H_
@@ -78,10 +78,12 @@ double AnytimeLogMixtureUpper(std::uint64_t n, std::uint64_t k, double p0, doubl
 // AnytimeUpperLimit
 // U_n = sup{p0 : M_n(p0) < 1/delta} for the mixture M_n of
 // AnytimeLogMixtureUpper:
-// P(true rate > U_n for some n) <= delta. k = n gives 1. Found by bisection
-// on [k/n, 1] to a width of 1e-13 relative (and 1e-300 absolute), reporting
-// the rejected end (outward); a term Boost.Math cannot evaluate counts as not
-// rejected, which only widens the limit (exact = false then).
+// P(true rate > U_n for some n) <= delta. k = n gives 1. Found by a bracket
+// grown from k/n, bisection while its rejected end is infinite, then
+// Boost.Math's TOMS 748 root finder (Alefeld, Potra & Shi 1995) to a width
+// of about 1e-13 relative, reporting the rejected end (outward); a term
+// Boost.Math cannot evaluate counts as not rejected, which only widens the
+// limit (exact = false then).
 // REQUIRES: 1 <= n, k <= n, 0 < delta < 1.
 TailLimit AnytimeUpperLimit(std::uint64_t n, std::uint64_t k, double delta);
 

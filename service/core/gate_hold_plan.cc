@@ -30,6 +30,10 @@ namespace {
 constexpr double kRejectionPlanCpuSeconds = 0.15;
 // The same for the paired champion-comparison plan (two limits per size).
 constexpr double kPairedPlanCpuSeconds = 0.05;
+// In sequential mode each anytime limit costs a root search on a five-term
+// mixture (anytime.h), some ten times a Clopper-Pearson limit: a plan of
+// 40,000 samples takes about a second.
+constexpr double kPairedAnytimePlanCpuSeconds = 2.0;
 // The paired plan's enumeration takes B and C one by one up to this many
 // standard deviations' worth of counts, in blocks of 1/kPairedGrid of a
 // standard deviation beyond (PairedPassProbability).
@@ -164,10 +168,19 @@ absl::StatusOr<std::uint64_t> PlanRejection(double epsilon, double p, double del
 // rounding of the terms, so the result never overstates the probability.
 // With `enough`, the sum stops once it is known to reach it or known to fall
 // short of it. Checks `budget` once per block; once spent it returns 1 (so a
-// search winds down) and the caller reports RESOURCE_EXHAUSTED.
+// search winds down) and the caller reports RESOURCE_EXHAUSTED. With
+// `anytime` (sequential mode) the limits are the anytime-valid ones of
+// anytime.h, as the gate computes them in that mode; they too grow with
+// their count, so the same intervals apply.
 double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, double t,
                              double delta, bool toward_promote, std::optional<double> enough,
-                             WorkBudget* budget) {
+                             WorkBudget* budget, bool anytime) {
+  const auto upper_limit = [anytime](std::uint64_t size, std::uint64_t k, double d) {
+    return anytime ? AnytimeUpperLimit(size, k, d).value : BinomialUpperLimit(size, k, d).value;
+  };
+  const auto lower_limit = [anytime](std::uint64_t size, std::uint64_t k, double d) {
+    return anytime ? AnytimeLowerLimit(size, k, d).value : BinomialLowerLimit(size, k, d).value;
+  };
   const double nd = static_cast<double>(n);
   const auto sd = [](std::uint64_t count, double p) {
     return std::sqrt(static_cast<double>(count) * p * (1.0 - p));
@@ -217,8 +230,7 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
   const auto c_limit = [&](std::uint64_t c) {
     double& v = c_limits[c - c_first];
     if (std::isnan(v)) {
-      v = toward_promote ? BinomialLowerLimit(n, c, half).value
-                         : BinomialUpperLimit(n, c, half).value;
+      v = toward_promote ? lower_limit(n, c, half) : upper_limit(n, c, half);
     }
     return v;
   };
@@ -250,8 +262,7 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
     const auto [c_lo0, c_hi0] = window(m, r);
     const std::uint64_t c_lo = std::max(c_lo0, c_first);
     const std::uint64_t c_hi = std::min(c_hi0, c_last);
-    const double b_limit = toward_promote ? BinomialUpperLimit(n, b, half).value
-                                          : BinomialLowerLimit(n, b, half).value;
+    const double b_limit = toward_promote ? upper_limit(n, b, half) : lower_limit(n, b, half);
     const auto settles = [&](std::uint64_t c) {
       const double difference = std::clamp(b_limit - c_limit(c), -1.0, 1.0);
       return toward_promote ? difference <= t : difference > t;
@@ -315,9 +326,13 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
 // The probability is not monotone in n (the limits move in steps), so the
 // answer may lie a little above the smallest such n; the n returned always
 // reaches pass (checked by the enumeration itself, never by the guess).
+// With `anytime` (sequential mode) the enumeration uses the anytime limits
+// and the guess is scaled by 3.5, about the square of their width ratio
+// (docs/gate.md).
 absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double t,
                                                    double delta_upper, double delta_lower,
-                                                   double pass, const StopToken& stop) {
+                                                   double pass, const StopToken& stop,
+                                                   bool anytime) {
   const double rate_b =
       static_cast<double>(p.only_challenger_wrong_count) / static_cast<double>(p.sample_count);
   const double rate_c =
@@ -335,12 +350,13 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
                                2.0 * rate_b * rate_c);
   const double root = std::max(0.0, z_half * (s_b + s_c) + z_pass * s_d) /
                       std::fabs(observed - t);
-  const double guess_n = std::clamp(root * root, 1.0, static_cast<double>(kMaxSampleCount));
+  const double guess_n = std::clamp(root * root * (anytime ? 3.5 : 1.0), 1.0,
+                                    static_cast<double>(kMaxSampleCount));
   const std::uint64_t held = p.sample_count;
   const std::uint64_t guess = std::max(held, static_cast<std::uint64_t>(guess_n));
   const std::uint64_t step = std::max<std::uint64_t>(1, guess / 256);
   const std::uint64_t last = (kMaxSampleCount - held) / step;
-  WorkBudget budget(kPairedPlanCpuSeconds);
+  WorkBudget budget(anytime ? kPairedAnytimePlanCpuSeconds : kPairedPlanCpuSeconds);
   bool stopped = false;
   const std::function<bool(std::uint64_t)> reaches = [&](std::uint64_t j) {
     if (stopped || stop.StopRequested()) {
@@ -349,7 +365,8 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
     }
     if (budget.Spent()) return true;
     const std::uint64_t n = held + j * step;
-    return PairedPassProbability(n, rate_b, rate_c, t, delta, toward_promote, pass, &budget) >=
+    return PairedPassProbability(n, rate_b, rate_c, t, delta, toward_promote, pass, &budget,
+                                 anytime) >=
            pass;
   };
   absl::StatusOr<std::uint64_t> j = SmallestSatisfying(0, last, reaches, (guess - held) / step);
@@ -465,12 +482,6 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
 absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
     const ChampionComparison& champion, const Measured& m, double pass, const StopToken& stop,
     HoldPlan* plan) {
-  if (m.sequential) {
-    plan->reasons.push_back(
-        "no plan for the champion comparison in sequential mode (the paired plan is computed "
-        "for fixed-size limits only); re-run the gate as the shared hold-out set grows");
-    return std::optional<std::uint64_t>();
-  }
   if (!champion.paired.has_value()) {
     plan->reasons.push_back(
         "no plan for the unpaired champion comparison: score both models on one shared "
@@ -479,7 +490,7 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
   }
   absl::StatusOr<std::uint64_t> n =
       PlanPairedComparison(*champion.paired, m.tolerance, m.split.difference_upper,
-                           m.split.difference_lower, pass, stop);
+                           m.split.difference_lower, pass, stop, m.sequential);
   if (stop.StopRequested()) return stop.Status();
   if (n.ok()) {
     const std::uint64_t more = *n - std::min(*n, m.held);
@@ -488,7 +499,8 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
         " more shared hold-out samples (", *n,
         " in all) settle the champion comparison with probability at least ", Num(pass),
         " (the policy's plan pass probability; exact binomial enumeration of the disagreement "
-        "counts)"));
+        "counts",
+        m.sequential ? ", for the anytime-valid limits of sequential mode)" : ")"));
     return std::optional<std::uint64_t>(more);
   }
   if (n.status().code() == absl::StatusCode::kResourceExhausted) {

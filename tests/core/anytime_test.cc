@@ -87,8 +87,12 @@ TEST(AnytimeTest, LimitIsTheSupremumOfTheConfidenceSet) {
             EXPECT_GE(log_m, previous - 1e-9 * std::fabs(previous) - 1e-9) << p0;
           }
           previous = log_m;
-          if (p0 > u) EXPECT_GE(log_m, -std::log(delta)) << p0;
-          if (p0 < u * (1 - 1e-9)) EXPECT_LT(log_m, -std::log(delta)) << p0;
+          if (p0 > u) {
+            EXPECT_GE(log_m, -std::log(delta)) << p0;
+          }
+          if (p0 < u * (1 - 1e-9)) {
+            EXPECT_LT(log_m, -std::log(delta)) << p0;
+          }
         }
       }
     }

@@ -115,5 +115,27 @@ TEST(GateSequentialTest, PairedDifferenceUsesAnytimeLimits) {
   EXPECT_LE(d->spent_failure_probability, 0.05);
 }
 
+// The paired-comparison plan of a HOLD enumerates the anytime limits: it asks
+// for more samples than the fixed-size plan for the same counts (the limits
+// are wider), and says which limits it planned for.
+TEST(GateSequentialTest, PairedPlanIsForTheAnytimeLimits) {
+  ChampionComparison ch;
+  ch.champion_id = "model-r";
+  ch.paired = PairedCounts{20, 30, 20, 2000};
+  absl::StatusOr<GateDecision> seq =
+      DecideGate(Sequential(0.05, 0.05), Candidate(40, 2000), ch, StopToken::Never());
+  ASSERT_TRUE(seq.ok()) << seq.status();
+  ASSERT_EQ(seq->verdict, Verdict::kHold);
+  ASSERT_TRUE(seq->additional_sample_count.has_value());
+  EXPECT_THAT(seq->reasons, Contains(HasSubstr("for the anytime-valid limits of sequential mode")));
+  GatePolicy fixed = Sequential(0.05, 0.05);
+  fixed.sequential = false;
+  absl::StatusOr<GateDecision> fix = DecideGate(fixed, Candidate(40, 2000), ch, StopToken::Never());
+  ASSERT_TRUE(fix.ok()) << fix.status();
+  ASSERT_EQ(fix->verdict, Verdict::kHold);
+  ASSERT_TRUE(fix->additional_sample_count.has_value());
+  EXPECT_GT(*seq->additional_sample_count, *fix->additional_sample_count);
+}
+
 }  // namespace
 }  // namespace riskbound::core

@@ -10,7 +10,8 @@
 //   * exact: dynamic programming over the error count, convolving each
 //     batch's Bin(batch, p) (Boost.Math pmf) and removing the mass that
 //     crosses the look's threshold (brute force, no simulation error);
-//   * Monte-Carlo: that many simulated paths (std::mt19937_64).
+//   * Monte-Carlo: that many simulated paths (std::mt19937_64, each batch's
+//     count by inversion of its Boost.Math binomial CDF).
 // The thresholds are the gate's own decisions: the largest error count
 // whose upper limit is <= max_risk (numeric.h UpperLimitAtMost for
 // Clopper-Pearson, anytime.h AnytimeUpperAtMost), and the smallest whose

@@ -71,7 +71,9 @@ int main(int argc, char** argv) {
                "Boost.Math binomial pmf, mass below 1e-18 counted as wrong); 'simulated' is "
                "Monte-Carlo over T = "
             << trials
-            << " paths (std::mt19937_64), ± one standard error; '-' where only the exact value "
+            << " paths (std::mt19937_64; each batch's error count by inversion of its "
+               "Boost.Math binomial CDF, because libstdc++'s std::binomial_distribution is "
+               "biased at these parameters), ± one standard error; '-' where only the exact value "
                "is computed (10^4 looks or more per path). The thresholds are the gate's own "
                "decisions (the largest error count whose upper limit is <= max_risk, the "
                "smallest whose lower limit is > max_risk). Fixed-n is one-sided Clopper-Pearson "
