@@ -139,8 +139,7 @@ TailLimit AnytimeUpperLimit(std::uint64_t n, std::uint64_t k, double delta) {
     // reported (outward).
     std::uintmax_t iterations = 200;
     const auto bracket = boost::math::tools::toms748_solve(
-        f, lo, hi, f_lo, f_hi, boost::math::tools::eps_tolerance<double>(44), iterations,
-        Quiet());
+        f, lo, hi, f_lo, f_hi, boost::math::tools::eps_tolerance<double>(44), iterations, Quiet());
     hi = bracket.second;
   }
   out.value = hi;

@@ -172,9 +172,9 @@ absl::StatusOr<std::uint64_t> PlanRejection(double epsilon, double p, double del
 // `anytime` (sequential mode) the limits are the anytime-valid ones of
 // anytime.h, as the gate computes them in that mode; they too grow with
 // their count, so the same intervals apply.
-double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, double t,
-                             double delta, bool toward_promote, std::optional<double> enough,
-                             WorkBudget* budget, bool anytime) {
+double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, double t, double delta,
+                             bool toward_promote, std::optional<double> enough, WorkBudget* budget,
+                             bool anytime) {
   const auto upper_limit = [anytime](std::uint64_t size, std::uint64_t k, double d) {
     return anytime ? AnytimeUpperLimit(size, k, d).value : BinomialUpperLimit(size, k, d).value;
   };
@@ -350,8 +350,8 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
                                2.0 * rate_b * rate_c);
   const double root = std::max(0.0, z_half * (s_b + s_c) + z_pass * s_d) /
                       std::fabs(observed - t);
-  const double guess_n = std::clamp(root * root * (anytime ? 3.5 : 1.0), 1.0,
-                                    static_cast<double>(kMaxSampleCount));
+  const double guess_n =
+      std::clamp(root * root * (anytime ? 3.5 : 1.0), 1.0, static_cast<double>(kMaxSampleCount));
   const std::uint64_t held = p.sample_count;
   const std::uint64_t guess = std::max(held, static_cast<std::uint64_t>(guess_n));
   const std::uint64_t step = std::max<std::uint64_t>(1, guess / 256);
@@ -366,8 +366,7 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
     if (budget.Spent()) return true;
     const std::uint64_t n = held + j * step;
     return PairedPassProbability(n, rate_b, rate_c, t, delta, toward_promote, pass, &budget,
-                                 anytime) >=
-           pass;
+                                 anytime) >= pass;
   };
   absl::StatusOr<std::uint64_t> j = SmallestSatisfying(0, last, reaches, (guess - held) / step);
   if (stopped) return stop.Status();
@@ -479,9 +478,9 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
 
 // The champion comparison's plan (paired comparisons only), at the plan
 // pass probability `pass`.
-absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
-    const ChampionComparison& champion, const Measured& m, double pass, const StopToken& stop,
-    HoldPlan* plan) {
+absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(const ChampionComparison& champion,
+                                                            const Measured& m, double pass,
+                                                            const StopToken& stop, HoldPlan* plan) {
   if (!champion.paired.has_value()) {
     plan->reasons.push_back(
         "no plan for the unpaired champion comparison: score both models on one shared "
