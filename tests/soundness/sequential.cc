@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <random>
+#include <unordered_map>
 
 #include "boost/math/distributions/binomial.hpp"
 #include "service/core/anytime.h"
@@ -133,6 +134,64 @@ RerunResult RunRerun(const RerunSetup& s, std::int64_t trials, std::uint64_t see
         }
       }
     }
+    out.simulated = static_cast<double>(out.hits) / static_cast<double>(trials);
+    out.standard_error =
+        std::sqrt(std::max(out.simulated * (1 - out.simulated), 1.0 / static_cast<double>(trials)) /
+                  static_cast<double>(trials));
+  }
+  return out;
+}
+
+PairedRerunResult RunPairedRerun(const PairedRerunSetup& s, std::int64_t trials,
+                                 std::uint64_t seed) {
+  PairedRerunResult out;
+  out.setup = s;
+  out.trials = trials;
+  const double half = s.share / 2.0;
+  // Limits per (run, count), computed on first use.
+  std::unordered_map<std::uint64_t, double> upper_b, lower_c;
+  const std::uint64_t stride = s.batch * s.runs + 1;
+  const auto upper = [&](std::uint64_t r, std::uint64_t n, std::uint64_t b) {
+    auto [it, fresh] = upper_b.try_emplace(r * stride + b, 0.0);
+    if (fresh) {
+      it->second = s.bound == RerunBound::kAnytime ? core::AnytimeUpperLimit(n, b, half).value
+                                                   : core::BinomialUpperLimit(n, b, half).value;
+    }
+    return it->second;
+  };
+  const auto lower = [&](std::uint64_t r, std::uint64_t n, std::uint64_t c) {
+    auto [it, fresh] = lower_c.try_emplace(r * stride + c, 0.0);
+    if (fresh) {
+      it->second = s.bound == RerunBound::kAnytime ? core::AnytimeLowerLimit(n, c, half).value
+                                                   : core::BinomialLowerLimit(n, c, half).value;
+    }
+    return it->second;
+  };
+  std::seed_seq seq{seed, s.batch, s.runs, static_cast<std::uint64_t>(s.only_challenger_rate * 1e9),
+                    static_cast<std::uint64_t>(s.only_champion_rate * 1e9)};
+  std::mt19937_64 rng(seq);
+  std::uniform_real_distribution<double> uniform(0.0, 1.0);
+  const double pb = s.only_challenger_rate;
+  const double pbc = s.only_challenger_rate + s.only_champion_rate;
+  for (std::int64_t i = 0; i < trials; ++i) {
+    std::uint64_t b = 0, c = 0;
+    for (std::uint64_t r = 1; r <= s.runs; ++r) {
+      for (std::uint64_t j = 0; j < s.batch; ++j) {
+        const double u = uniform(rng);
+        if (u < pb) {
+          ++b;
+        } else if (u < pbc) {
+          ++c;
+        }
+      }
+      const std::uint64_t n = r * s.batch;
+      if (upper(r, n, b) - lower(r, n, c) <= s.max_regression) {
+        ++out.hits;
+        break;
+      }
+    }
+  }
+  if (trials > 0) {
     out.simulated = static_cast<double>(out.hits) / static_cast<double>(trials);
     out.standard_error =
         std::sqrt(std::max(out.simulated * (1 - out.simulated), 1.0 / static_cast<double>(trials)) /

@@ -63,6 +63,36 @@ RerunResult RunRerun(const RerunSetup& s, std::int64_t trials, std::uint64_t see
 
 std::string BoundName(RerunBound b);
 
+// The champion comparison under re-runs: both models scored on the growing
+// shared hold-out set; each sample is "only the candidate wrong" (B) with
+// probability only_challenger_rate, "only the champion wrong" (C) with
+// only_champion_rate, else neither. The true difference is their
+// difference; when it exceeds max_regression, a comparison that passes
+// (difference upper bound DU <= max_regression) at any run is wrong. DU is
+// the gate's pair: upper limit on B/n minus lower limit on C/n, each at half
+// of `share` (the gate's difference share, delta/4). Monte-Carlo only (each
+// sample drawn with one uniform); limits computed once per (run, count).
+struct PairedRerunSetup {
+  double only_challenger_rate = 0.0105;
+  double only_champion_rate = 0.01;
+  double max_regression = 0.0;
+  double share = 0.0125;
+  std::uint64_t batch = 250;
+  std::uint64_t runs = 80;
+  RerunBound bound = RerunBound::kAnytime;
+};
+
+struct PairedRerunResult {
+  PairedRerunSetup setup;
+  std::int64_t trials = 0;
+  std::int64_t hits = 0;
+  double simulated = 0.0;
+  double standard_error = 0.0;
+};
+
+PairedRerunResult RunPairedRerun(const PairedRerunSetup& s, std::int64_t trials,
+                                 std::uint64_t seed);
+
 }  // namespace riskbound::soundness
 
 #endif  // RISKBOUND_TESTS_SOUNDNESS_SEQUENTIAL_H_
