@@ -199,6 +199,21 @@ std::vector<WorstCase> Cases() {
                      champion.paired = PairedCounts{k - k / 2, k / 2, k / 2, n};
                      benchmark::DoNotOptimize(DecideGate(policy, c, champion));
                    }});
+  cases.push_back({"DecideGate",
+                   "sequential mode: paired champion, rate a hair below max_risk (anytime "
+                   "HOLD plans: risk over 2^40, champion over its 2 s budget), pass 0.999999",
+                   [] {
+                     GatePolicy policy;
+                     policy.sequential = true;
+                     policy.plan_pass_probability = 0.999999;
+                     GateCandidate c;
+                     c.id = "candidate";
+                     c.evidence.holdout = SampleCounts{49'999, 1'000'000};
+                     ChampionComparison champion;
+                     champion.champion_id = "champion";
+                     champion.paired = PairedCounts{25'000, 25'001, 24'999, 1'000'000};
+                     benchmark::DoNotOptimize(DecideGate(policy, c, champion));
+                   }});
   cases.push_back({"EstimateCapacity",
                    "relu network given by 1 000 layer widths (the request limit) of 1 000",
                    [] {

@@ -42,6 +42,7 @@ std::optional<std::string> ApplyPolicyFlags(const ParsedArgs& args, v1::GatePoli
   auto min_count = args.GetUint64("min-holdout-sample-count");
   if (!min_count.ok()) return std::string(min_count.status().message());
   if (min_count->has_value()) policy->set_min_holdout_sample_count(**min_count);
+  if (args.Has("sequential")) policy->set_sequential(true);
   if (args.Has("allowed-families")) {
     policy->clear_allowed_families();
     for (const std::string& name : args.GetList("allowed-families")) {
@@ -58,16 +59,28 @@ std::optional<std::string> ApplyPolicyFlags(const ParsedArgs& args, v1::GatePoli
 std::vector<OptionSpec> PolicyFlagSpecs() {
   return {
       {"max-risk", "E", "highest tolerated true error, in (0,1) (policy.max_risk)"},
-      {"failure-probability", "D", "delta of the whole verdict, in (0,1) "
-                                   "(policy.failure_probability)", false, {"delta"}},
-      {"max-regression", "T", "tolerated candidate-minus-champion error, in [-1,1], default 0 "
-                              "(policy.max_regression)"},
-      {"min-holdout-sample-count", "N", "fewer hold-out samples: HOLD (policy."
-                                        "min_holdout_sample_count)"},
-      {"plan-pass-probability", "Q", "for a HOLD, the probability the extra samples settle it, "
-                                     "default 0.8 (policy.plan_pass_probability)"},
-      {"allowed-families", "NAME[,NAME]", "families the risk bound may use, CLI words or enum "
-                                          "names (policy.allowed_families)", true},
+      {"failure-probability",
+       "D",
+       "delta of the whole verdict, in (0,1) "
+       "(policy.failure_probability)",
+       false,
+       {"delta"}},
+      {"max-regression", "T",
+       "tolerated candidate-minus-champion error, in [-1,1], default 0 "
+       "(policy.max_regression)"},
+      {"min-holdout-sample-count", "N",
+       "fewer hold-out samples: HOLD (policy."
+       "min_holdout_sample_count)"},
+      {"plan-pass-probability", "Q",
+       "for a HOLD, the probability the extra samples settle it, "
+       "default 0.8 (policy.plan_pass_probability)"},
+      {"sequential", "",
+       "anytime-valid bounds, for a gate re-run as the hold-out set grows "
+       "(policy.sequential)"},
+      {"allowed-families", "NAME[,NAME]",
+       "families the risk bound may use, CLI words or enum "
+       "names (policy.allowed_families)",
+       true},
   };
 }
 
@@ -92,7 +105,8 @@ constexpr char kSummary[] =
     "  --policy     riskbound.v1.GatePolicy: max_risk (epsilon, in (0,1)), failure_probability\n"
     "               (delta, in (0,1)), allowed_families, min_holdout_sample_count,\n"
     "               max_regression (tolerated candidate-minus-champion error, in [-1,1]),\n"
-    "               plan_pass_probability (default 0.8)\n"
+    "               plan_pass_probability (default 0.8), sequential (true: anytime-valid\n"
+    "               bounds for a gate re-run as the hold-out set grows)\n"
     "  --candidate  riskbound.v1.GateCandidate: id and evidence (as for certify)\n"
     "  --champion   riskbound.v1.ChampionComparison: champion_id and either paired counts on\n"
     "               the candidate's hold-out set (both_wrong_count, only_champion_wrong_count,\n"
@@ -361,6 +375,8 @@ void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostr
                            req.champion().has_paired() ? "paired, same hold-out set"
                                                        : "unpaired: weaker comparison");
   }
+  if (policy.sequential())
+    out << "\nsequential mode: anytime-valid bounds, valid over re-runs on a growing hold-out set";
   out << "\n\nReasons:\n";
   for (const std::string& reason : r.reasons()) out << "  * " << reason << "\n";
 
@@ -372,7 +388,8 @@ void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostr
                   absl::StrCat("max_risk ", FormatInput(epsilon)),
                   c.risk_upper_bound() <= epsilon ? "at or below: passes" : "above"});
   if (r.has_risk_lower_bound()) {
-    numbers.AddRow({"true error, lower bound (Clopper-Pearson)",
+    numbers.AddRow({policy.sequential() ? "true error, lower bound (holdout-anytime)"
+                                        : "true error, lower bound (Clopper-Pearson)",
                     FormatLower(r.risk_lower_bound()),
                     absl::StrCat("max_risk ", FormatInput(epsilon)),
                     r.risk_lower_bound() > epsilon ? "above: fails" : "not above"});

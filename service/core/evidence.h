@@ -163,6 +163,7 @@ enum class Family {
   kPacBayesCatoni = 13,
   kRademacher = 14,
   kSampleCompression = 15,
+  kHoldoutAnytime = 16,
 };
 
 // The range [loss_min, loss_max] of a bounded loss. API: LossRange.

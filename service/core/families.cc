@@ -6,6 +6,7 @@
 
 #include "absl/strings/str_join.h"
 
+#include "service/core/anytime.h"
 #include "service/core/bounded_loss.h"
 #include "service/core/compression.h"
 #include "service/core/finite_class.h"
@@ -57,7 +58,7 @@ constexpr char kCompressionAssumptions[] =
     "sample was seen and the model rebuilt from the compression set alone; 0-1 "
     "loss; errors counted only outside the compression set";
 
-const std::array<FamilySpec, 15> kFamilies = {{
+const std::array<FamilySpec, 16> kFamilies = {{
     {Family::kHoldoutExactBinomial, "holdout-binomial",
      "Exact binomial tail inversion (one-sided Clopper-Pearson) on a hold-out set",
      "Clopper & Pearson (1934); Langford (2005), test-set bound", kHoldoutAssumptions,
@@ -139,6 +140,17 @@ const std::array<FamilySpec, 15> kFamilies = {{
      "Floyd & Warmuth (1995)",
      kCompressionAssumptions, "evidence.compression", CapacityMeasure::kNone, false, HasCompression,
      [](const Evidence& e, double d) { return SampleCompression(*e.compression, d); }},
+    {Family::kHoldoutAnytime, "holdout-anytime",
+     "Anytime-valid confidence sequence on a hold-out set (one-sided beta-binomial mixture): "
+     "holds for every hold-out size at once",
+     "Robbins (1970), mixtures of likelihood ratios; Ville (1939), maximal inequality; "
+     "Howard, Ramdas, McAuliffe & Sekhon (2021), Ann. Statist. 49(2), one-sided mixture "
+     "boundaries",
+     "hold-out examples drawn i.i.d. from the deployment distribution after the model (and "
+     "every threshold) was fixed; 0-1 loss; the hold-out set may grow and the bound be "
+     "recomputed after every batch (any number of looks, stopping whenever)",
+     "evidence.holdout", CapacityMeasure::kNone, false, HasHoldout,
+     [](const Evidence& e, double d) { return HoldoutAnytime(*e.holdout, d); }},
 }};
 
 }  // namespace

@@ -10,6 +10,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
+#include "service/core/anytime.h"
 #include "service/core/certify.h"
 #include "service/core/delta_split.h"
 #include "service/core/families.h"
@@ -28,7 +29,9 @@ Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_ch
   for (const std::optional<Family>& f : policy.allowed_families) {
     if (f.has_value()) listed.push_back(*f);
   }
-  if (policy.allowed_families.empty()) listed.push_back(Family::kHoldoutExactBinomial);
+  if (policy.allowed_families.empty()) {
+    listed.push_back(policy.sequential ? Family::kHoldoutAnytime : Family::kHoldoutExactBinomial);
+  }
   for (Family f : listed) {
     const FamilySpec* spec = FindFamily(f);
     if (spec == nullptr) continue;
@@ -213,15 +216,23 @@ Measured Measure(const GatePolicy& policy, const Evidence& evidence,
   m.upper_family_name = std::string(split.families[tightest]->family_name);
   m.upper_family_count = certs.size();
 
-  // Risk lower bound: Clopper-Pearson on the hold-out counts.
+  // Risk lower bound: Clopper-Pearson on the hold-out counts, or in
+  // sequential mode the anytime-valid lower limit (anytime.h).
+  m.sequential = policy.sequential;
   if (evidence.holdout.has_value()) {
-    const Certificate low = HoldoutExactBinomial(*evidence.holdout, split.risk_lower);
+    const Family lower_family =
+        policy.sequential ? Family::kHoldoutAnytime : Family::kHoldoutExactBinomial;
+    const Certificate low = policy.sequential
+                                ? HoldoutAnytime(*evidence.holdout, split.risk_lower)
+                                : HoldoutExactBinomial(*evidence.holdout, split.risk_lower);
     m.risk_lower_bound = low.risk_lower_bound.value_or(0.0);
     d->delta_ledger.push_back(
-        DeltaSpend{"risk lower bound: holdout-binomial (Clopper-Pearson)", split.risk_lower});
-    if (std::find(d->families_used.begin(), d->families_used.end(),
-                  Family::kHoldoutExactBinomial) == d->families_used.end()) {
-      d->families_used.push_back(Family::kHoldoutExactBinomial);
+        DeltaSpend{policy.sequential ? "risk lower bound: holdout-anytime (anytime-valid)"
+                                     : "risk lower bound: holdout-binomial (Clopper-Pearson)",
+                   split.risk_lower});
+    if (std::find(d->families_used.begin(), d->families_used.end(), lower_family) ==
+        d->families_used.end()) {
+      d->families_used.push_back(lower_family);
     }
   }
 
@@ -231,7 +242,46 @@ Measured Measure(const GatePolicy& policy, const Evidence& evidence,
   m.tolerance = policy.max_regression.value_or(0.0);
   m.tolerance_given = policy.max_regression.has_value();
   TailLimit du, dl;
-  if (champion->paired.has_value()) {
+  if (policy.sequential) {
+    // Anytime-valid pairs: each one-sided limit at half the share (anytime.h),
+    // the same union bound as the fixed-size pairs of paired.h.
+    const auto up = [](std::uint64_t n, std::uint64_t k, double delta) {
+      return AnytimeUpperLimit(n, k, delta).value;
+    };
+    const auto low = [](std::uint64_t n, std::uint64_t k, double delta) {
+      return AnytimeLowerLimit(n, k, delta).value;
+    };
+    const double hu = split.difference_upper / 2.0;
+    const double hl = split.difference_lower / 2.0;
+    std::string kind;
+    if (champion->paired.has_value()) {
+      const PairedCounts& p = *champion->paired;
+      m.paired = true;
+      const std::uint64_t n = p.sample_count;
+      du.value = up(n, p.only_challenger_wrong_count, hu) - low(n, p.only_champion_wrong_count, hu);
+      dl.value = low(n, p.only_challenger_wrong_count, hl) - up(n, p.only_champion_wrong_count, hl);
+      m.comparison_how = absl::StrCat("paired anytime-valid pair on ", n,
+                                      " shared hold-out samples: only the candidate wrong on ",
+                                      p.only_challenger_wrong_count,
+                                      ", only the champion wrong on ", p.only_champion_wrong_count);
+      m.mcnemar_p_value =
+          McNemarExactOneSidedPValue(p.only_challenger_wrong_count, p.only_champion_wrong_count);
+      kind = "paired anytime-valid pair";
+    } else {
+      const SampleCounts& ch = *champion->champion_holdout;
+      const SampleCounts& ca = *evidence.holdout;
+      du.value = up(ca.sample_count, ca.error_count, hu) - low(ch.sample_count, ch.error_count, hu);
+      dl.value = low(ca.sample_count, ca.error_count, hl) - up(ch.sample_count, ch.error_count, hl);
+      m.comparison_how =
+          absl::StrCat("separate anytime-valid limits: candidate ", ca.error_count, "/",
+                       ca.sample_count, ", champion ", ch.error_count, "/", ch.sample_count);
+      kind = "unpaired anytime-valid limits";
+    }
+    d->delta_ledger.push_back(
+        DeltaSpend{absl::StrCat("difference upper bound: ", kind), split.difference_upper});
+    d->delta_ledger.push_back(
+        DeltaSpend{absl::StrCat("difference lower bound: ", kind), split.difference_lower});
+  } else if (champion->paired.has_value()) {
     const PairedCounts& p = *champion->paired;
     m.paired = true;
     du = PairedDifferenceUpper(p, split.difference_upper);
@@ -300,6 +350,13 @@ bool CheckGatePolicy(const GatePolicy& policy, const std::string& prefix,
       families_ok = false;
     } else if (!seen.insert(spec->family).second) {
       v->push_back({field, absl::StrCat(spec->family_name, " is listed twice")});
+      families_ok = false;
+    } else if (policy.sequential && spec->evidence_needed == "evidence.holdout" &&
+               spec->family != Family::kHoldoutAnytime) {
+      v->push_back({field, absl::StrCat(spec->family_name,
+                                        " holds for one look at one hold-out size, not over "
+                                        "re-runs on a growing set: with ",
+                                        prefix, ".sequential use holdout-anytime")});
       families_ok = false;
     } else if (spec->bounds_expected_loss) {
       // Their certificates bound an expected loss in the loss's own units;

@@ -82,6 +82,11 @@ struct GatePolicy {
   // a HOLD should settle the verdict (a power calculation, plan.h). nullopt:
   // kDefaultPlanPassProbability.
   std::optional<double> plan_pass_probability;
+  // Sequential mode: every hold-out bound is anytime-valid (anytime.h), so
+  // re-running the gate on a growing hold-out set keeps both promises.
+  // allowed_families may then name no fixed-size hold-out family; empty
+  // means holdout-anytime.
+  bool sequential = false;
 };
 
 // The plan pass probability used when the policy leaves it unset.

@@ -14,6 +14,7 @@
 #include "boost/math/distributions/binomial.hpp"
 #include "boost/math/distributions/normal.hpp"
 #include "boost/math/policies/policy.hpp"
+#include "service/core/anytime.h"
 #include "service/core/certify.h"
 #include "service/core/gate_internal.h"
 #include "service/core/numeric.h"
@@ -29,6 +30,10 @@ namespace {
 constexpr double kRejectionPlanCpuSeconds = 0.15;
 // The same for the paired champion-comparison plan (two limits per size).
 constexpr double kPairedPlanCpuSeconds = 0.08;
+// In sequential mode each anytime limit costs a root search on a five-term
+// mixture (anytime.h), some ten times a Clopper-Pearson limit: a plan of
+// 40,000 samples takes about a second.
+constexpr double kPairedAnytimePlanCpuSeconds = 2.0;
 // The paired plan's enumeration takes B and C one by one up to this many
 // standard deviations' worth of counts, in blocks of 1/kPairedGrid of a
 // standard deviation beyond (PairedPassProbability).
@@ -163,10 +168,19 @@ absl::StatusOr<std::uint64_t> PlanRejection(double epsilon, double p, double del
 // rounding of the terms, so the result never overstates the probability.
 // With `enough`, the sum stops once it is known to reach it or known to fall
 // short of it. Checks `budget` once per block; once spent it returns 1 (so a
-// search winds down) and the caller reports RESOURCE_EXHAUSTED.
-double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, double t,
-                             double delta, bool toward_promote, std::optional<double> enough,
-                             WorkBudget* budget) {
+// search winds down) and the caller reports RESOURCE_EXHAUSTED. With
+// `anytime` (sequential mode) the limits are the anytime-valid ones of
+// anytime.h, as the gate computes them in that mode; they too grow with
+// their count, so the same intervals apply.
+double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, double t, double delta,
+                             bool toward_promote, std::optional<double> enough, WorkBudget* budget,
+                             bool anytime) {
+  const auto upper_limit = [anytime](std::uint64_t size, std::uint64_t k, double d) {
+    return anytime ? AnytimeUpperLimit(size, k, d).value : BinomialUpperLimit(size, k, d).value;
+  };
+  const auto lower_limit = [anytime](std::uint64_t size, std::uint64_t k, double d) {
+    return anytime ? AnytimeLowerLimit(size, k, d).value : BinomialLowerLimit(size, k, d).value;
+  };
   const double nd = static_cast<double>(n);
   const auto sd = [](std::uint64_t count, double p) {
     return std::sqrt(static_cast<double>(count) * p * (1.0 - p));
@@ -216,8 +230,7 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
   const auto c_limit = [&](std::uint64_t c) {
     double& v = c_limits[c - c_first];
     if (std::isnan(v)) {
-      v = toward_promote ? BinomialLowerLimit(n, c, half).value
-                         : BinomialUpperLimit(n, c, half).value;
+      v = toward_promote ? lower_limit(n, c, half) : upper_limit(n, c, half);
     }
     return v;
   };
@@ -249,8 +262,7 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
     const auto [c_lo0, c_hi0] = window(m, r);
     const std::uint64_t c_lo = std::max(c_lo0, c_first);
     const std::uint64_t c_hi = std::min(c_hi0, c_last);
-    const double b_limit = toward_promote ? BinomialUpperLimit(n, b, half).value
-                                          : BinomialLowerLimit(n, b, half).value;
+    const double b_limit = toward_promote ? upper_limit(n, b, half) : lower_limit(n, b, half);
     const auto settles = [&](std::uint64_t c) {
       const double difference = std::clamp(b_limit - c_limit(c), -1.0, 1.0);
       return toward_promote ? difference <= t : difference > t;
@@ -314,9 +326,13 @@ double PairedPassProbability(std::uint64_t n, double rate_b, double rate_c, doub
 // The probability is not monotone in n (the limits move in steps), so the
 // answer may lie a little above the smallest such n; the n returned always
 // reaches pass (checked by the enumeration itself, never by the guess).
+// With `anytime` (sequential mode) the enumeration uses the anytime limits
+// and the guess is scaled by 3.5, about the square of their width ratio
+// (docs/gate.md).
 absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double t,
                                                    double delta_upper, double delta_lower,
-                                                   double pass, const StopToken& stop) {
+                                                   double pass, const StopToken& stop,
+                                                   bool anytime) {
   const double rate_b =
       static_cast<double>(p.only_challenger_wrong_count) / static_cast<double>(p.sample_count);
   const double rate_c =
@@ -334,12 +350,13 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
                                2.0 * rate_b * rate_c);
   const double root = std::max(0.0, z_half * (s_b + s_c) + z_pass * s_d) /
                       std::fabs(observed - t);
-  const double guess_n = std::clamp(root * root, 1.0, static_cast<double>(kMaxSampleCount));
+  const double guess_n =
+      std::clamp(root * root * (anytime ? 3.5 : 1.0), 1.0, static_cast<double>(kMaxSampleCount));
   const std::uint64_t held = p.sample_count;
   const std::uint64_t guess = std::max(held, static_cast<std::uint64_t>(guess_n));
   const std::uint64_t step = std::max<std::uint64_t>(1, guess / 256);
   const std::uint64_t last = (kMaxSampleCount - held) / step;
-  WorkBudget budget(kPairedPlanCpuSeconds);
+  WorkBudget budget(anytime ? kPairedAnytimePlanCpuSeconds : kPairedPlanCpuSeconds);
   bool stopped = false;
   const std::function<bool(std::uint64_t)> reaches = [&](std::uint64_t j) {
     if (stopped || stop.StopRequested()) {
@@ -348,8 +365,8 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
     }
     if (budget.Spent()) return true;
     const std::uint64_t n = held + j * step;
-    return PairedPassProbability(n, rate_b, rate_c, t, delta, toward_promote, pass, &budget) >=
-           pass;
+    return PairedPassProbability(n, rate_b, rate_c, t, delta, toward_promote, pass, &budget,
+                                 anytime) >= pass;
   };
   absl::StatusOr<std::uint64_t> j = SmallestSatisfying(0, last, reaches, (guess - held) / step);
   if (stopped) return stop.Status();
@@ -380,6 +397,36 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
   const std::string rate_words = evidence.holdout.has_value()
                                      ? "the observed hold-out error rate"
                                      : "the training error rate (no hold-out counts yet)";
+  if (policy.sequential) {
+    const bool has_anytime =
+        std::any_of(next.families.begin(), next.families.end(),
+                    [](const FamilySpec* s) { return s->family == Family::kHoldoutAnytime; });
+    if (!has_anytime) {
+      plan->reasons.push_back(
+          "no hold-out plan: the policy does not allow the anytime-valid hold-out bound");
+      return std::optional<std::uint64_t>();
+    }
+    const bool promote = rate < epsilon;
+    absl::StatusOr<std::uint64_t> n =
+        PlanAnytime(epsilon, rate, promote ? next.per_family : next.risk_lower, pass, m.held, stop);
+    if (stop.StopRequested()) return stop.Status();
+    if (n.ok()) {
+      const std::uint64_t more = *n - std::min(*n, m.held);
+      plan->reasons.push_back(
+          absl::StrCat("if the error rate stays near ", rate_words, " ", Num(rate), ", about ",
+                       more, " more labelled hold-out samples (", *n, " in all) give ",
+                       promote ? "a PROMOTE" : "a REJECT", " on risk with probability at least ",
+                       Num(pass), " under the anytime-valid bounds (sequential mode)"));
+      return std::optional<std::uint64_t>(more);
+    }
+    plan->reasons.push_back(absl::StrCat(
+        rate_words, " ", Num(rate),
+        promote || rate > epsilon
+            ? " is too close to the threshold: no hold-out size up to 2^40 is expected to "
+              "settle the risk test under the anytime-valid bounds"
+            : " is at the threshold: no hold-out size is expected to settle the risk test"));
+    return std::optional<std::uint64_t>();
+  }
   if (!has_binomial) {
     plan->reasons.push_back(
         "no hold-out plan: the policy does not allow the hold-out exact binomial bound");
@@ -431,9 +478,9 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
 
 // The champion comparison's plan (paired comparisons only), at the plan
 // pass probability `pass`.
-absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
-    const ChampionComparison& champion, const Measured& m, double pass, const StopToken& stop,
-    HoldPlan* plan) {
+absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(const ChampionComparison& champion,
+                                                            const Measured& m, double pass,
+                                                            const StopToken& stop, HoldPlan* plan) {
   if (!champion.paired.has_value()) {
     plan->reasons.push_back(
         "no plan for the unpaired champion comparison: score both models on one shared "
@@ -442,7 +489,7 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
   }
   absl::StatusOr<std::uint64_t> n =
       PlanPairedComparison(*champion.paired, m.tolerance, m.split.difference_upper,
-                           m.split.difference_lower, pass, stop);
+                           m.split.difference_lower, pass, stop, m.sequential);
   if (stop.StopRequested()) return stop.Status();
   if (n.ok()) {
     const std::uint64_t more = *n - std::min(*n, m.held);
@@ -451,7 +498,8 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(
         " more shared hold-out samples (", *n,
         " in all) settle the champion comparison with probability at least ", Num(pass),
         " (the policy's plan pass probability; exact binomial enumeration of the disagreement "
-        "counts)"));
+        "counts",
+        m.sequential ? ", for the anytime-valid limits of sequential mode)" : ")"));
     return std::optional<std::uint64_t>(more);
   }
   if (n.status().code() == absl::StatusCode::kResourceExhausted) {

@@ -73,6 +73,8 @@ struct Measured {
   // Hold-out samples held (0 without hold-out counts) and the policy's minimum.
   std::uint64_t held = 0;
   std::uint64_t min_holdout_sample_count = 0;
+  // policy.sequential: every hold-out bound is anytime-valid.
+  bool sequential = false;
 };
 
 // The yes/no facts the decision table reads.

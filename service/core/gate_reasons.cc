@@ -78,6 +78,13 @@ std::string SummaryReason(const Decision& decision, const Findings& f, const Mea
 std::vector<std::string> BoundReasons(const Findings& f, const Measured& m) {
   std::vector<std::string> out;
   const double upper = m.risk_certificate.risk_upper_bound;
+  if (m.sequential) {
+    out.push_back(
+        "sequential mode: every hold-out bound is anytime-valid (a confidence sequence that "
+        "holds for every hold-out size at once: beta-binomial mixture martingale, Robbins "
+        "1970, with Ville's inequality), so re-running the gate on the grown hold-out set "
+        "after each batch keeps the promise at the same failure probability");
+  }
   for (const FamilySpec* spec : m.split.skipped) {
     out.push_back(absl::StrCat("policy family ", spec->family_name, " not used: it needs ",
                                spec->evidence_needed));
@@ -97,12 +104,12 @@ std::vector<std::string> BoundReasons(const Findings& f, const Measured& m) {
                                " is vacuous (no better than 1 or the baseline)"));
   }
   if (m.risk_lower_bound.has_value()) {
-    out.push_back(absl::StrCat("true error is at least ", Num(*m.risk_lower_bound),
-                               " (Clopper-Pearson on ", m.holdout->error_count, " errors in ",
-                               m.holdout->sample_count, " hold-out samples, failure probability ",
-                               Num(m.split.risk_lower), "), ",
-                               f.risk_reject ? "above" : "not above", " the threshold ",
-                               Num(m.max_risk)));
+    out.push_back(absl::StrCat(
+        "true error is at least ", Num(*m.risk_lower_bound),
+        m.sequential ? " (anytime-valid, holdout-anytime, on " : " (Clopper-Pearson on ",
+        m.holdout->error_count, " errors in ", m.holdout->sample_count,
+        " hold-out samples, failure probability ", Num(m.split.risk_lower), "), ",
+        f.risk_reject ? "above" : "not above", " the threshold ", Num(m.max_risk)));
   } else {
     out.push_back(
         "no hold-out counts: no lower bound on the true error, so the risk test cannot reject");

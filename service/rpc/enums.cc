@@ -44,6 +44,7 @@ constexpr Row<v1::BoundFamily, core::Family> kFamilies[] = {
     {v1::BOUND_FAMILY_PAC_BAYES_CATONI, core::Family::kPacBayesCatoni},
     {v1::BOUND_FAMILY_RADEMACHER, core::Family::kRademacher},
     {v1::BOUND_FAMILY_SAMPLE_COMPRESSION, core::Family::kSampleCompression},
+    {v1::BOUND_FAMILY_HOLDOUT_ANYTIME, core::Family::kHoldoutAnytime},
 };
 
 constexpr Row<v1::PacBayesTarget, core::PacBayesTarget> kPacBayesTargets[] = {

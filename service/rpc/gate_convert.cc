@@ -35,6 +35,7 @@ Converted<GateInputs> GateInputsFromProto(const v1::GateRequest& in) {
   r.policy.min_holdout_sample_count = p.min_holdout_sample_count();
   if (p.has_max_regression()) r.policy.max_regression = p.max_regression();
   if (p.has_plan_pass_probability()) r.policy.plan_pass_probability = p.plan_pass_probability();
+  r.policy.sequential = p.sequential();
 
   out.refusals.RefuseText("candidate.id", in.candidate().id(), core::kMaxIdBytes);
   r.candidate.id = in.candidate().id().substr(0, core::kMaxIdBytes);

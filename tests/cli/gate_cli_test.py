@@ -222,6 +222,32 @@ class GateInlineFlagsTest(unittest.TestCase):
                                         str(errors), "--holdout-sample-count", "1000")
             self.assertEqual(code, want, (errors, err))
 
+    def test_sequential_flag_and_field(self):
+        # --sequential sets policy.sequential (the same request as the file
+        # field, so the same digest); the table and the ledger say so.
+        flags = ("--max-risk", "0.05", "--failure-probability", "0.05",
+                 "--candidate-id", "damage-screen-v8", "--holdout-error-count", "40",
+                 "--holdout-sample-count", "1000")
+        code, out, err = gate_flags(*flags, "--sequential")
+        self.assertEqual(code, 10, err)
+        self.assertIn("sequential mode: anytime-valid bounds", out)
+        self.assertIn("true error, upper bound (holdout-anytime)", out)
+        self.assertIn("true error, lower bound (holdout-anytime)", out)
+        self.assertIn("risk lower bound: holdout-anytime (anytime-valid)", out)
+        self.assertIn("under the anytime-valid bounds (sequential mode)", out)
+        as_flag = gate_flags(*flags, "--sequential", "--output", "json")
+        as_field = gate(policy(sequential=True), candidate(40, 1000), None, "--output", "json")
+        self.assertEqual(self.digest(*as_flag), self.digest(*as_field))
+        # Without it, the same counts are gated with Clopper-Pearson.
+        code, out, err = gate_flags(*flags)
+        self.assertNotIn("sequential mode", out)
+        self.assertIn("true error, lower bound (Clopper-Pearson)", out)
+        # A fixed-size hold-out family with --sequential: refused, field named.
+        code, out, err = gate_flags(*flags, "--sequential", "--allowed-families",
+                                    "holdout-binomial")
+        self.assertEqual(code, 3, err)
+        self.assertIn("policy.allowed_families[0]: holdout-binomial holds for one look", err)
+
     def test_a_flag_overrides_its_field_of_a_file(self):
         # The file says max_risk 0.05 (36/1000 passes, 37 holds); the flag
         # raises it to 0.5, the same request as a file with 0.5.

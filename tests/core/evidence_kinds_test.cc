@@ -299,7 +299,9 @@ TEST(EvidenceKindsTest, PropertyGrid) {
   const std::vector<double> caps = {0, 1, 4, 9};
   int checked = 0;
   for (const FamilySpec& spec : Families()) {
-    if (static_cast<int>(spec.family) < 8) continue;
+    // The families after the hold-out ones (holdout-anytime, number 16, is a
+    // hold-out family: AllKinds has no hold-out counts for it).
+    if (static_cast<int>(spec.family) < 8 || spec.family == Family::kHoldoutAnytime) continue;
     SCOPED_TRACE(std::string(spec.family_name));
     const bool compression = spec.family == Family::kSampleCompression;
     for (double rate : rates) {

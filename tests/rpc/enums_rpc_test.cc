@@ -127,9 +127,9 @@ TEST(EnumTablesTest, EveryCoreValueMapsToAWireValue) {
         core::Family::kHoldoutKlChernoff, core::Family::kVcAdditive, core::Family::kVcRelative,
         core::Family::kOccamHoeffding, core::Family::kOccamKl, core::Family::kBoundedHoeffding,
         core::Family::kBoundedKl, core::Family::kBoundedEmpiricalBernstein,
-        core::Family::kPacBayesMcAllester, core::Family::kPacBayesKl,
-        core::Family::kPacBayesCatoni, core::Family::kRademacher,
-        core::Family::kSampleCompression}) {
+        core::Family::kPacBayesMcAllester, core::Family::kPacBayesKl, core::Family::kPacBayesCatoni,
+        core::Family::kRademacher, core::Family::kSampleCompression,
+        core::Family::kHoldoutAnytime}) {
     EXPECT_NE(FamilyToProto(f), v1::BOUND_FAMILY_UNSPECIFIED);
     EXPECT_EQ(FamilyFromProto(FamilyToProto(f)), f);
   }

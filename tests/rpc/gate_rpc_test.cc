@@ -201,6 +201,30 @@ TEST_F(GateRpcTest, HoldCarriesAdditionalSamples) {
   EXPECT_THAT(resp.reasons(0), HasSubstr("minimum of 1000"));
 }
 
+// policy.sequential reaches the core: the risk bounds are holdout-anytime,
+// named in the audit record and the ledger; a fixed-size hold-out family
+// beside it is refused with its field path. The values are the core's
+// (anytime_test checks them against scipy).
+TEST_F(GateRpcTest, SequentialPolicyUsesAnytimeBounds) {
+  v1::GateRequest r = Request(0.06, 0.025, 500, 10000);
+  r.mutable_policy()->set_sequential(true);
+  const v1::GateResponse resp = MustGate(r);
+  EXPECT_EQ(resp.verdict(), v1::VERDICT_PROMOTE);
+  ASSERT_EQ(resp.audit().families_used_size(), 1);
+  EXPECT_EQ(resp.audit().families_used(0), v1::BOUND_FAMILY_HOLDOUT_ANYTIME);
+  EXPECT_EQ(resp.risk_certificate().family(), v1::BOUND_FAMILY_HOLDOUT_ANYTIME);
+  EXPECT_EQ(resp.risk_certificate().family_name(), "holdout-anytime");
+  ASSERT_EQ(resp.delta_ledger_size(), 2);
+  EXPECT_EQ(resp.delta_ledger(1).test(), "risk lower bound: holdout-anytime (anytime-valid)");
+
+  r.mutable_policy()->add_allowed_families(v1::BOUND_FAMILY_HOLDOUT_ANYTIME);
+  r.mutable_policy()->add_allowed_families(v1::BOUND_FAMILY_HOLDOUT_EXACT_BINOMIAL);
+  v1::GateResponse refused;
+  const grpc::Status s = Call(endpoint_.stub.get(), r, &refused);
+  EXPECT_EQ(s.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
+  EXPECT_THAT(s.error_message(), HasSubstr("policy.allowed_families[1]"));
+}
+
 TEST_F(GateRpcTest, AuditRecord) {
   const v1::GateResponse resp = MustGate(ReferenceRequest());
   const v1::AuditRecord& a = resp.audit();
