@@ -1,6 +1,7 @@
 // riskbound effective-vc: the effective VC dimension fit of Vapnik, Levin &
 // LeCun (1994) on measured deviations (RPC FitEffectiveVcDimension). A
 // heuristic estimate, never a bound; the output says so first.
+#include <fstream>
 #include <string>
 #include <vector>
 
@@ -14,12 +15,14 @@
 #include "client_cli/exit_codes.h"
 #include "client_cli/format.h"
 #include "client_cli/json_io.h"
+#include "client_cli/svg_plot.h"
 #include "client_cli/table.h"
 
 namespace riskbound::cli {
 namespace {
 
-constexpr char kUsage[] = "riskbound effective-vc --input request.json [--output table|json]";
+constexpr char kUsage[] =
+    "riskbound effective-vc --input request.json [--plot fit.svg] [--output table|json]";
 
 constexpr char kSummary[] =
     "Fits the effective VC dimension of Vapnik, Levin & LeCun (1994) to deviations measured\n"
@@ -30,10 +33,11 @@ constexpr char kSummary[] =
     "gives h_hat, a bootstrap interval over the repetitions (sampling noise only), the\n"
     "residual per design point and flags (censored, poor fit, too few informative points,\n"
     "approximate training). --input reads a riskbound.v1.FitEffectiveVcDimensionRequest in\n"
-    "the protobuf JSON mapping (- for stdin). See docs/capacity-from-data.md.\n"
+    "the protobuf JSON mapping (- for stdin). --plot FILE also writes an SVG picture of the\n"
+    "mean deviations and the fitted curve. See docs/capacity-from-data.md.\n"
     "\n"
     "exit codes: 0 answered; 2 usage; 3 invalid input (field named); 4 server unreachable;\n"
-    "1 other failure.";
+    "1 other failure (or the plot file could not be written).";
 
 constexpr char kTerms[] =
     "  xi             the deviation measured at half-size n (mean over repetitions)\n"
@@ -47,6 +51,7 @@ std::vector<OptionSpec> Specs() {
   std::vector<OptionSpec> specs = {
       {"input", "FILE", "read the request from a JSON file (- for stdin)"},
       {"output", "table|json", "output format (default table)"},
+      {"plot", "FILE", "also write an SVG plot of the mean deviations and the fitted curve"},
   };
   for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
   return specs;
@@ -96,6 +101,10 @@ int RunEffectiveVc(const std::vector<std::string>& args, std::ostream& out, std:
   }
   auto input = start.args.Get("input");
   if (!input) return UsageError(err, "effective-vc", "--input FILE is required");
+  const std::optional<std::string> plot_path = start.args.Get("plot");
+  if (plot_path.has_value() && plot_path->empty()) {
+    return UsageError(err, "effective-vc", "--plot needs a file name");
+  }
   v1::FitEffectiveVcDimensionRequest request;
   if (auto code = LoadJsonInput("effective-vc", *input, &request, err)) return *code;
 
@@ -108,6 +117,31 @@ int RunEffectiveVc(const std::vector<std::string>& args, std::ostream& out, std:
     out << ToJson(response);
   } else {
     PrintTable(response, out);
+  }
+  if (plot_path.has_value()) {
+    std::vector<DeviationPlotPoint> points;
+    for (const v1::DeviationFit& p : response.points()) {
+      points.push_back(
+          {static_cast<double>(p.half_sample_count()), p.mean_deviation(), p.fitted_deviation()});
+    }
+    const std::string title =
+        "Effective VC dimension fit (Vapnik, Levin & LeCun 1994): a heuristic, not a bound";
+    const std::string subtitle =
+        absl::StrFormat("h_hat %s%s%s; %s%% interval [%s, %s] (sampling noise only)",
+                        response.censored() ? ">= " : "",
+                        FormatSignificant(response.effective_vc_dimension(), 5, Rounding::kNearest),
+                        response.censored() ? " (censored)" : "",
+                        FormatSignificant(100.0 * response.interval_level(), 4, Rounding::kNearest),
+                        FormatSignificant(response.interval_lower(), 5, Rounding::kDown),
+                        FormatSignificant(response.interval_upper(), 5, Rounding::kUp));
+    std::ofstream file(*plot_path, std::ios::binary | std::ios::trunc);
+    file << RenderDeviationSvg(title, subtitle, points);
+    file.close();
+    if (!file) {
+      err << "riskbound effective-vc: cannot write the plot to '" << *plot_path << "'\n";
+      return kExitInternal;
+    }
+    (start.json ? err : out) << "Plot written to " << *plot_path << "\n";
   }
   return kExitOk;
 }

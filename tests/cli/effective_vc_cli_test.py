@@ -8,6 +8,7 @@ import math
 import os
 import tempfile
 import unittest
+import xml.etree.ElementTree as ET
 from fractions import Fraction
 
 from scipy.optimize import minimize_scalar
@@ -111,6 +112,26 @@ class EffectiveVcTest(unittest.TestCase):
         self.assertIn("HEURISTIC ESTIMATE, NOT A BOUND", out)
         self.assertIn(">= 40 (censored: a lower limit only)", out)
         self.assertIn("censored", out.split("flags", 1)[1].splitlines()[0])
+
+    def test_plot_is_an_svg_with_the_points_and_the_curve(self):
+        # Source: the SVG 1.1 document parsed with Python's XML parser.
+        plot = tempfile.mktemp(suffix=".svg", prefix="riskbound-evc-")
+        pts = [(n, [phi(n / 3), phi(n / 3) + 0.01]) for n in (2, 4, 8, 16, 32, 64)]
+        code, out, err = harness.run_cli("effective-vc", "--input", request_file(pts),
+                                         "--plot", plot)
+        self.assertEqual(code, 0, err)
+        self.assertIn(f"Plot written to {plot}", out)
+        root = ET.parse(plot).getroot()
+        ns = "{http://www.w3.org/2000/svg}"
+        self.assertEqual(len([e for e in root.iter(ns + "polyline")
+                              if e.get("class") == "curve-fitted"]), 1)
+        self.assertEqual(len([e for e in root.iter(ns + "circle")
+                              if e.get("class") == "point-mean"]), 6)
+        texts = " ".join(e.text or "" for e in root.iter(ns + "text"))
+        self.assertIn("a heuristic, not a bound", texts)
+        self.assertIn("sampling noise only", texts)
+        self.assertIn("; 95% interval [", texts)
+        os.unlink(plot)
 
     def test_bad_input_names_the_fields(self):
         code, out, err = harness.run_cli(
