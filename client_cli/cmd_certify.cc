@@ -68,14 +68,15 @@ constexpr char kSummary[] =
     "KIND with its parameter flags) or with --empirical-rademacher; a bounded loss (--mean-loss\n"
     "...); a PAC-Bayes posterior (--kl-divergence ...); a compression scheme\n"
     "(--compression-size ...); any combination of them; or a whole riskbound.v1.CertifyRequest\n"
-    "in the protobuf JSON mapping with --input (- for stdin). Each flag is named after its\n"
-    "field of the request (evidence.holdout.error_count -> --holdout-error-count); the older\n"
-    "spellings (listed as \"also\") still work. Families are named by their CLI word (holdout-kl) "
-    "or\n"
-    "their enum name (BOUND_FAMILY_HOLDOUT_KL_CHERNOFF, holdout_kl_chernoff). Without\n"
-    "--families, one recommended family gets the whole failure probability; with several (or\n"
-    "'all': every family that applies, except holdout-anytime, which is never the tightest)\n"
-    "each gets its share (union bound) and the tightest is reported.\n"
+    "in the protobuf JSON mapping with --input (- for stdin), the only way to send raw\n"
+    "relabel-and-retrain draws (evidence.relabel, docs/capacity-from-data.md). Each flag is\n"
+    "named after its field of the request (evidence.holdout.error_count ->\n"
+    "--holdout-error-count); the older spellings (listed as \"also\") still work. Families are\n"
+    "named by their CLI word (holdout-kl) or their enum name (BOUND_FAMILY_HOLDOUT_KL_CHERNOFF,\n"
+    "holdout_kl_chernoff). Without --families, one recommended family gets the whole failure\n"
+    "probability; with several (or 'all': every family that applies, except holdout-anytime,\n"
+    "which is never the tightest) each gets its share (union bound) and the tightest is\n"
+    "reported.\n"
     "\n"
     "Printed numbers round outward: upper bounds up, lower bounds and confidence levels down,\n"
     "failure probabilities up (the JSON output carries the exact values).\n"
@@ -98,6 +99,8 @@ constexpr char kTerms[] =
     "  union bound      several bounds hold together with probability >= 1 - (sum of their\n"
     "                   deltas), so the requested delta is split between the families\n"
     "  vacuous          the bound is at or above the baseline error rate (or 1): it says nothing\n"
+    "  heuristic        an estimate, not a bound: a condition of the bound is not met (relabel\n"
+    "                   draws from approximate training, evidence.relabel.training)\n"
     "  tightest         the family with the smallest upper bound; every bound in the table\n"
     "                   holds at once, so reporting the smallest costs nothing extra\n"
     "  capacity         how rich the model class is (VC dimension, ln |H|): more capacity,\n"
@@ -354,7 +357,8 @@ void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
                          FormatConfidence(requested), FormatInput(requested));
   Table table({"family", "upper", "lower", "empirical", "penalty", "delta used", "vacuous"});
   for (const v1::Certificate& c : r.certificates()) {
-    table.AddRow({c.family_name(), FormatUpper(c.risk_upper_bound()),
+    table.AddRow({c.heuristic() ? c.family_name() + " (heuristic)" : c.family_name(),
+                  FormatUpper(c.risk_upper_bound()),
                   c.has_risk_lower_bound() ? FormatLower(c.risk_lower_bound()) : "-",
                   FormatObserved(c.empirical_risk()), FormatUpper(c.penalty()),
                   FormatFailureProbability(c.failure_probability()), c.vacuous() ? "yes" : "no"});
@@ -366,6 +370,18 @@ void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
                          FormatUpper(t.risk_upper_bound()),
                          FormatConfidence(r.delta_accounting().spent_failure_probability()),
                          t.vacuous() ? " (vacuous: says nothing)" : "");
+  if (t.heuristic()) {
+    out << "HEURISTIC: the tightest row is an estimate, not a bound (its evidence came from "
+           "approximate training); no certificate above is a guarantee a gate accepts\n";
+  } else {
+    for (const v1::Certificate& c : r.certificates()) {
+      if (c.heuristic()) {
+        out << "HEURISTIC: " << c.family_name()
+            << " is an estimate, not a bound (approximate training); it is never the "
+               "tightest\n";
+      }
+    }
+  }
   out << "Delta accounting: " << r.delta_accounting().rule() << "\n";
   for (const v1::Certificate& c : r.certificates()) {
     if (c.has_loss_range()) {

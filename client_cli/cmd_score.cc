@@ -345,6 +345,8 @@ std::string TableRow(const Row& row) {
     result = t.vacuous() ? "vacuous" : "certified";
     detail = absl::StrCat("upper bound ", FormatUpper(t.risk_upper_bound()), " (", t.family_name(),
                           ", delta ", FormatFailureProbability(r.failure_probability()), ")");
+    // Relabel evidence from approximate training: an estimate, not a bound.
+    if (t.heuristic()) absl::StrAppend(&detail, "; HEURISTIC, not a bound");
   } else {
     result = "error";
     detail = r.error().message();

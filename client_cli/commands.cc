@@ -44,6 +44,8 @@ const std::vector<Command>& Commands() {
       {"certify", "certificates on one model's true error from its evidence", RunCertify},
       {"families", "list the bound families, their sources and assumptions", RunFamilies},
       {"capacity", "VC dimension of a model family from its architecture", RunCapacity},
+      {"effective-vc", "effective VC dimension fit to measured deviations (heuristic)",
+       RunEffectiveVc},
       {"gate", "PROMOTE, HOLD or REJECT a candidate model under a policy", RunGate},
       {"select", "choose along a nested model structure by the smallest bound (SRM)", RunSelect},
       {"plan", "hold-out or training sample size that reaches a target risk", RunPlan},

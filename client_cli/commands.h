@@ -21,6 +21,7 @@ struct Command {
 };
 
 int RunCapacity(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+int RunEffectiveVc(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunFamilies(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunGate(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);

@@ -362,4 +362,75 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
   return s;
 }
 
+std::string RenderDeviationSvg(const std::string& title, const std::string& subtitle,
+                               const std::vector<DeviationPlotPoint>& points) {
+  constexpr double kWidth = 720, kHeight = 440;
+  constexpr double kLeft = 70, kRight = 30, kTop = 70, kBottom = 60;
+  const double lo = points.front().half_sample_count;
+  const double hi = std::max(points.back().half_sample_count, lo + 1.0);
+  const bool log_axis = lo > 0 && hi >= 10.0 * lo;
+  auto px = [&](double n) {
+    const double f = log_axis ? std::log(n / lo) / std::log(hi / lo) : (n - lo) / (hi - lo);
+    return kLeft + f * (kWidth - kLeft - kRight);
+  };
+  auto py = [&](double xi) {
+    return kTop + (1.0 - std::clamp(xi, 0.0, 1.0)) * (kHeight - kTop - kBottom);
+  };
+  std::string out = absl::StrFormat(
+      "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n"
+      "<svg xmlns=\"http://www.w3.org/2000/svg\" version=\"1.1\" width=\"%g\" "
+      "height=\"%g\" viewBox=\"0 0 %g %g\" font-family=\"sans-serif\">\n"
+      "<rect width=\"100%%\" height=\"100%%\" fill=\"white\"/>\n"
+      "<text x=\"%g\" y=\"24\" font-size=\"15\" font-weight=\"bold\">%s</text>\n"
+      "<text x=\"%g\" y=\"44\" font-size=\"12\">%s</text>\n",
+      kWidth, kHeight, kWidth, kHeight, kLeft, Escape(title), kLeft, Escape(subtitle));
+  for (double xi : {0.0, 0.25, 0.5, 0.75, 1.0}) {
+    absl::StrAppendFormat(&out,
+                          "<line x1=\"%.2f\" y1=\"%.2f\" x2=\"%.2f\" y2=\"%.2f\" "
+                          "stroke=\"#e0e0e0\"/>\n<text x=\"%.2f\" y=\"%.2f\" font-size=\"11\" "
+                          "text-anchor=\"end\">%g</text>\n",
+                          kLeft, py(xi), kWidth - kRight, py(xi), kLeft - 6, py(xi) + 4, xi);
+  }
+  for (const DeviationPlotPoint& p : points) {
+    absl::StrAppendFormat(&out,
+                          "<text x=\"%.2f\" y=\"%.2f\" font-size=\"11\" "
+                          "text-anchor=\"middle\">%g</text>\n",
+                          px(p.half_sample_count), kHeight - kBottom + 16, p.half_sample_count);
+  }
+  absl::StrAppendFormat(&out,
+                        "<line x1=\"%.2f\" y1=\"%.2f\" x2=\"%.2f\" y2=\"%.2f\" stroke=\"black\"/>\n"
+                        "<line x1=\"%.2f\" y1=\"%.2f\" x2=\"%.2f\" y2=\"%.2f\" stroke=\"black\"/>\n"
+                        "<text x=\"%.2f\" y=\"%.2f\" font-size=\"12\" text-anchor=\"middle\">"
+                        "half-size n%s</text>\n"
+                        "<text x=\"16\" y=\"%.2f\" font-size=\"12\" transform=\"rotate(-90 16 "
+                        "%.2f)\" text-anchor=\"middle\">deviation xi</text>\n",
+                        kLeft, kHeight - kBottom, kWidth - kRight, kHeight - kBottom, kLeft, kTop,
+                        kLeft, kHeight - kBottom, (kLeft + kWidth - kRight) / 2, kHeight - 18,
+                        log_axis ? " (log scale)" : "", (kTop + kHeight - kBottom) / 2,
+                        (kTop + kHeight - kBottom) / 2);
+  out += "<polyline class=\"curve-fitted\" fill=\"none\" stroke=\"";
+  out += kBoundColor;
+  out += "\" stroke-width=\"2\" points=\"";
+  for (const DeviationPlotPoint& p : points) {
+    absl::StrAppendFormat(&out, "%.2f,%.2f ", px(p.half_sample_count), py(p.fitted_deviation));
+  }
+  out += "\"/>\n";
+  for (const DeviationPlotPoint& p : points) {
+    absl::StrAppendFormat(&out,
+                          "<circle class=\"point-mean\" cx=\"%.2f\" cy=\"%.2f\" r=\"4\" "
+                          "fill=\"%s\"/>\n",
+                          px(p.half_sample_count), py(p.mean_deviation), kEmpiricalColor);
+  }
+  absl::StrAppendFormat(&out,
+                        "<circle cx=\"%.2f\" cy=\"%.2f\" r=\"4\" fill=\"%s\"/><text x=\"%.2f\" "
+                        "y=\"%.2f\" font-size=\"11\">mean measured xi(n)</text>\n"
+                        "<line x1=\"%.2f\" y1=\"%.2f\" x2=\"%.2f\" y2=\"%.2f\" stroke=\"%s\" "
+                        "stroke-width=\"2\"/><text x=\"%.2f\" y=\"%.2f\" font-size=\"11\">fitted "
+                        "Phi(n / h_hat) (heuristic)</text>\n</svg>\n",
+                        kWidth - 260, kTop + 6, kEmpiricalColor, kWidth - 250, kTop + 10,
+                        kWidth - 266, kTop + 24, kWidth - 254, kTop + 24, kBoundColor, kWidth - 250,
+                        kTop + 28);
+  return out;
+}
+
 }  // namespace riskbound::cli

@@ -49,6 +49,26 @@ struct SrmPlot {
 // Thread-safe; no shared state.
 std::string RenderSrmSvg(const SrmPlot& plot);
 
+// One design point of an effective VC dimension fit.
+struct DeviationPlotPoint {
+  // Half-size n >= 1.
+  double half_sample_count = 1.0;
+  // Mean measured deviation and the fitted curve's value there, in [0, 1].
+  double mean_deviation = 0.0;
+  double fitted_deviation = 0.0;
+};
+
+// RenderDeviationSvg
+// Returns a complete SVG 1.1 document of the measured mean deviation xi(n)
+// (one circle of class "point-mean" per point) and the fitted curve Phi(n /
+// h_hat) through the design points (one <polyline> of class
+// "curve-fitted"), n on a logarithmic axis when n_max >= 10 n_min (linear
+// otherwise), xi in [0, 1], with `title` and `subtitle` as headings (the
+// caller says there that the fit is a heuristic). REQUIRES: points
+// non-empty, sorted by half_sample_count, finite values. Thread-safe.
+std::string RenderDeviationSvg(const std::string& title, const std::string& subtitle,
+                               const std::vector<DeviationPlotPoint>& points);
+
 }  // namespace riskbound::cli
 
 #endif  // RISKBOUND_CLIENT_CLI_SVG_PLOT_H_

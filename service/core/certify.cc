@@ -10,6 +10,7 @@
 #include "service/core/capacity.h"
 #include "service/core/delta_split.h"
 #include "service/core/families.h"
+#include "service/core/limits.h"
 
 namespace riskbound::core {
 namespace {
@@ -31,6 +32,9 @@ std::vector<const FamilySpec*> RecommendedFamily(const Evidence& e) {
     f = Family::kOccamKl;
   } else if (e.rademacher.has_value()) {
     f = Family::kRademacher;
+  } else if (e.relabel.has_value()) {
+    f = e.relabel->scheme == RelabelScheme::kHalfFlip ? Family::kMaximalDiscrepancy
+                                                      : Family::kRademacher;
   }
   return {FindFamily(f)};
 }
@@ -117,6 +121,85 @@ void CheckRademacher(const RademacherEvidence& r, const std::string& p,
   } else if (!std::isfinite(v) || v < -1.0 || v > 1.0) {
     out->push_back({p + ".empirical_rademacher",
                     "must be in [-1, 1] (a Monte-Carlo average over sigma draws)"});
+  }
+}
+
+void CheckRelabel(const RelabelEvidence& r, bool has_rademacher, const std::string& p,
+                  std::vector<FieldViolation>* out) {
+  CheckSampleCounts(p, r, out);
+  const bool half = r.scheme == RelabelScheme::kHalfFlip;
+  if (r.scheme != RelabelScheme::kRandomSigns && !half) {
+    out->push_back({p + ".scheme",
+                    "required: say how the labels were changed, random signs "
+                    "(RELABEL_SCHEME_RANDOM_SIGNS) or a half flipped (RELABEL_SCHEME_HALF_FLIP) "
+                    "(unset, or a value this server does not know)"});
+  }
+  if (r.training != RelabelTraining::kExact && r.training != RelabelTraining::kApproximate) {
+    out->push_back({p + ".training",
+                    "required: say whether every retraining reached the minimum 0-1 training "
+                    "error over the class (RELABEL_TRAINING_EXACT) or not "
+                    "(RELABEL_TRAINING_APPROXIMATE)"});
+  }
+  if (has_rademacher && r.scheme == RelabelScheme::kRandomSigns) {
+    out->push_back({p,
+                    "give the Rademacher complexity once: averaged (evidence.rademacher) or "
+                    "as raw draws (evidence.relabel), not both"});
+  }
+  if (r.draws.empty()) {
+    out->push_back({p + ".draws", "give at least one retraining"});
+  } else if (r.draws.size() > kMaxRelabelDrawCount) {
+    out->push_back({p + ".draws", absl::StrCat("at most ", kMaxRelabelDrawCount,
+                                               " retrainings, got ", r.draws.size())});
+    return;
+  }
+  const std::uint64_t m = r.sample_count;
+  if (half && m % 2 == 1) {
+    out->push_back({p + ".sample_count",
+                    absl::StrCat("must be even for a half flip (two halves of sample_count / 2 "
+                                 "examples), got ",
+                                 m)});
+  }
+  std::size_t reported = 0;  // at most 10 draws named, then a count
+  std::size_t unreported = 0;
+  for (std::size_t j = 0; j < r.draws.size(); ++j) {
+    const RelabelDraw& d = r.draws[j];
+    const std::string at = absl::StrCat(p, ".draws[", j, "].");
+    std::vector<FieldViolation> found;
+    if (half) {
+      if (d.relabelled_error_count != 0) {
+        found.push_back({at + "relabelled_error_count", "is not used by a half flip (set 0)"});
+      }
+      for (const auto& [name, value] : {std::pair<const char*, std::uint64_t>{
+                                            "flipped_half_error_count", d.flipped_half_error_count},
+                                        {"kept_half_error_count", d.kept_half_error_count}}) {
+        if (value > m / 2) {
+          found.push_back({at + name, absl::StrCat(value, " errors exceed the ", m / 2,
+                                                   " examples of a half")});
+        }
+      }
+    } else {
+      if (d.relabelled_error_count > m) {
+        found.push_back({at + "relabelled_error_count",
+                         absl::StrCat(d.relabelled_error_count, " errors exceed the ", m,
+                                      " samples they were counted on")});
+      }
+      if (d.flipped_half_error_count != 0 || d.kept_half_error_count != 0) {
+        found.push_back({at + (d.flipped_half_error_count != 0 ? "flipped_half_error_count"
+                                                               : "kept_half_error_count"),
+                         "is not used by random signs (set 0)"});
+      }
+    }
+    if (found.empty()) continue;
+    if (reported < 10) {
+      out->insert(out->end(), found.begin(), found.end());
+      ++reported;
+    } else {
+      ++unreported;
+    }
+  }
+  if (unreported > 0) {
+    out->push_back(
+        {p + ".draws", absl::StrCat("and ", unreported, " more invalid draws were not listed")});
   }
 }
 
@@ -373,14 +456,16 @@ bool PrepareEvidence(Evidence* evidence, const std::string& prefix,
   const std::size_t before = v->size();
   if (!evidence->holdout.has_value() && !evidence->training.has_value() &&
       !evidence->bounded_loss.has_value() && !evidence->pac_bayes.has_value() &&
-      !evidence->rademacher.has_value() && !evidence->compression.has_value()) {
-    v->push_back(
-        {prefix, absl::StrCat("no evidence: give hold-out counts (", prefix,
-                              ".holdout), training counts with a capacity (", prefix,
-                              ".training), a bounded loss (", prefix,
-                              ".bounded_loss), a PAC-Bayes posterior (", prefix,
-                              ".pac_bayes), a Rademacher complexity (", prefix,
-                              ".rademacher) or a compression scheme (", prefix, ".compression)")});
+      !evidence->rademacher.has_value() && !evidence->compression.has_value() &&
+      !evidence->relabel.has_value()) {
+    v->push_back({prefix, absl::StrCat("no evidence: give hold-out counts (", prefix,
+                                       ".holdout), training counts with a capacity (", prefix,
+                                       ".training), a bounded loss (", prefix,
+                                       ".bounded_loss), a PAC-Bayes posterior (", prefix,
+                                       ".pac_bayes), a Rademacher complexity (", prefix,
+                                       ".rademacher), a compression scheme (", prefix,
+                                       ".compression) or relabel-and-retrain draws (", prefix,
+                                       ".relabel)")});
   }
   if (evidence->holdout.has_value()) {
     CheckSampleCounts(prefix + ".holdout", *evidence->holdout, v);
@@ -403,6 +488,9 @@ bool PrepareEvidence(Evidence* evidence, const std::string& prefix,
   }
   if (evidence->compression.has_value()) {
     CheckCompression(*evidence->compression, prefix + ".compression", v);
+  }
+  if (evidence->relabel.has_value()) {
+    CheckRelabel(*evidence->relabel, evidence->rademacher.has_value(), prefix + ".relabel", v);
   }
   return v->size() == before;
 }
@@ -459,17 +547,23 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
   // Error-rate certificates and bounded-loss certificates (other units) are
   // never compared: the tightest is taken among the error-rate ones when
   // there are any, else among the bounded-loss ones (all on the same loss).
+  // Heuristic certificates (not bounds) are candidates only when no valid
+  // one is.
   bool any_error_rate = false;
   for (const Certificate& c : result.certificates) any_error_rate |= !c.loss_range.has_value();
   bool found = false;
-  for (std::size_t i = 0; i < k; ++i) {
-    const Certificate& c = result.certificates[i];
-    if (any_error_rate && c.loss_range.has_value()) continue;
-    if (!found ||
-        c.risk_upper_bound < result.certificates[result.tightest_index].risk_upper_bound) {
-      result.tightest_index = i;
-      found = true;
+  for (const bool allow_heuristic : {false, true}) {
+    for (std::size_t i = 0; i < k && !(found && allow_heuristic); ++i) {
+      const Certificate& c = result.certificates[i];
+      if (any_error_rate && c.loss_range.has_value()) continue;
+      if (c.heuristic && !allow_heuristic) continue;
+      if (!found ||
+          c.risk_upper_bound < result.certificates[result.tightest_index].risk_upper_bound) {
+        result.tightest_index = i;
+        found = true;
+      }
     }
+    if (found) break;
   }
   if (stop.StopRequested()) return stop.Status();
   result.spent_failure_probability = SpentOf(shares);

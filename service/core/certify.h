@@ -27,8 +27,9 @@ enum class FamilyChoice {
   // their values), first match wins: hold-out -> exact binomial; else bounded
   // loss -> bounded kl; else compression scheme -> sample compression; else
   // PAC-Bayes -> PAC-Bayes-kl; else finite class -> Occam kl; else
-  // Rademacher -> Rademacher; else VC dimension -> VC additive. It gets the
-  // whole failure probability.
+  // Rademacher -> Rademacher; else relabel draws -> Rademacher (random
+  // signs) or maximal discrepancy (half flip); else VC dimension -> VC
+  // additive. It gets the whole failure probability.
   kRecommended,
   // `listed`: exactly the families listed by the caller.
   kListed,
@@ -66,7 +67,9 @@ struct CertifyResult {
   // Index into certificates of the smallest upper bound (first on ties).
   // Bounded-loss certificates (Certificate::loss_range set, in the loss's
   // own units) are only candidates when no error-rate certificate was
-  // computed: the two kinds bound different quantities.
+  // computed: the two kinds bound different quantities. Heuristic
+  // certificates (Certificate::heuristic) are only candidates when no other
+  // certificate was computed.
   std::size_t tightest_index = 0;
   // The request's failure probability.
   double requested_failure_probability = 0.0;

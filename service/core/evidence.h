@@ -112,6 +112,46 @@ struct RademacherEvidence : SampleCounts {
   std::uint64_t sigma_draw_count = 0;
 };
 
+// How the labels were changed before each retraining of a relabel-and-retrain
+// experiment. API: RelabelScheme.
+enum class RelabelScheme {
+  // Each label multiplied by an independent fair sign: the empirical
+  // Rademacher complexity (family kRademacher).
+  kRandomSigns = 1,
+  // The labels of a half fixed in advance flipped: the maximal discrepancy
+  // (family kMaximalDiscrepancy).
+  kHalfFlip = 2,
+};
+
+// How each retraining minimised the 0-1 training error. API: RelabelTraining.
+enum class RelabelTraining {
+  // The minimum over the whole class was reached every time: a valid bound.
+  kExact = 1,
+  // A heuristic optimiser: the capacity is underestimated and the
+  // certificate is heuristic (not a bound).
+  kApproximate = 2,
+};
+
+// One retraining. API: RelabelDraw; paths evidence.relabel.draws[j].*.
+struct RelabelDraw {
+  // Random signs: errors against the relabelled sample.
+  std::uint64_t relabelled_error_count = 0;
+  // Half flip: errors on the flipped half and on the kept half, each against
+  // the original labels.
+  std::uint64_t flipped_half_error_count = 0;
+  std::uint64_t kept_half_error_count = 0;
+};
+
+// Training errors of the model plus the raw draws of a relabel-and-retrain
+// experiment on the same sample. API paths: evidence.relabel.{error_count,
+// sample_count, scheme, training, draws}. scheme and training are required:
+// nullopt (unset or unknown on the wire) is refused by ValidateEvidence.
+struct RelabelEvidence : SampleCounts {
+  std::optional<RelabelScheme> scheme;
+  std::optional<RelabelTraining> training;
+  std::vector<RelabelDraw> draws;
+};
+
 // A sample-compression scheme: the model is rebuilt from compression_size of
 // the training examples by a reconstruction fixed before the data were seen.
 // API paths: evidence.compression.{sample_count, compression_size,
@@ -144,6 +184,8 @@ struct Evidence {
   std::optional<RademacherEvidence> rademacher;
   // A sample-compression scheme.
   std::optional<CompressionEvidence> compression;
+  // Raw draws of a relabel-and-retrain experiment (capacity from the data).
+  std::optional<RelabelEvidence> relabel;
 };
 
 // The bound families. Values are stable: they are stored in audit records.
@@ -164,6 +206,7 @@ enum class Family {
   kRademacher = 14,
   kSampleCompression = 15,
   kHoldoutAnytime = 16,
+  kMaximalDiscrepancy = 17,
 };
 
 // The range [loss_min, loss_max] of a bounded loss. API: LossRange.
@@ -203,6 +246,10 @@ struct Certificate {
   // range, not a 0-1 error rate; such bounds are never compared with
   // error-rate bounds or with baseline_error_rate.
   std::optional<LossRange> loss_range;
+  // True when a condition of the bound is not met (relabel evidence from
+  // approximate training): the number is an estimate, not a bound. Certify
+  // prefers any valid certificate as the tightest; the gate refuses it.
+  bool heuristic = false;
 };
 
 // EmpiricalRate

@@ -31,7 +31,14 @@ bool HasBoundedLossTwoSamples(const Evidence& e) {
   return e.bounded_loss.has_value() && e.bounded_loss->sample_count >= 2;
 }
 bool HasPacBayes(const Evidence& e) { return e.pac_bayes.has_value(); }
-bool HasRademacher(const Evidence& e) { return e.rademacher.has_value(); }
+bool HasRelabel(const Evidence& e, RelabelScheme scheme) {
+  return e.relabel.has_value() && e.relabel->scheme == scheme;
+}
+// An averaged complexity, or raw random-sign draws (never both: validation).
+bool HasRademacher(const Evidence& e) {
+  return e.rademacher.has_value() || HasRelabel(e, RelabelScheme::kRandomSigns);
+}
+bool HasHalfFlip(const Evidence& e) { return HasRelabel(e, RelabelScheme::kHalfFlip); }
 bool HasCompression(const Evidence& e) { return e.compression.has_value(); }
 
 constexpr char kHoldoutAssumptions[] =
@@ -52,13 +59,19 @@ constexpr char kPacBayesAssumptions[] =
 constexpr char kRademacherAssumptions[] =
     "training examples drawn i.i.d.; the class fixed before the sample was seen; "
     "0-1 loss; the empirical Rademacher complexity of the {-1,+1} hypothesis class "
-    "in the Mohri et al. convention with an exact supremum; uniform over the class";
+    "in the Mohri et al. convention with an exact supremum (raw draws: every retraining "
+    "reached the minimum 0-1 training error over the class); uniform over the class";
+constexpr char kDiscrepancyAssumptions[] =
+    "training examples drawn i.i.d.; the class fixed before the sample was seen; 0-1 "
+    "loss; each flipped half of sample_count / 2 examples fixed independently of the data; "
+    "every retraining reached the minimum 0-1 training error over the class on its "
+    "relabelled sample; uniform over the class";
 constexpr char kCompressionAssumptions[] =
     "training examples drawn i.i.d.; the reconstruction function fixed before the "
     "sample was seen and the model rebuilt from the compression set alone; 0-1 "
     "loss; errors counted only outside the compression set";
 
-const std::array<FamilySpec, 16> kFamilies = {{
+const std::array<FamilySpec, 17> kFamilies = {{
     {Family::kHoldoutExactBinomial, "holdout-binomial",
      "Exact binomial tail inversion (one-sided Clopper-Pearson) on a hold-out set",
      "Clopper & Pearson (1934); Langford (2005), test-set bound", kHoldoutAssumptions,
@@ -133,8 +146,12 @@ const std::array<FamilySpec, 16> kFamilies = {{
     {Family::kRademacher, "rademacher", "Rademacher-complexity bound on the training error",
      "Mohri, Rostamizadeh & Talwalkar (2018), Theorem 3.5; McDiarmid (1989) for "
      "sampled complexities",
-     kRademacherAssumptions, "evidence.rademacher", CapacityMeasure::kNone, false, HasRademacher,
-     [](const Evidence& e, double d) { return RademacherBound(*e.rademacher, d); }},
+     kRademacherAssumptions, "evidence.rademacher, or evidence.relabel with scheme random signs",
+     CapacityMeasure::kNone, false, HasRademacher,
+     [](const Evidence& e, double d) {
+       return e.rademacher.has_value() ? RademacherBound(*e.rademacher, d)
+                                       : RademacherFromDraws(*e.relabel, d);
+     }},
     {Family::kSampleCompression, "sample-compression", "Sample-compression bound",
      "Langford (2005), sample compression bound; Littlestone & Warmuth (1986); "
      "Floyd & Warmuth (1995)",
@@ -151,6 +168,13 @@ const std::array<FamilySpec, 16> kFamilies = {{
      "recomputed after every batch (any number of looks, stopping whenever)",
      "evidence.holdout", CapacityMeasure::kNone, false, HasHoldout,
      [](const Evidence& e, double d) { return HoldoutAnytime(*e.holdout, d); }},
+    {Family::kMaximalDiscrepancy, "maximal-discrepancy",
+     "Maximal-discrepancy bound from retraining with half the labels flipped",
+     "Bartlett, Boucheron & Lugosi (2002), Machine Learning 48:85-113, maximal discrepancy "
+     "penalty; McDiarmid (1989) for the constant 3 sqrt(ln(1/delta)/(2m))",
+     kDiscrepancyAssumptions, "evidence.relabel with scheme half flip", CapacityMeasure::kNone,
+     false, HasHalfFlip,
+     [](const Evidence& e, double d) { return MaximalDiscrepancyBound(*e.relabel, d); }},
 }};
 
 }  // namespace

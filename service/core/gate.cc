@@ -142,6 +142,23 @@ absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
   const bool evidence_ok = PrepareEvidence(evidence, "candidate.evidence", &v);
   if (evidence_ok && families_ok) {
     const Split split = gate_internal::MakeSplit(policy, *evidence, champion.has_value());
+    // Relabel draws from approximate training give heuristic certificates,
+    // never a bound a verdict may rest on.
+    const bool approximate = evidence->relabel.has_value() &&
+                             evidence->relabel->training == RelabelTraining::kApproximate;
+    for (const FamilySpec* spec : split.families) {
+      const bool reads_relabel = spec->family == Family::kMaximalDiscrepancy ||
+                                 (spec->family == Family::kRademacher && !evidence->rademacher);
+      if (approximate && reads_relabel) {
+        v.push_back({"candidate.evidence.relabel.training",
+                     absl::StrCat("approximate training underestimates the capacity, so ",
+                                  spec->family_name,
+                                  " would give a heuristic estimate, not a bound: a gate "
+                                  "verdict never rests on one (retrain exactly, or leave ",
+                                  spec->family_name, " out of policy.allowed_families)")});
+        break;
+      }
+    }
     if (split.families.empty()) {
       bool all_holdout = true;
       std::vector<std::string> needs;

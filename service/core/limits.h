@@ -22,16 +22,20 @@
 
 namespace riskbound::core {
 
-// CertifyRequest.listed.families (FamilyList.families). There are 15 bound
+// CertifyRequest.listed.families (FamilyList.families). There are 16 bound
 // families and each may be listed once.
 inline constexpr std::size_t kMaxListedFamilies = 64;
+
+// RelabelEvidence.draws (evidence.relabel.draws): retrainings of a
+// relabel-and-retrain experiment.
+inline constexpr std::size_t kMaxRelabelDrawCount = 100000;
 
 // CertifyRequest.listed.delta_weights (FamilyList.delta_weights): one per
 // listed family.
 inline constexpr std::size_t kMaxListedDeltaWeights = 64;
 
 // GateRequest.policy.allowed_families (GatePolicy.allowed_families). There
-// are 15 bound families and each may be allowed once.
+// are 16 bound families and each may be allowed once.
 inline constexpr std::size_t kMaxAllowedFamilies = 64;
 
 // SelectStructureRequest.structure: nested classes of one structure. Real

@@ -82,6 +82,24 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
     c.size_fixed_in_advance = k.size_fixed_in_advance();
     out->compression = c;
   }
+  if (e.has_relabel()) {
+    const v1::RelabelEvidence& r = e.relabel();
+    core::RelabelEvidence c;
+    c.error_count = r.error_count();
+    c.sample_count = r.sample_count();
+    c.scheme = RelabelSchemeFromProto(r.scheme());
+    c.training = RelabelTrainingFromProto(r.training());
+    // An oversized list is refused whole; the core names an empty one.
+    if (refusals->RefuseList(prefix + ".relabel.draws", r.draws_size(),
+                             core::kMaxRelabelDrawCount)) {
+      c.draws.reserve(r.draws_size());
+      for (const v1::RelabelDraw& d : r.draws()) {
+        c.draws.push_back(
+            {d.relabelled_error_count(), d.flipped_half_error_count(), d.kept_half_error_count()});
+      }
+    }
+    out->relabel = std::move(c);
+  }
 }
 
 Converted<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
@@ -130,6 +148,7 @@ void CertificateToProto(const core::Certificate& in, v1::Certificate* out) {
   out->set_penalty(in.penalty);
   out->set_vacuous(in.vacuous);
   out->set_exact(in.exact);
+  out->set_heuristic(in.heuristic);
   for (const std::string& note : in.notes) out->add_notes(note);
   if (in.loss_range.has_value()) {
     out->mutable_loss_range()->set_loss_min(in.loss_range->loss_min);

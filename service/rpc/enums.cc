@@ -45,6 +45,17 @@ constexpr Row<v1::BoundFamily, core::Family> kFamilies[] = {
     {v1::BOUND_FAMILY_RADEMACHER, core::Family::kRademacher},
     {v1::BOUND_FAMILY_SAMPLE_COMPRESSION, core::Family::kSampleCompression},
     {v1::BOUND_FAMILY_HOLDOUT_ANYTIME, core::Family::kHoldoutAnytime},
+    {v1::BOUND_FAMILY_MAXIMAL_DISCREPANCY, core::Family::kMaximalDiscrepancy},
+};
+
+constexpr Row<v1::RelabelScheme, core::RelabelScheme> kRelabelSchemes[] = {
+    {v1::RELABEL_SCHEME_RANDOM_SIGNS, core::RelabelScheme::kRandomSigns},
+    {v1::RELABEL_SCHEME_HALF_FLIP, core::RelabelScheme::kHalfFlip},
+};
+
+constexpr Row<v1::RelabelTraining, core::RelabelTraining> kRelabelTrainings[] = {
+    {v1::RELABEL_TRAINING_EXACT, core::RelabelTraining::kExact},
+    {v1::RELABEL_TRAINING_APPROXIMATE, core::RelabelTraining::kApproximate},
 };
 
 constexpr Row<v1::PacBayesTarget, core::PacBayesTarget> kPacBayesTargets[] = {
@@ -105,6 +116,20 @@ std::optional<core::PacBayesTarget> PacBayesTargetFromProto(int wire) {
 }
 v1::PacBayesTarget PacBayesTargetToProto(core::PacBayesTarget target) {
   return WireOf(kPacBayesTargets, target, v1::PAC_BAYES_TARGET_UNSPECIFIED);
+}
+
+std::optional<core::RelabelScheme> RelabelSchemeFromProto(int wire) {
+  return CoreOf(kRelabelSchemes, wire);
+}
+v1::RelabelScheme RelabelSchemeToProto(core::RelabelScheme scheme) {
+  return WireOf(kRelabelSchemes, scheme, v1::RELABEL_SCHEME_UNSPECIFIED);
+}
+
+std::optional<core::RelabelTraining> RelabelTrainingFromProto(int wire) {
+  return CoreOf(kRelabelTrainings, wire);
+}
+v1::RelabelTraining RelabelTrainingToProto(core::RelabelTraining training) {
+  return WireOf(kRelabelTrainings, training, v1::RELABEL_TRAINING_UNSPECIFIED);
 }
 
 std::optional<core::ModelKind> ModelKindFromProto(int wire) { return CoreOf(kModelKinds, wire); }

@@ -34,6 +34,12 @@ v1::BoundFamily FamilyToProto(core::Family family);
 std::optional<core::PacBayesTarget> PacBayesTargetFromProto(int wire);
 v1::PacBayesTarget PacBayesTargetToProto(core::PacBayesTarget target);
 
+std::optional<core::RelabelScheme> RelabelSchemeFromProto(int wire);
+v1::RelabelScheme RelabelSchemeToProto(core::RelabelScheme scheme);
+
+std::optional<core::RelabelTraining> RelabelTrainingFromProto(int wire);
+v1::RelabelTraining RelabelTrainingToProto(core::RelabelTraining training);
+
 std::optional<core::ModelKind> ModelKindFromProto(int wire);
 v1::ModelKind ModelKindToProto(core::ModelKind kind);
 

@@ -16,6 +16,7 @@
 #include "absl/strings/string_view.h"
 #include "riskbound/v1/capacity.pb.h"
 #include "riskbound/v1/certify.pb.h"
+#include "riskbound/v1/effective_vc.pb.h"
 #include "riskbound/v1/families.pb.h"
 #include "riskbound/v1/gate.pb.h"
 #include "riskbound/v1/plan.pb.h"
@@ -38,6 +39,8 @@ absl::StatusOr<v1::CertifyResponse> HandleCertify(const v1::CertifyRequest& requ
                                                   const CallInfo& call);
 absl::StatusOr<v1::EstimateCapacityResponse> HandleEstimateCapacity(
     const v1::EstimateCapacityRequest& request, const CallInfo& call);
+absl::StatusOr<v1::FitEffectiveVcDimensionResponse> HandleFitEffectiveVcDimension(
+    const v1::FitEffectiveVcDimensionRequest& request, const CallInfo& call);
 absl::StatusOr<v1::GateResponse> HandleGate(const v1::GateRequest& request,
                                             const CallInfo& call);
 absl::StatusOr<v1::SelectStructureResponse> HandleSelectStructure(

@@ -21,7 +21,7 @@ constexpr char kJson[] = "application/json";
 // The JSON methods' paths, for the answer to an unknown path.
 constexpr char kMethodPaths[] =
     "/v1/Certify, /v1/EstimateCapacity, /v1/Gate, /v1/SelectStructure, /v1/PlanSamples, "
-    "/v1/ListFamilies";
+    "/v1/ListFamilies, /v1/FitEffectiveVcDimension";
 
 // The outcome of one JSON call.
 struct JsonAnswer {
@@ -167,7 +167,7 @@ std::unique_ptr<httplib::Server> MakeServer(const TlsFiles& tls) {
 // The JSON methods, for the metrics' rpc label of a refused call (a fixed
 // set: a path never becomes a label).
 constexpr const char* kMethods[] = {"Certify", "EstimateCapacity", "Gate", "SelectStructure",
-                                    "PlanSamples"};
+                                    "PlanSamples", "FitEffectiveVcDimension"};
 
 }  // namespace
 
@@ -241,6 +241,7 @@ void HttpGateway::Route() {
   method("SelectStructure", &HandleSelectStructure);
   method("PlanSamples", &HandlePlanSamples);
   method("ListFamilies", &HandleListFamilies);
+  method("FitEffectiveVcDimension", &HandleFitEffectiveVcDimension);
   server_->set_error_handler([](const httplib::Request& req, httplib::Response& res) {
     if (!res.body.empty()) return;
     res.set_header(kRequestIdKey, RequestIdOf(req));

@@ -274,6 +274,13 @@ grpc::ServerUnaryReactor* RiskBoundService::ListFamilies(grpc::CallbackServerCon
   return Dispatch("ListFamilies", context, request, response, &HandleListFamilies);
 }
 
+grpc::ServerUnaryReactor* RiskBoundService::FitEffectiveVcDimension(
+    grpc::CallbackServerContext* context, const grpc::ByteBuffer* request,
+    grpc::ByteBuffer* response) {
+  return Dispatch("FitEffectiveVcDimension", context, request, response,
+                  &HandleFitEffectiveVcDimension);
+}
+
 // ---------------------------------------------------------------------------
 // ScoreRegistry: one reactor per stream.
 

@@ -51,7 +51,8 @@ using RawRiskBoundService = v1::RiskBound::WithRawCallbackMethod_Certify<
                 v1::RiskBound::WithRawCallbackMethod_PlanSamples<
                     v1::RiskBound::WithRawCallbackMethod_ListFamilies<
                         v1::RiskBound::WithRawCallbackMethod_ScoreRegistry<
-                            v1::RiskBound::Service>>>>>>>;
+                            v1::RiskBound::WithRawCallbackMethod_FitEffectiveVcDimension<
+                                v1::RiskBound::Service>>>>>>>>;
 
 // A call in flight that CancelAll can stop.
 class Cancellable {
@@ -92,6 +93,9 @@ class RiskBoundService final : public internal::RawRiskBoundService {
   grpc::ServerUnaryReactor* ListFamilies(grpc::CallbackServerContext* context,
                                          const grpc::ByteBuffer* request,
                                          grpc::ByteBuffer* response) override;
+  grpc::ServerUnaryReactor* FitEffectiveVcDimension(grpc::CallbackServerContext* context,
+                                                    const grpc::ByteBuffer* request,
+                                                    grpc::ByteBuffer* response) override;
   // The registry stream (registry.proto): admitted to the CallPool once for
   // its whole life (one pending call), each record computed on a pool
   // thread in turn, one record in flight per stream, so the server buffers

@@ -289,6 +289,20 @@ Evidence AllKinds(double rate, std::uint64_t m, double cap) {
   const auto d = static_cast<std::uint64_t>(cap);
   e.compression = CompressionEvidence{
       m, d, static_cast<std::uint64_t>(std::llround(rate * static_cast<double>(m - d))), false};
+  // Half-flip draws with maximal discrepancy exactly cap/20 (4 draws, the
+  // flipped-half excess m cap / 10 spread over them; m a multiple of 10).
+  RelabelEvidence r;
+  r.error_count = k;
+  r.sample_count = m;
+  r.scheme = RelabelScheme::kHalfFlip;
+  r.training = RelabelTraining::kExact;
+  std::uint64_t excess = m * static_cast<std::uint64_t>(cap) / 10;
+  for (int j = 0; j < 4; ++j) {
+    const std::uint64_t f = std::min(m / 2, excess);
+    excess -= f;
+    r.draws.push_back({0, f, 0});
+  }
+  e.relabel = r;
   return e;
 }
 
@@ -337,7 +351,7 @@ TEST(EvidenceKindsTest, PropertyGrid) {
       }
     }
   }
-  EXPECT_EQ(checked, 8 * 4 * 4 * 5 * 5);
+  EXPECT_EQ(checked, 9 * 4 * 4 * 5 * 5);  // 9 families from bounded-hoeffding on
 }
 
 }  // namespace

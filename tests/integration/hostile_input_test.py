@@ -229,7 +229,8 @@ class DecodeTest(OneServerTest):
         return ctx.exception
 
     def test_garbage_bytes(self):
-        for method in ("Certify", "EstimateCapacity", "Gate", "SelectStructure", "PlanSamples"):
+        for method in ("Certify", "EstimateCapacity", "Gate", "SelectStructure", "PlanSamples",
+                       "FitEffectiveVcDimension"):
             err = self.raw_call(method, b"\xff\xff\xff\xff\xff\x07garbage")
             self.assertEqual(err.code(), grpc.StatusCode.INVALID_ARGUMENT, method)
             self.assertIn("could not be decoded", err.details())

@@ -39,6 +39,8 @@ const std::map<std::string, RoundTrip>& Tables() {
   static const auto* const kTables = new std::map<std::string, RoundTrip>{
       {"riskbound.v1.BoundFamily", Through(&FamilyFromProto, &FamilyToProto)},
       {"riskbound.v1.PacBayesTarget", Through(&PacBayesTargetFromProto, &PacBayesTargetToProto)},
+      {"riskbound.v1.RelabelScheme", Through(&RelabelSchemeFromProto, &RelabelSchemeToProto)},
+      {"riskbound.v1.RelabelTraining", Through(&RelabelTrainingFromProto, &RelabelTrainingToProto)},
       {"riskbound.v1.ModelKind", Through(&ModelKindFromProto, &ModelKindToProto)},
       {"riskbound.v1.CapacityStatus", Through(&CapacityStatusFromProto, &CapacityStatusToProto)},
       {"riskbound.v1.DeltaSpread", Through(&DeltaSpreadFromProto, &DeltaSpreadToProto)},
@@ -129,12 +131,20 @@ TEST(EnumTablesTest, EveryCoreValueMapsToAWireValue) {
         core::Family::kBoundedKl, core::Family::kBoundedEmpiricalBernstein,
         core::Family::kPacBayesMcAllester, core::Family::kPacBayesKl, core::Family::kPacBayesCatoni,
         core::Family::kRademacher, core::Family::kSampleCompression,
-        core::Family::kHoldoutAnytime}) {
+        core::Family::kHoldoutAnytime, core::Family::kMaximalDiscrepancy}) {
     EXPECT_NE(FamilyToProto(f), v1::BOUND_FAMILY_UNSPECIFIED);
     EXPECT_EQ(FamilyFromProto(FamilyToProto(f)), f);
   }
   for (core::PacBayesTarget t : {core::PacBayesTarget::kGibbs, core::PacBayesTarget::kMajorityVote}) {
     EXPECT_EQ(PacBayesTargetFromProto(PacBayesTargetToProto(t)), t);
+  }
+  for (core::RelabelScheme s :
+       {core::RelabelScheme::kRandomSigns, core::RelabelScheme::kHalfFlip}) {
+    EXPECT_EQ(RelabelSchemeFromProto(RelabelSchemeToProto(s)), s);
+  }
+  for (core::RelabelTraining t :
+       {core::RelabelTraining::kExact, core::RelabelTraining::kApproximate}) {
+    EXPECT_EQ(RelabelTrainingFromProto(RelabelTrainingToProto(t)), t);
   }
   for (core::CapacityStatus s : {core::CapacityStatus::kExact, core::CapacityStatus::kUpperBound,
                                  core::CapacityStatus::kInfinite}) {
