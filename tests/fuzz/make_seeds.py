@@ -15,8 +15,8 @@ import sys
 
 sys.path.insert(0, sys.argv[1])
 from google.protobuf import json_format  # noqa: E402
-from riskbound.v1 import (capacity_pb2, certify_pb2, families_pb2, gate_pb2,  # noqa: E402
-                          plan_pb2, registry_pb2, select_pb2)
+from riskbound.v1 import (capacity_pb2, certify_pb2, effective_vc_pb2, families_pb2,  # noqa: E402
+                          gate_pb2, plan_pb2, registry_pb2, select_pb2)
 
 ROOT = os.getcwd()
 EX = os.path.join(ROOT, "examples", "fernhill")
@@ -58,6 +58,12 @@ def main():
     plan.holdout.expected_risk = 0.03
     plan.holdout.failure_probability = 0.05
     write("rpc_request_fuzz", "plan-holdout", b"\x04" + plan.SerializeToString())
+    req = parse(os.path.join(EX, "requests", "threshold-relabel-draws.json"),
+                certify_pb2.CertifyRequest())
+    write("rpc_request_fuzz", "certify-relabel-draws", b"\x00" + req.SerializeToString())
+    req = parse(os.path.join(EX, "requests", "threshold-deviations.json"),
+                effective_vc_pb2.FitEffectiveVcDimensionRequest())
+    write("rpc_request_fuzz", "effective-vc", b"\x08" + req.SerializeToString())
     write("rpc_request_fuzz", "list-families", b"\x05" + families_pb2.ListFamiliesRequest().SerializeToString())
     with open(os.path.join(EX, "registry", "registry.jsonl")) as f:
         for i, line in enumerate(f):

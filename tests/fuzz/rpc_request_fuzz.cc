@@ -113,7 +113,7 @@ void RunRecord(const uint8_t* data, size_t size, bool gate) {
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   if (size < 1) return 0;
-  const uint8_t method = data[0] % 8;
+  const uint8_t method = data[0] % 9;
   ++data;
   --size;
   using namespace riskbound;
@@ -136,6 +136,10 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
       break;
     case 6: RunRecord(data, size, false); break;
     case 7: RunRecord(data, size, true); break;
+    case 8:
+      Run<v1::FitEffectiveVcDimensionRequest, v1::FitEffectiveVcDimensionResponse>(
+          data, size, &rpc::HandleFitEffectiveVcDimension);
+      break;
   }
   return 0;
 }
