@@ -290,7 +290,15 @@ class HttpTest(unittest.TestCase):
         for family in ("holdout-binomial", "holdout-hoeffding", "holdout-kl"):
             self.assertEqual(delta("riskbound_certificates_total", family=family), 7, family)
         self.assertEqual(value_of(after, "riskbound_limit", name="max_request_bytes"), 65536)
-        self.assertEqual(value_of(after, "riskbound_calls_in_flight"), 0)
+        # A call leaves the in-flight gauge in its last callback (OnDone),
+        # which gRPC runs just after the client has its answer: wait for it.
+        in_flight = value_of(after, "riskbound_calls_in_flight")
+        deadline = time.monotonic() + 5
+        while in_flight != 0 and time.monotonic() < deadline:
+            time.sleep(0.02)
+            _, _, text = self.request("GET", "/metrics")
+            in_flight = value_of(parse_exposition(text)[1], "riskbound_calls_in_flight")
+        self.assertEqual(in_flight, 0)
         build = [l for n, l, v in after if n == "riskbound_build_info"]
         self.assertEqual(len(build), 1)
         self.assertRegex(build[0]["version"], r"^\d+\.\d+\.\d+$")
