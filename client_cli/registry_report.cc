@@ -6,6 +6,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
 #include "client_cli/format.h"
+#include "client_cli/svg_plot.h"
 
 namespace riskbound::cli {
 namespace {
@@ -33,22 +34,6 @@ const char* ColorOf(const std::string& outcome) {
 }
 
 }  // namespace
-
-std::string HtmlEscape(const std::string& text) {
-  std::string out;
-  out.reserve(text.size());
-  for (char c : text) {
-    switch (c) {
-      case '&': out += "&amp;"; break;
-      case '<': out += "&lt;"; break;
-      case '>': out += "&gt;"; break;
-      case '"': out += "&quot;"; break;
-      case '\'': out += "&#39;"; break;
-      default: out += c;
-    }
-  }
-  return out;
-}
 
 void RegistryReport::Add(const Row& row) {
   ++rows_;
@@ -108,7 +93,7 @@ std::string RegistryReport::Render(const v1::RunSummary& summary, const std::str
       "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
       "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
       "<title>riskbound registry report: ",
-      HtmlEscape(title),
+      EscapeMarkup(title),
       "</title>\n<style>\n"
       "body{font-family:sans-serif;margin:2em;max-width:960px;color:#212121}\n"
       "table{border-collapse:collapse;margin:1em 0}\n"
@@ -117,7 +102,7 @@ std::string RegistryReport::Render(const v1::RunSummary& summary, const std::str
       ".note{color:#616161;font-size:13px}\n"
       "</style>\n</head>\n<body>\n"
       "<h1>Registry scoring report</h1>\n<p class=\"note\">Input: ",
-      HtmlEscape(title), ". Engine ", HtmlEscape(summary.engine_version()), ".</p>\n");
+      EscapeMarkup(title), ". Engine ", EscapeMarkup(summary.engine_version()), ".</p>\n");
 
   // Counts.
   absl::StrAppend(&html,
@@ -176,9 +161,9 @@ std::string RegistryReport::Render(const v1::RunSummary& summary, const std::str
                             "<rect x=\"%d\" y=\"%d\" width=\"%.1f\" height=\"%d\" fill=\"%s\">"
                             "<title>%s: %s (%s)</title></rect>"
                             "<text x=\"%.1f\" y=\"%d\" font-size=\"10\">%s</text>\n",
-                            left - 6, y + 11, HtmlEscape(p.label), left, y + 2,
+                            left - 6, y + 11, EscapeMarkup(p.label), left, y + 2,
                             x_of(p.upper) - left, row_h - 4, ColorOf(p.outcome),
-                            HtmlEscape(p.label), FormatUpper(p.upper), p.outcome, x_of(p.upper) + 4,
+                            EscapeMarkup(p.label), FormatUpper(p.upper), p.outcome, x_of(p.upper) + 4,
                             y + 11, FormatUpper(p.upper));
     }
     if (max_risk_.has_value()) {
@@ -204,7 +189,7 @@ std::string RegistryReport::Render(const v1::RunSummary& summary, const std::str
       for (const Row& row : holds_) {
         const v1::GateResponse& g = row.result.gated();
         absl::StrAppend(&html, "<tr><td class=\"num\">", row.line, "</td><td>",
-                        HtmlEscape(LabelOf(row)), "</td><td class=\"num\">",
+                        EscapeMarkup(LabelOf(row)), "</td><td class=\"num\">",
                         FormatUpper(g.risk_certificate().risk_upper_bound()),
                         "</td><td class=\"num\">",
                         g.has_additional_sample_count() ? absl::StrCat(g.additional_sample_count())
@@ -234,9 +219,9 @@ std::string RegistryReport::Render(const v1::RunSummary& summary, const std::str
         fields += v.field();
       }
       absl::StrAppend(&html, "<tr><td class=\"num\">", row.line, "</td><td>",
-                      HtmlEscape(LabelOf(row)), "</td><td>", HtmlEscape(row.result.error().code()),
-                      "</td><td>", HtmlEscape(fields), "</td><td>",
-                      HtmlEscape(row.result.error().message()), "</td></tr>\n");
+                      EscapeMarkup(LabelOf(row)), "</td><td>", EscapeMarkup(row.result.error().code()),
+                      "</td><td>", EscapeMarkup(fields), "</td><td>",
+                      EscapeMarkup(row.result.error().message()), "</td></tr>\n");
     }
     html += "</table>\n";
     if (errors_ > error_rows_.size()) {
@@ -246,9 +231,9 @@ std::string RegistryReport::Render(const v1::RunSummary& summary, const std::str
   }
 
   absl::StrAppend(&html, "<h2>What holds</h2>\n<p id=\"statement\">",
-                  HtmlEscape(summary.statement()), "</p>\n<h2>Cautions</h2>\n<ul>\n");
+                  EscapeMarkup(summary.statement()), "</p>\n<h2>Cautions</h2>\n<ul>\n");
   for (const std::string& c : summary.cautions()) {
-    absl::StrAppend(&html, "<li>", HtmlEscape(c), "</li>\n");
+    absl::StrAppend(&html, "<li>", EscapeMarkup(c), "</li>\n");
   }
   html += "</ul>\n</body>\n</html>\n";
   return html;

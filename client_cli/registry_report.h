@@ -56,10 +56,6 @@ class RegistryReport {
   std::vector<Row> holds_, error_rows_;
 };
 
-// HtmlEscape
-// `text` with &, <, >, " and ' escaped for HTML text and attribute values.
-std::string HtmlEscape(const std::string& text);
-
 }  // namespace riskbound::cli
 
 #endif  // RISKBOUND_CLIENT_CLI_REGISTRY_REPORT_H_

@@ -27,20 +27,6 @@ constexpr char kPenaltyColor[] = "#c2571a";
 constexpr char kBoundColor[] = "#1a1a1a";
 constexpr char kChosenColor[] = "#c81e1e";
 
-std::string Escape(const std::string& text) {
-  std::string out;
-  for (char c : text) {
-    switch (c) {
-      case '&': out += "&amp;"; break;
-      case '<': out += "&lt;"; break;
-      case '>': out += "&gt;"; break;
-      case '"': out += "&quot;"; break;
-      case '\'': out += "&apos;"; break;
-      default: out += c;
-    }
-  }
-  return out;
-}
 
 // 1, 2 or 5 times a power of ten, >= raw. REQUIRES: raw > 0.
 double NiceStep(double raw) {
@@ -161,6 +147,21 @@ Box PlaceLabel(const std::string& text, double x, const std::vector<double>& bas
 
 }  // namespace
 
+std::string EscapeMarkup(const std::string& text) {
+  std::string out;
+  for (char c : text) {
+    switch (c) {
+      case '&': out += "&amp;"; break;
+      case '<': out += "&lt;"; break;
+      case '>': out += "&gt;"; break;
+      case '"': out += "&quot;"; break;
+      case '\'': out += "&apos;"; break;
+      default: out += c;
+    }
+  }
+  return out;
+}
+
 std::string RenderSrmSvg(const SrmPlot& plot) {
   const std::vector<std::string> subtitle_lines =
       plot.subtitle.empty() ? std::vector<std::string>{}
@@ -176,7 +177,7 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
                         "<svg xmlns=\"http://www.w3.org/2000/svg\" version=\"1.1\" width=\"%s\" "
                         "height=\"%s\" viewBox=\"0 0 %s %s\" font-family=\"sans-serif\">\n",
                         Num(kWidth), Num(height), Num(kWidth), Num(height));
-  absl::StrAppend(&s, "  <title>", Escape(plot.title), "</title>\n");
+  absl::StrAppend(&s, "  <title>", EscapeMarkup(plot.title), "</title>\n");
   absl::StrAppend(&s,
                   "  <desc>Empirical risk, capacity penalty and their sum (the bound) of each "
                   "candidate against its capacity; the ring marks the candidate with the "
@@ -186,10 +187,10 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
 
   // Headings.
   absl::StrAppend(&s, "  <text x=\"40\" y=\"34\" font-size=\"19\" font-weight=\"bold\">",
-                  Escape(plot.title), "</text>\n");
+                  EscapeMarkup(plot.title), "</text>\n");
   for (std::size_t i = 0; i < subtitle_lines.size(); ++i) {
     absl::StrAppendFormat(&s, "  <text x=\"40\" y=\"%s\" font-size=\"12.5\" fill=\"#444\">%s</text>\n",
-                          Num(56.0 + 16.0 * static_cast<double>(i)), Escape(subtitle_lines[i]));
+                          Num(56.0 + 16.0 * static_cast<double>(i)), EscapeMarkup(subtitle_lines[i]));
   }
 
   // Grid, axes, ticks.
@@ -232,7 +233,7 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
   absl::StrAppendFormat(&s,
                         "  <text class=\"axis-label\" x=\"%s\" y=\"%s\" font-size=\"13.5\" "
                         "text-anchor=\"middle\">%s</text>\n",
-                        Num((kLeft + kRight) / 2), Num(kBottom + 46), Escape(x_label));
+                        Num((kLeft + kRight) / 2), Num(kBottom + 46), EscapeMarkup(x_label));
   absl::StrAppendFormat(&s,
                         "  <text class=\"axis-label\" x=\"%s\" y=\"%s\" font-size=\"13.5\" "
                         "text-anchor=\"middle\" transform=\"rotate(-90 %s %s)\">"
@@ -273,7 +274,7 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
     for (const SrmPoint& p : plot.points) {
       absl::StrAppendFormat(&s, "    <circle cx=\"%s\" cy=\"%s\" r=\"3.2\"><title>%s: %s</title></circle>\n",
                             Num(x.to_pixel(p.capacity)), Num(y.to_pixel(c.value(p))),
-                            Escape(p.id), c.label(c.value(p)));
+                            EscapeMarkup(p.id), c.label(c.value(p)));
     }
     absl::StrAppend(&s, "  </g>\n");
   }
@@ -302,7 +303,7 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
                         "font-weight=\"bold\" fill=\"%s\" text-anchor=\"middle\" stroke=\"white\" "
                         "stroke-width=\"3\" paint-order=\"stroke\">chosen: %s</text>\n",
                         Num(chosen_box.center_x), Num(chosen_box.baseline), kChosenColor,
-                        Escape(chosen.id));
+                        EscapeMarkup(chosen.id));
   absl::StrAppend(&s, "  <g class=\"candidate-labels\" font-size=\"10.5\" fill=\"#555\" "
                       "text-anchor=\"middle\" stroke=\"white\" stroke-width=\"3\" "
                       "paint-order=\"stroke\">\n");
@@ -313,7 +314,7 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
     const double py = y.to_pixel(p.upper_bound);
     const Box box = PlaceLabel(p.id, px, {py - 9, py + 19, py - 24}, 10.5, &placed);
     absl::StrAppendFormat(&s, "    <text x=\"%s\" y=\"%s\">%s</text>\n", Num(box.center_x),
-                          Num(box.baseline), Escape(p.id));
+                          Num(box.baseline), EscapeMarkup(p.id));
   }
   absl::StrAppend(&s, "  </g>\n");
 
@@ -383,7 +384,7 @@ std::string RenderDeviationSvg(const std::string& title, const std::string& subt
       "<rect width=\"100%%\" height=\"100%%\" fill=\"white\"/>\n"
       "<text x=\"%g\" y=\"24\" font-size=\"15\" font-weight=\"bold\">%s</text>\n"
       "<text x=\"%g\" y=\"44\" font-size=\"12\">%s</text>\n",
-      kWidth, kHeight, kWidth, kHeight, kLeft, Escape(title), kLeft, Escape(subtitle));
+      kWidth, kHeight, kWidth, kHeight, kLeft, EscapeMarkup(title), kLeft, EscapeMarkup(subtitle));
   for (double xi : {0.0, 0.25, 0.5, 0.75, 1.0}) {
     absl::StrAppendFormat(&out,
                           "<line x1=\"%.2f\" y1=\"%.2f\" x2=\"%.2f\" y2=\"%.2f\" "

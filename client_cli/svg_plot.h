@@ -49,6 +49,11 @@ struct SrmPlot {
 // Thread-safe; no shared state.
 std::string RenderSrmSvg(const SrmPlot& plot);
 
+// EscapeMarkup
+// `text` with &, <, >, " and ' escaped for XML and HTML text and attribute
+// values (the SVG plots and the HTML report of `riskbound score`).
+std::string EscapeMarkup(const std::string& text);
+
 // One design point of an effective VC dimension fit.
 struct DeviationPlotPoint {
   // Half-size n >= 1.
