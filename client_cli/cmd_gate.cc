@@ -340,19 +340,6 @@ std::optional<std::string> ApplyFlags(const ParsedArgs& args, v1::GateRequest* r
   return std::nullopt;
 }
 
-const char* VerdictWord(v1::Verdict v) {
-  switch (v) {
-    case v1::VERDICT_PROMOTE:
-      return "PROMOTE";
-    case v1::VERDICT_HOLD:
-      return "HOLD";
-    case v1::VERDICT_REJECT:
-      return "REJECT";
-    default:
-      return "UNSPECIFIED";
-  }
-}
-
 // The table's lines, each indented by two spaces.
 std::string Indented(const Table& table) {
   std::string out;

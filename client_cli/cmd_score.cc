@@ -28,6 +28,7 @@
 #include "client_cli/exit_codes.h"
 #include "client_cli/format.h"
 #include "client_cli/json_io.h"
+#include "client_cli/names.h"
 #include "client_cli/registry_report.h"
 #include "client_cli/registry_rows.h"
 #include "client_cli/shared_flags.h"
@@ -332,8 +333,7 @@ std::string TableRow(const Row& row) {
   const v1::RecordResult& r = row.result;
   std::string result, detail;
   if (r.has_gated()) {
-    const std::string v = v1::Verdict_Name(r.gated().verdict());
-    result = v.rfind("VERDICT_", 0) == 0 ? v.substr(8) : v;
+    result = VerdictWord(r.gated().verdict());
     detail =
         absl::StrCat("upper bound ", FormatUpper(r.gated().risk_certificate().risk_upper_bound()));
     if (r.gated().has_additional_sample_count()) {
@@ -543,7 +543,6 @@ int RunScore(const std::vector<std::string>& raw_args, std::ostream& out, std::o
     *first.mutable_settings() = settings;
     streams.back()->Write(first);
   }
-  Stream* stream = streams[0].get();
 
   PendingQueue queue;
   std::atomic<std::uint64_t> bytes_read{0};
@@ -554,7 +553,6 @@ int RunScore(const std::vector<std::string>& raw_args, std::ostream& out, std::o
     std::size_t index = 0;
     std::size_t turn = 0;
     std::vector<bool> open(n_streams, true);
-    bool stream_ok = true;
     while (!queue.abandoned() && lines.Next(&text, &number)) {
       bytes_read.store(lines.bytes(), std::memory_order_relaxed);
       v1::ScoreRegistryRequest item;
@@ -570,9 +568,10 @@ int RunScore(const std::vector<std::string>& raw_args, std::ostream& out, std::o
               absl::StrCat("row ", index + 1, " of the file answers line ", prior[index].line,
                            " but that row of the input is line ", number);
         }
-        if (shared && read.ok() && !prior[index].result.has_error() && stream_ok) {
+        // (Per-holdout-set sharing runs one stream.)
+        if (shared && read.ok() && !prior[index].result.has_error() && open[0]) {
           record->set_ledger_only(true);
-          stream_ok = stream->Write(item);
+          open[0] = streams[0]->Write(item);
         }
         ++index;
         continue;
@@ -592,7 +591,7 @@ int RunScore(const std::vector<std::string>& raw_args, std::ostream& out, std::o
       if (unsent) break;
     }
     for (std::size_t i = 0; i < n_streams; ++i) {
-      if (open[i] && (i > 0 || stream_ok)) streams[i]->WritesDone();
+      if (open[i]) streams[i]->WritesDone();
     }
     queue.Close();
   });

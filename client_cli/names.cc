@@ -99,4 +99,17 @@ std::optional<v1::ModelKind> ModelKindFromEnumName(absl::string_view name) {
   return std::nullopt;
 }
 
+const char* VerdictWord(v1::Verdict v) {
+  switch (v) {
+    case v1::VERDICT_PROMOTE:
+      return "PROMOTE";
+    case v1::VERDICT_HOLD:
+      return "HOLD";
+    case v1::VERDICT_REJECT:
+      return "REJECT";
+    default:
+      return "UNSPECIFIED";
+  }
+}
+
 }  // namespace riskbound::cli

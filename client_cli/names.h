@@ -13,6 +13,7 @@
 #include "absl/strings/string_view.h"
 #include "riskbound/v1/capacity.pb.h"
 #include "riskbound/v1/common.pb.h"
+#include "riskbound/v1/gate.pb.h"
 
 namespace riskbound::cli {
 
@@ -44,6 +45,10 @@ std::optional<v1::ModelKind> ModelKindFromEnumName(absl::string_view name);
 // The enum value name without `prefix`, lower case, '_' as '-'
 // ("MODEL_KIND_RELU_NETWORK", "MODEL_KIND_" -> "relu-network").
 std::string EnumWord(absl::string_view enum_name, absl::string_view prefix);
+
+// VerdictWord
+// "PROMOTE", "HOLD" or "REJECT"; "UNSPECIFIED" for anything else.
+const char* VerdictWord(v1::Verdict verdict);
 
 }  // namespace riskbound::cli
 

@@ -286,8 +286,7 @@ std::string RowText(const Row& row, OutputFormat format) {
   if (result.has_gated()) {
     const v1::GateResponse& g = result.gated();
     cells[5] = "gated";
-    const std::string verdict = v1::Verdict_Name(g.verdict());
-    cells[6] = verdict.rfind("VERDICT_", 0) == 0 ? verdict.substr(8) : verdict;
+    cells[6] = VerdictWord(g.verdict());
     cells[7] = Shortest(g.risk_certificate().risk_upper_bound());
     if (g.has_risk_lower_bound()) cells[8] = Shortest(g.risk_lower_bound());
     cells[9] = Shortest(g.risk_certificate().empirical_risk());
