@@ -33,15 +33,19 @@ bool Reroot(std::string* path, const std::string& from, const std::string& to) {
   return false;
 }
 
-// Moves the refusals of a sub-request converted at the root under `prefix`.
-void RerootRefusals(Refusals in, const std::string& prefix, Refusals* out) {
+// Moves the refusals of a sub-request at paths under `from` to the same
+// paths under `to`; refusals elsewhere in the sub-request (parts the
+// settings do not have) are dropped.
+void RerootRefusals(Refusals in, const std::string& from, const std::string& to,
+                    Refusals* out) {
   for (core::FieldViolation& v : in.violations) {
-    v.field = absl::StrCat(prefix, ".", v.field);
-    out->violations.push_back(std::move(v));
+    if (Reroot(&v.field, from, to)) out->violations.push_back(std::move(v));
   }
-  for (std::string& p : in.skipped) out->skipped.push_back(absl::StrCat(prefix, ".", p));
+  for (std::string& p : in.skipped) {
+    if (Reroot(&p, from, to)) out->skipped.push_back(std::move(p));
+  }
   for (std::string& p : in.skipped_exact) {
-    out->skipped_exact.push_back(absl::StrCat(prefix, ".", p));
+    if (Reroot(&p, from, to)) out->skipped_exact.push_back(std::move(p));
   }
 }
 
@@ -57,7 +61,6 @@ std::string RecordPath(std::string path, bool gate) {
     return path;  // champion.* is the record's champion.*
   }
   if (Reroot(&path, "listed", "settings.certify.listed")) return path;
-  if (Reroot(&path, "failure_probability", "failure_probability")) return path;
   return path;  // evidence.* is the record's evidence.*
 }
 
@@ -85,23 +88,14 @@ Converted<core::RegistrySettings> RegistrySettingsFromProto(const v1::ScoreSetti
     if (in.certify().has_all_applicable()) as_request.mutable_all_applicable();
     Converted<core::CertifyRequest> c = CertifyRequestFromProto(as_request);
     r.certify = std::move(c.request);
-    RerootRefusals(std::move(c.refusals), "settings.certify", &out.refusals);
+    RerootRefusals(std::move(c.refusals), "listed", "settings.certify.listed", &out.refusals);
   }
   if (in.has_gate()) {
     v1::GateRequest as_request;
     *as_request.mutable_policy() = in.gate();
     Converted<GateInputs> g = GateInputsFromProto(as_request);
     r.gate = std::move(g.request.policy);
-    Refusals policy_refusals;
-    for (core::FieldViolation& v : g.refusals.violations) {
-      if (Reroot(&v.field, "policy", "settings.gate")) policy_refusals.violations.push_back(v);
-    }
-    for (std::string p : g.refusals.skipped) {
-      if (Reroot(&p, "policy", "settings.gate")) out.refusals.skipped.push_back(p);
-    }
-    for (core::FieldViolation& v : policy_refusals.violations) {
-      out.refusals.violations.push_back(std::move(v));
-    }
+    RerootRefusals(std::move(g.refusals), "policy", "settings.gate", &out.refusals);
   }
   r.delta_sharing = in.delta_sharing() == v1::DELTA_SHARING_UNSPECIFIED
                         ? std::optional<core::DeltaSharing>(core::DeltaSharing::kPerRecord)

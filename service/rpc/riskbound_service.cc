@@ -164,8 +164,7 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
     return reactor;
   }
   if (draining_.load()) {
-    refused("draining");
-    finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
+    finish(AdmissionRefusal(CallPool::Admission::kClosed), 0);
     return reactor;
   }
   auto work = [this, method, request, response, reactor, finish, handler, budget, refused,
@@ -220,22 +219,25 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
     *response = grpc::ByteBuffer(&slice, 1);
     finish(absl::OkStatus(), size);
   };
-  switch (pool_->TrySubmit(std::move(work))) {
+  const absl::Status refusal = AdmissionRefusal(pool_->TrySubmit(std::move(work)));
+  if (!refusal.ok()) finish(refusal, 0);
+  return reactor;
+}
+
+absl::Status RiskBoundService::AdmissionRefusal(CallPool::Admission admission) const {
+  switch (admission) {
     case CallPool::Admission::kAdmitted:
-      break;
+      return absl::OkStatus();
     case CallPool::Admission::kFull:
-      refused("busy");
-      finish(absl::ResourceExhaustedError(absl::StrCat(
-                 "the server is busy: ", pool_->max_pending(),
-                 " calls are already admitted (--max-pending-calls); retry with backoff")),
-             0);
-      break;
+      if (metrics_ != nullptr) metrics_->RecordRefusal("busy");
+      return absl::ResourceExhaustedError(absl::StrCat(
+          "the server is busy: ", pool_->max_pending(),
+          " calls are already admitted (--max-pending-calls); retry with backoff"));
     case CallPool::Admission::kClosed:
-      refused("draining");
-      finish(absl::UnavailableError("the server is shutting down; retry on another replica"), 0);
       break;
   }
-  return reactor;
+  if (metrics_ != nullptr) metrics_->RecordRefusal("draining");
+  return absl::UnavailableError("the server is shutting down; retry on another replica");
 }
 
 grpc::ServerUnaryReactor* RiskBoundService::Certify(grpc::CallbackServerContext* context,
@@ -312,25 +314,11 @@ class ScoreStream final : public grpc::ServerBidiReactor<grpc::ByteBuffer, grpc:
       Refused("unauthenticated");
       return FinishOnce(absl::UnauthenticatedError(kUnauthenticatedMessage));
     }
-    if (owner_->draining_.load()) {
-      Refused("draining");
-      return FinishOnce(absl::UnavailableError("the server is shutting down; retry on another replica"));
-    }
-    switch (owner_->pool_->TryReserve()) {
-      case CallPool::Admission::kAdmitted:
-        reserved_ = true;
-        StartRead(&in_);
-        return;
-      case CallPool::Admission::kFull:
-        Refused("busy");
-        return FinishOnce(absl::ResourceExhaustedError(absl::StrCat(
-            "the server is busy: ", owner_->pool_->max_pending(),
-            " calls are already admitted (--max-pending-calls); retry with backoff")));
-      case CallPool::Admission::kClosed:
-        Refused("draining");
-        return FinishOnce(
-            absl::UnavailableError("the server is shutting down; retry on another replica"));
-    }
+    const absl::Status refusal = owner_->AdmissionRefusal(
+        owner_->draining_.load() ? CallPool::Admission::kClosed : owner_->pool_->TryReserve());
+    if (!refusal.ok()) return FinishOnce(refusal);
+    reserved_ = true;
+    StartRead(&in_);
   }
 
   void OnReadDone(bool ok) override {

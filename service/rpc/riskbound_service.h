@@ -129,6 +129,11 @@ class RiskBoundService final : public internal::RawRiskBoundService {
   // holds a valid bearer token (auth.h). Every method, unary or streaming,
   // asks before it admits the call.
   bool Authenticated(const grpc::CallbackServerContext& context) const;
+  // AdmissionRefusal
+  // OK for kAdmitted; else the status a refused call ends with
+  // (RESOURCE_EXHAUSTED busy for kFull, UNAVAILABLE draining for kClosed),
+  // the refusal counted in the metrics. Unary calls and streams share it.
+  absl::Status AdmissionRefusal(CallPool::Admission admission) const;
   void Register(internal::Cancellable* call);
   void Unregister(internal::Cancellable* call);
 
