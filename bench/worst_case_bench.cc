@@ -61,6 +61,22 @@ struct WorstCase {
   std::function<void()> run;
 };
 
+// The gate on a rate a hair below max_risk with a paired champion at 0.999999
+// pass probability: HOLD plans for the risk and the comparison (fixed-n or
+// sequential limits).
+void HairBelowWithChampion(bool sequential) {
+  GatePolicy policy;
+  policy.sequential = sequential;
+  policy.plan_pass_probability = 0.999999;
+  GateCandidate c;
+  c.id = "candidate";
+  c.evidence.holdout = SampleCounts{49'999, 1'000'000};
+  ChampionComparison champion;
+  champion.champion_id = "champion";
+  champion.paired = PairedCounts{25'000, 25'001, 24'999, 1'000'000};
+  benchmark::DoNotOptimize(DecideGate(policy, c, champion));
+}
+
 std::vector<WorstCase> Cases() {
   std::vector<WorstCase> cases;
   cases.push_back({"Certify", "sample compression, 10^8 outside examples, 10^7 errors",
@@ -170,17 +186,7 @@ std::vector<WorstCase> Cases() {
                    }});
   cases.push_back({"DecideGate",
                    "paired champion, rate a hair below max_risk (HOLD plan), pass 0.999999",
-                   [] {
-                     GatePolicy policy;
-                     policy.plan_pass_probability = 0.999999;
-                     GateCandidate c;
-                     c.id = "candidate";
-                     c.evidence.holdout = SampleCounts{49'999, 1'000'000};
-                     ChampionComparison champion;
-                     champion.champion_id = "champion";
-                     champion.paired = PairedCounts{25'000, 25'001, 24'999, 1'000'000};
-                     benchmark::DoNotOptimize(DecideGate(policy, c, champion));
-                   }});
+                   [] { HairBelowWithChampion(false); }});
   cases.push_back({"DecideGate",
                    "n = 10^15, rate 0.0500001, delta = 1e-300, paired champion at the "
                    "tolerance (REJECT plan over budget, McNemar at 5e13 discordant)",
@@ -202,18 +208,7 @@ std::vector<WorstCase> Cases() {
   cases.push_back({"DecideGate",
                    "sequential mode: paired champion, rate a hair below max_risk (anytime "
                    "HOLD plans: risk over 2^40, champion over its 2 s budget), pass 0.999999",
-                   [] {
-                     GatePolicy policy;
-                     policy.sequential = true;
-                     policy.plan_pass_probability = 0.999999;
-                     GateCandidate c;
-                     c.id = "candidate";
-                     c.evidence.holdout = SampleCounts{49'999, 1'000'000};
-                     ChampionComparison champion;
-                     champion.champion_id = "champion";
-                     champion.paired = PairedCounts{25'000, 25'001, 24'999, 1'000'000};
-                     benchmark::DoNotOptimize(DecideGate(policy, c, champion));
-                   }});
+                   [] { HairBelowWithChampion(true); }});
   cases.push_back({"EstimateCapacity",
                    "relu network given by 1 000 layer widths (the request limit) of 1 000",
                    [] {
