@@ -381,9 +381,11 @@ Checked Check(const CertifyRequest& request, std::vector<FieldViolation>* v) {
       evidence_violations.begin(), evidence_violations.end(),
       [](const FieldViolation& e) { return e.field.rfind("evidence.training.capacity", 0) == 0; });
   v->insert(v->end(), evidence_violations.begin(), evidence_violations.end());
+  const bool overall = HasOverallEvidence(out.evidence);
   switch (request.family_choice) {
     case FamilyChoice::kRecommended:
-      out.chosen = RecommendedFamily(out.evidence);
+      // Slices alone: the slice certificates are the answer.
+      if (overall) out.chosen = RecommendedFamily(out.evidence);
       break;
     case FamilyChoice::kAllApplicable:
       for (const FamilySpec& spec : Families()) {
@@ -401,10 +403,16 @@ Checked Check(const CertifyRequest& request, std::vector<FieldViolation>* v) {
   }
   // kRecommended always finds one; the evidence check guarantees some family
   // applies.
-  if (out.chosen.empty() && v->empty()) {
+  if (out.chosen.empty() && overall && v->empty()) {
     v->push_back({"evidence", "no bound family applies to this evidence"});
   }
   out.weights = CheckWeights(request, v);
+  const SliceSharing unset;
+  if (!out.evidence.slices.empty()) {
+    CheckSliceSharing(request.slice_sharing, out.evidence.slices, "slice_sharing", v);
+  } else if (request.slice_sharing.rule != unset.rule || !request.slice_sharing.weights.empty()) {
+    v->push_back({"slice_sharing", "goes with per-slice counts (evidence.slices): none given"});
+  }
   return out;
 }
 
@@ -451,22 +459,27 @@ bool ResolveCapacity(ClassCapacity* c, const std::string& path, std::vector<Fiel
   return out->size() == before;
 }
 
+bool HasOverallEvidence(const Evidence& e) {
+  return e.holdout.has_value() || e.training.has_value() || e.bounded_loss.has_value() ||
+         e.pac_bayes.has_value() || e.rademacher.has_value() || e.compression.has_value() ||
+         e.relabel.has_value();
+}
+
 bool PrepareEvidence(Evidence* evidence, const std::string& prefix,
                      std::vector<FieldViolation>* v) {
   const std::size_t before = v->size();
-  if (!evidence->holdout.has_value() && !evidence->training.has_value() &&
-      !evidence->bounded_loss.has_value() && !evidence->pac_bayes.has_value() &&
-      !evidence->rademacher.has_value() && !evidence->compression.has_value() &&
-      !evidence->relabel.has_value()) {
+  if (!HasOverallEvidence(*evidence) && evidence->slices.empty()) {
     v->push_back({prefix, absl::StrCat("no evidence: give hold-out counts (", prefix,
                                        ".holdout), training counts with a capacity (", prefix,
                                        ".training), a bounded loss (", prefix,
                                        ".bounded_loss), a PAC-Bayes posterior (", prefix,
                                        ".pac_bayes), a Rademacher complexity (", prefix,
                                        ".rademacher), a compression scheme (", prefix,
-                                       ".compression) or relabel-and-retrain draws (", prefix,
-                                       ".relabel)")});
+                                       ".compression), relabel-and-retrain draws (", prefix,
+                                       ".relabel) or per-slice hold-out counts (", prefix,
+                                       ".slices)")});
   }
+  if (!evidence->slices.empty()) CheckSlices(evidence->slices, prefix + ".slices", v);
   if (evidence->holdout.has_value()) {
     CheckSampleCounts(prefix + ".holdout", *evidence->holdout, v);
   }
@@ -519,15 +532,30 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
 
   const std::size_t k = checked.chosen.size();
   const bool weighted = !checked.weights.empty();
+  const bool with_slices = !checked.evidence.slices.empty();
+  // With slices and other evidence, each part gets half (exact for a double
+  // in (0, 1) above the subnormals; EqualShare rounds down below them).
+  const double overall_delta =
+      with_slices ? EqualShare(request.failure_probability, 2) : request.failure_probability;
   // Each share rounded toward zero (delta_split.h), so the shares' exact sum
   // never exceeds the request.
   std::vector<double> shares(k);
   for (std::size_t i = 0; i < k; ++i) {
-    shares[i] = weighted ? WeightedShare(request.failure_probability, checked.weights[i])
-                         : EqualShare(request.failure_probability, k);
+    shares[i] = weighted ? WeightedShare(overall_delta, checked.weights[i])
+                         : EqualShare(overall_delta, k);
   }
   CertifyResult result;
   result.requested_failure_probability = request.failure_probability;
+  result.cautions = Cautions();
+  if (with_slices) {
+    const double slice_delta = k == 0 ? request.failure_probability : overall_delta;
+    result.slices = CertifySlices(checked.evidence.slices, request.slice_sharing, slice_delta);
+    for (const std::string& c : SliceCautions()) result.cautions.push_back(c);
+    if (k == 0) {
+      result.rule = "slices only: the slices get the whole failure probability";
+      return result;
+    }
+  }
   for (std::size_t i = 0; i < k; ++i) {
     if (stop.StopRequested()) return stop.Status();
     const double delta_i = shares[i];
@@ -569,8 +597,12 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
   result.spent_failure_probability = SpentOf(shares);
   const std::string spent = FailureProbabilityText(result.spent_failure_probability);
   if (k == 1 && !weighted) {
-    result.rule = absl::StrFormat("one family, computed at the full failure probability delta = %s",
-                                  FailureProbabilityText(request.failure_probability));
+    result.rule =
+        with_slices
+            ? absl::StrFormat("one family, computed at the certificates' half, delta/2 = %s",
+                              FailureProbabilityText(overall_delta))
+            : absl::StrFormat("one family, computed at the full failure probability delta = %s",
+                              FailureProbabilityText(overall_delta));
   } else if (weighted) {
     result.rule = absl::StrFormat(
         "union bound over %d %s with the caller's weights: family j is computed "
@@ -582,6 +614,11 @@ absl::StatusOr<CertifyResult> Certify(const CertifyRequest& request, const StopT
         "union bound over %d families: each computed at delta/%d (rounded down, at most "
         "%s), so the tightest certificate holds with probability >= 1 - %s",
         k, k, FailureProbabilityText(shares[0]), spent);
+  }
+  if (with_slices) {
+    result.rule = absl::StrCat(
+        "half of the failure probability to the certificates, half to the slices (",
+        FailureProbabilityText(overall_delta), " each); certificates: ", result.rule);
   }
   return result;
 }

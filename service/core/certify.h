@@ -14,6 +14,7 @@
 #include "absl/status/statusor.h"
 #include "service/core/evidence.h"
 #include "service/core/field_violation.h"
+#include "service/core/slices.h"
 #include "service/core/stop.h"
 
 namespace riskbound::core {
@@ -57,6 +58,8 @@ struct CertifyRequest {
   FamilyChoice family_choice = FamilyChoice::kRecommended;
   // kListed only.
   FamilyList listed;
+  // How evidence.slices share their failure probability (slices only).
+  SliceSharing slice_sharing;
 };
 
 // API: CertifyResponse (with DeltaAccounting).
@@ -78,7 +81,18 @@ struct CertifyResult {
   double spent_failure_probability = 0.0;
   // How the failure probability was split, in plain words.
   std::string rule;
+  // Set when the evidence has slices: a certificate per slice and the
+  // worst-slice statement (slices.h). The slices get the whole failure
+  // probability when the evidence holds nothing else, half of it otherwise
+  // (the certificates above get the other half).
+  std::optional<SliceSummary> slices;
+  // Cautions for this answer: Cautions(), plus SliceCautions() with slices.
+  std::vector<std::string> cautions;
 };
+
+// HasOverallEvidence
+// True when `evidence` holds some kind of evidence besides slices.
+bool HasOverallEvidence(const Evidence& evidence);
 
 // CheckSampleCounts
 // Appends violations for "<prefix>.sample_count" (must be in [1, 2^53]) and
@@ -134,8 +148,13 @@ absl::Status ValidateCertifyRequest(const CertifyRequest& request);
 // families the tightest is a minimum over K bounds, valid only because each
 // was computed at its share of the failure probability (union bound);
 // result.rule says so.
+// With slices (evidence.slices) the result also carries a certificate per
+// slice (CertifySlices); with slices and other evidence the two parts get
+// half the failure probability each, so everything reported holds together.
 // Errors: INVALID_ARGUMENT naming every bad field at once: bad evidence
-// ("evidence.<field>"), a failure_probability outside (0, 1), an unknown,
+// ("evidence.<field>", "evidence.slices[i].<field>"), a bad slice_sharing
+// ("slice_sharing.*", or any slice_sharing without slices), a
+// failure_probability outside (0, 1), an unknown,
 // duplicated or inapplicable listed family ("listed.families[i]"), bad
 // weights ("listed.delta_weights[i]", "listed.delta_weights"). Never returns
 // NaN or Inf in a certificate.

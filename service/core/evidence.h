@@ -167,6 +167,14 @@ struct CompressionEvidence {
   bool size_fixed_in_advance = false;
 };
 
+// Hold-out counts of one declared slice of the hold-out set (a region,
+// segment or input type). Slices are disjoint and fixed before the hold-out
+// set was seen. API: SliceEvidence; paths <evidence>.slices[i].{name,
+// error_count, sample_count}.
+struct SliceEvidence : SampleCounts {
+  std::string name;
+};
+
 // Everything a caller knows about one trained classifier.
 struct Evidence {
   // Errors on a hold-out set drawn after the model was fixed.
@@ -186,6 +194,8 @@ struct Evidence {
   std::optional<CompressionEvidence> compression;
   // Raw draws of a relabel-and-retrain experiment (capacity from the data).
   std::optional<RelabelEvidence> relabel;
+  // Hold-out counts per declared slice (slices.h).
+  std::vector<SliceEvidence> slices;
 };
 
 // The bound families. Values are stable: they are stored in audit records.

@@ -5,6 +5,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <map>
 #include <set>
 
 #include "absl/status/status.h"
@@ -17,7 +18,9 @@
 #include "service/core/field_violation.h"
 #include "service/core/gate_internal.h"
 #include "service/core/holdout.h"
+#include "service/core/limits.h"
 #include "service/core/paired.h"
+#include "service/core/slices.h"
 
 namespace riskbound::core {
 
@@ -37,7 +40,12 @@ Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_ch
     if (spec == nullptr) continue;
     (spec->applies(evidence) ? s.families : s.skipped).push_back(spec);
   }
-  const double risk = with_champion ? policy.failure_probability / 2.0 : policy.failure_probability;
+  // Equal parts: risk, the champion comparison (when given), the slices
+  // (when given). Halves are exact; a third is rounded down (delta_split.h).
+  const bool with_slices = !evidence.slices.empty();
+  const std::size_t parts = 1 + (with_champion ? 1 : 0) + (with_slices ? 1 : 0);
+  const double part = EqualShare(policy.failure_probability, parts);
+  const double risk = part;
   double upper = risk;
   if (evidence.holdout.has_value()) {
     upper = risk / 2.0;
@@ -48,9 +56,10 @@ Split MakeSplit(const GatePolicy& policy, const Evidence& evidence, bool with_ch
   // rounded down (delta_split.h), so the ledger's exact sum is <= delta.
   s.per_family = EqualShare(upper, k);
   if (with_champion) {
-    s.difference_upper = policy.failure_probability / 4.0;
-    s.difference_lower = policy.failure_probability / 4.0;
+    s.difference_upper = part / 2.0;
+    s.difference_lower = part / 2.0;
   }
+  if (with_slices) s.slices_total = part;
   return s;
 }
 
@@ -130,6 +139,65 @@ void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdo
   }
 }
 
+// The slices of the evidence against the policy's slice limits: limits need
+// slices, slices need a limit each, and per-slice limits and weights must
+// name slices of the evidence.
+void CheckSliceLimits(const GatePolicy& policy, const Evidence& evidence,
+                      std::vector<FieldViolation>* v) {
+  const bool limits = policy.max_slice_risk.has_value() || !policy.slice_max_risks.empty();
+  const std::vector<SliceEvidence>& slices = evidence.slices;
+  if (slices.empty()) {
+    if (limits) {
+      v->push_back({"candidate.evidence.slices",
+                    "required: the policy sets slice limits (policy.max_slice_risk or "
+                    "policy.slice_max_risks), so every slice's hold-out counts are needed"});
+    }
+    if (!policy.slice_sharing.weights.empty()) {
+      v->push_back({"policy.slice_sharing.weights",
+                    "go with per-slice counts (candidate.evidence.slices): none given"});
+    }
+    return;
+  }
+  if (!limits) {
+    v->push_back({"policy.max_slice_risk",
+                  "required with per-slice counts (candidate.evidence.slices): set the "
+                  "highest tolerated slice error (or policy.slice_max_risks), or leave the "
+                  "slices out; a gate never ignores evidence"});
+    return;
+  }
+  if (policy.slice_max_risks.size() > kMaxSlices || slices.size() > kMaxSlices) return;
+  std::set<std::string> names;
+  for (const SliceEvidence& s : slices) names.insert(s.name);
+  std::set<std::string> limited;
+  for (std::size_t i = 0; i < policy.slice_max_risks.size(); ++i) {
+    const std::string& name = policy.slice_max_risks[i].slice_name;
+    if (name.empty()) continue;  // CheckGatePolicy names it
+    if (names.count(name) == 0) {
+      v->push_back({absl::StrCat("policy.slice_max_risks[", i, "].slice_name"),
+                    absl::StrCat("'", name, "' is not a slice of candidate.evidence.slices")});
+    }
+    limited.insert(name);
+  }
+  if (!policy.max_slice_risk.has_value()) {
+    std::vector<std::string> missing;
+    for (const SliceEvidence& s : slices) {
+      if (limited.count(s.name) == 0) missing.push_back(absl::StrCat("'", s.name, "'"));
+    }
+    if (!missing.empty()) {
+      const std::size_t shown = std::min<std::size_t>(missing.size(), 5);
+      v->push_back(
+          {"policy.max_slice_risk",
+           absl::StrCat("required: ", missing.size(), " slice(s) have no limit in "
+                        "policy.slice_max_risks (",
+                        absl::StrJoin(missing.begin(), missing.begin() + shown, ", "),
+                        missing.size() > shown ? ", ..." : "", ")")});
+    }
+  }
+  if (policy.slice_sharing.rule.has_value()) {
+    CheckSliceSharing(policy.slice_sharing, slices, "policy.slice_sharing", v);
+  }
+}
+
 // Returns OK or INVALID_ARGUMENT naming every bad field (see DecideGate).
 // Leaves in *evidence the candidate's evidence with its capacity resolved.
 absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
@@ -171,6 +239,8 @@ absl::Status Validate(const GatePolicy& policy, const GateCandidate& candidate,
                                 absl::StrJoin(needs, "; "))});
     }
   }
+
+  CheckSliceLimits(policy, *evidence, &v);
 
   if (champion.has_value()) {
     if (champion->champion_id.empty()) {
@@ -331,6 +401,54 @@ Measured Measure(const GatePolicy& policy, const Evidence& evidence,
   return m;
 }
 
+// The slices' bounds at their shares, each with its ledger entry; m.slices
+// sorted worst first. REQUIRES: validated inputs.
+void MeasureSlices(const GatePolicy& policy, const Evidence& evidence, Measured* m,
+                   GateDecision* d) {
+  const std::vector<SliceEvidence>& slices = evidence.slices;
+  if (slices.empty()) return;
+  m->slice_rule = policy.slice_sharing.rule.value_or(SliceShareRule::kBonferroni);
+  m->slice_weighted = !policy.slice_sharing.weights.empty();
+  const std::vector<double> shares =
+      SliceShares(policy.slice_sharing, slices, m->split.slices_total);
+  std::map<std::string, double> limit;
+  for (const SliceMaxRisk& l : policy.slice_max_risks) limit[l.slice_name] = l.max_risk;
+  for (std::size_t i = 0; i < slices.size(); ++i) {
+    const SliceEvidence& s = slices[i];
+    SliceCheck c;
+    c.slice_name = s.name;
+    const auto it = limit.find(s.name);
+    c.max_risk = it != limit.end() ? it->second : *policy.max_slice_risk;
+    c.error_count = s.error_count;
+    c.sample_count = s.sample_count;
+    c.failure_probability = shares[i];
+    // Upper and lower bounds at half the share each: the halves of a
+    // two-sided statement (common practice), as for the overall risk.
+    const double half = shares[i] / 2.0;
+    const Certificate cert =
+        policy.sequential ? HoldoutAnytime(s, half) : HoldoutExactBinomial(s, half);
+    c.risk_upper_bound = cert.risk_upper_bound;
+    c.risk_lower_bound = cert.risk_lower_bound.value_or(0.0);
+    c.outcome = c.risk_lower_bound > c.max_risk    ? SliceOutcome::kExceeds
+                : c.risk_upper_bound <= c.max_risk ? SliceOutcome::kClears
+                                                   : SliceOutcome::kUndecided;
+    c.reason = gate_internal::SliceSentence(c, policy.sequential);
+    d->delta_ledger.push_back(DeltaSpend{
+        absl::StrCat("slice '", s.name, "': upper and lower bounds, ",
+                     policy.sequential ? "holdout-anytime (anytime-valid)"
+                                       : "holdout-binomial (Clopper-Pearson)",
+                     ", half each"),
+        shares[i], s.name});
+    m->slices.push_back(std::move(c));
+  }
+  std::sort(m->slices.begin(), m->slices.end(), [](const SliceCheck& a, const SliceCheck& b) {
+    const double ma = a.risk_upper_bound - a.max_risk;
+    const double mb = b.risk_upper_bound - b.max_risk;
+    if (ma != mb) return ma > mb;
+    return a.slice_name < b.slice_name;
+  });
+}
+
 }  // namespace
 
 bool CheckGatePolicy(const GatePolicy& policy, const std::string& prefix,
@@ -353,6 +471,27 @@ bool CheckGatePolicy(const GatePolicy& policy, const std::string& prefix,
                     absl::StrCat("must be a difference of error rates in [-1, 1], got ",
                                  std::isnan(t) ? std::string("NaN") : Num(t))});
     }
+  }
+  if (policy.max_slice_risk.has_value()) {
+    CheckProbabilityOpen(prefix + ".max_slice_risk", *policy.max_slice_risk, v);
+  }
+  if (CheckListSize(prefix + ".slice_max_risks", policy.slice_max_risks.size(), kMaxSlices, v)) {
+    std::set<std::string> limited;
+    for (std::size_t i = 0; i < policy.slice_max_risks.size(); ++i) {
+      const SliceMaxRisk& l = policy.slice_max_risks[i];
+      const std::string p = absl::StrCat(prefix, ".slice_max_risks[", i, "]");
+      if (l.slice_name.empty()) {
+        v->push_back({p + ".slice_name", "must name a slice"});
+      } else if (!limited.insert(l.slice_name).second) {
+        v->push_back({p + ".slice_name", absl::StrCat("slice '", SanitizeText(l.slice_name, 128),
+                                                      "' has a limit already")});
+      }
+      CheckProbabilityOpen(p + ".max_risk", l.max_risk, v);
+    }
+  }
+  if (!policy.slice_sharing.rule.has_value()) {
+    v->push_back({prefix + ".slice_sharing.rule",
+                  "unknown share rule (SLICE_SHARE_RULE_BONFERRONI or SLICE_SHARE_RULE_SIDAK)"});
   }
   std::set<Family> seen;
   bool families_ok = true;
@@ -428,7 +567,8 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
   if (stop.StopRequested()) return stop.Status();
 
   GateDecision d;
-  const Measured m = Measure(policy, evidence, champion, &d);
+  Measured m = Measure(policy, evidence, champion, &d);
+  MeasureSlices(policy, evidence, &m, &d);
   d.risk_certificate = m.risk_certificate;
   d.risk_lower_bound = m.risk_lower_bound;
   d.difference_upper_bound = m.difference_upper;
@@ -446,18 +586,33 @@ absl::StatusOr<GateDecision> DecideGate(const GatePolicy& policy,
   if (d.verdict == Verdict::kHold) {
     const double pass = policy.plan_pass_probability.value_or(kDefaultPlanPassProbability);
     absl::StatusOr<gate_internal::HoldPlan> plan =
-        gate_internal::PlanHold(policy, evidence, champion, f, m, pass, stop);
+        gate_internal::PlanHold(policy, evidence, champion, f, m, pass, stop, &m.slices);
     if (!plan.ok()) return plan.status();
     d.additional_sample_count = plan->additional_sample_count;
     for (std::string& s : plan->reasons) d.reasons.push_back(std::move(s));
   }
 
-  std::vector<double> shares;
-  for (const DeltaSpend& entry : d.delta_ledger) shares.push_back(entry.failure_probability);
-  // The ledger's exact sum, rounded up.
-  const double spent = SpentOf(shares);
+  // The ledger's exact sum, rounded up, its slice entries combined by their
+  // rule (SlicesSpent).
+  ExactSum total;
+  std::vector<double> slice_shares;
+  for (const DeltaSpend& entry : d.delta_ledger) {
+    if (entry.slice_name.empty()) {
+      total.Add(entry.failure_probability);
+    } else {
+      slice_shares.push_back(entry.failure_probability);
+    }
+  }
+  if (!slice_shares.empty()) {
+    total.Add(SlicesSpent(m.slice_rule, slice_shares, m.split.slices_total));
+  }
+  const double spent = total.RoundedUp();
   d.spent_failure_probability = spent;
   d.cautions = GateCautions();
+  if (!m.slices.empty()) {
+    for (const std::string& c : SliceCautions()) d.cautions.push_back(c);
+  }
+  d.slices = std::move(m.slices);
   if (!(spent <= policy.failure_probability)) {
     return absl::InternalError(absl::StrCat("delta ledger sums to ", Num(spent),
                                             ", more than the policy's ",

@@ -20,6 +20,15 @@
 //                                      difference upper bound  delta/4
 //                                      difference lower bound  delta/4
 //
+//  * With slice limits (policy.max_slice_risk, policy.slice_max_risks) the
+//    slices are one more part: delta is first split into equal parts (risk;
+//    the champion comparison when given; the slices), each rounded down, and
+//    each part is halved as above. The slices' part is shared between the G
+//    slices by policy.slice_sharing (slices.h: Bonferroni, delta_part / G or
+//    weighted; or Sidak, 1 - (1 - delta_part)^(1/G)); each slice spends its
+//    share on a one-sided upper and a one-sided lower bound, half each.
+//    Under Sidak the slices' entries combine as 1 - prod(1 - share), which
+//    the spent total uses.
 //  * The risk upper bound is the tightest of the K policy families that apply
 //    to the candidate's evidence, each computed at (its share)/K (the minimum
 //    over K bounds needs the union bound).
@@ -51,9 +60,17 @@
 #include "service/core/evidence.h"
 #include "service/core/field_violation.h"
 #include "service/core/paired.h"
+#include "service/core/slices.h"
 #include "service/core/stop.h"
 
 namespace riskbound::core {
+
+// One slice's limit. API: SliceMaxRisk; paths
+// policy.slice_max_risks[i].{slice_name, max_risk}.
+struct SliceMaxRisk {
+  std::string slice_name;
+  double max_risk = 0.0;
+};
 
 // The rules a candidate must pass, fixed before its evidence is seen.
 // API field paths: policy.max_risk, policy.failure_probability (= delta),
@@ -87,6 +104,14 @@ struct GatePolicy {
   // allowed_families may then name no fixed-size hold-out family; empty
   // means holdout-anytime.
   bool sequential = false;
+  // Slice limits (slices.h): every slice of candidate.evidence.slices must
+  // clear its limit, slice_max_risks[i] for the slices it names and
+  // max_slice_risk for the rest, each in (0, 1). With a limit the candidate
+  // must have slices; slices without limits are refused.
+  std::optional<double> max_slice_risk;
+  std::vector<SliceMaxRisk> slice_max_risks;
+  // How the slices share their failure probability.
+  SliceSharing slice_sharing;
 };
 
 // The plan pass probability used when the policy leaves it unset.
@@ -121,9 +146,43 @@ enum class Verdict {
 // One confidence statement of a verdict and the failure probability it
 // spent. API: DeltaSpend.
 struct DeltaSpend {
+  DeltaSpend() = default;
+  DeltaSpend(std::string test_in, double failure_probability_in, std::string slice_name_in = {})
+      : test(std::move(test_in)),
+        failure_probability(failure_probability_in),
+        slice_name(std::move(slice_name_in)) {}
   // The statement, in plain words ("risk upper bound: holdout-binomial").
   std::string test;
   double failure_probability = 0.0;
+  // A slice's entry (its upper and lower bounds together): the slice's name.
+  std::string slice_name;
+};
+
+// Where one slice stands against its limit. API: SliceOutcome.
+enum class SliceOutcome {
+  // Upper bound at or below the limit.
+  kClears = 1,
+  // Lower bound above the limit.
+  kExceeds = 2,
+  // Neither.
+  kUndecided = 3,
+};
+
+// One slice of a verdict. API: SliceCheck.
+struct SliceCheck {
+  std::string slice_name;
+  SliceOutcome outcome = SliceOutcome::kUndecided;
+  double max_risk = 0.0;
+  std::uint64_t error_count = 0;
+  std::uint64_t sample_count = 0;
+  // Each at half of failure_probability.
+  double risk_upper_bound = 1.0;
+  double risk_lower_bound = 0.0;
+  // The slice's share of the verdict's failure probability.
+  double failure_probability = 0.0;
+  // Undecided only, when a plan exists: more labelled samples from the slice.
+  std::optional<std::uint64_t> additional_sample_count;
+  std::string reason;
 };
 
 // API: GateResponse (the audit record's digest, timestamp and engine version
@@ -157,8 +216,12 @@ struct GateDecision {
   // the risk upper bound in policy order, then kHoldoutExactBinomial for the
   // risk lower bound when there are hold-out counts (each at most once).
   std::vector<Family> families_used;
-  // Cautions that apply to every verdict (GateCautions).
+  // Cautions that apply to every verdict (GateCautions), plus
+  // SliceCautions() with slices.
   std::vector<std::string> cautions;
+  // With slice limits: every slice, worst first (largest risk_upper_bound -
+  // max_risk first, ties by name).
+  std::vector<SliceCheck> slices;
 };
 
 // GateCautions
@@ -192,10 +255,12 @@ const char* VerdictName(Verdict verdict);
 // bound, epsilon = policy.max_risk, DU / DL the difference limits and
 // t = policy.max_regression (0 if unset):
 //  * REJECT when L > epsilon, or DL > t (worse than the champion beyond the
-//    tolerance, with confidence): more data is not expected to help. REJECT
+//    tolerance, with confidence), or some slice's lower bound exceeds its
+//    limit: more data is not expected to help. REJECT
 //    also wins over PROMOTE when training-set and hold-out bounds contradict
 //    each other (U <= epsilon < L).
-//  * PROMOTE when U <= epsilon and (champion given) DU <= t.
+//  * PROMOTE when U <= epsilon and (champion given) DU <= t and (slice
+//    limits given) every slice's upper bound is at or below its limit.
 //  * HOLD otherwise, and whenever the hold-out set has fewer than
 //    policy.min_holdout_sample_count samples (the policy's "more data needed";
 //    the bounds are still computed and reported). A HOLD carries
@@ -224,7 +289,12 @@ const char* VerdictName(Verdict verdict);
 //        probability moves in steps, so not always the very smallest n);
 //        given up past a work budget of 80 ms of CPU (plans of about a
 //        million samples and more);
-//      - below the minimum: at least the samples missing to reach it.
+//      - below the minimum: at least the samples missing to reach it;
+//      - undecided slices: for each, worst first, the same risk plans on the
+//        slice's own counts, limit and bound shares, in samples from that
+//        slice (SliceCheck.additional_sample_count), within a per-call
+//        planning budget of 250 ms of CPU for all slices together (slices
+//        past it get no plan, and say so); their sum counts as one plan.
 //    The largest of these is reported.
 // Errors: INVALID_ARGUMENT naming every bad field by its API path
 // (policy.max_risk, policy.failure_probability, policy.allowed_families[i],

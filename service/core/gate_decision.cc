@@ -14,13 +14,19 @@ Findings FindingsOf(const Measured& m) {
     f.cmp_promote = *m.difference_upper <= m.tolerance;
     f.cmp_reject = *m.difference_lower > m.tolerance;
   }
+  for (const SliceCheck& s : m.slices) {
+    f.slices_promote = f.slices_promote && s.outcome == SliceOutcome::kClears;
+    f.slices_reject = f.slices_reject || s.outcome == SliceOutcome::kExceeds;
+  }
   return f;
 }
 
 Decision DecideVerdict(const Findings& f) {
   if (f.below_min) return {Verdict::kHold, Rule::kBelowMinimum};
-  if (f.risk_reject || f.cmp_reject) return {Verdict::kReject, Rule::kReject};
-  if (f.risk_promote && f.cmp_promote) return {Verdict::kPromote, Rule::kPromote};
+  if (f.risk_reject || f.cmp_reject || f.slices_reject) return {Verdict::kReject, Rule::kReject};
+  if (f.risk_promote && f.cmp_promote && f.slices_promote) {
+    return {Verdict::kPromote, Rule::kPromote};
+  }
   return {Verdict::kHold, Rule::kUnsettled};
 }
 

@@ -375,9 +375,104 @@ absl::StatusOr<std::uint64_t> PlanPairedComparison(const PairedCounts& p, double
   return held + *j * step;
 }
 
-// The risk test's plan, toward PROMOTE (rate below epsilon: the hold-out
-// planner of plan.h) or toward REJECT (PlanRejection). Adds its sentence to
-// `plan` and returns the samples it needs, or nullopt when there is no plan.
+// The words of one rate test's plan sentences: the overall risk test or one
+// slice's.
+struct RateTestWords {
+  // "the observed hold-out error rate", ...
+  std::string rate;
+  // "labelled hold-out samples", "labelled hold-out samples from slice 'x'"
+  std::string samples;
+  // "a PROMOTE on risk", "slice 'x' clearing its limit"
+  std::string promote;
+  // "a REJECT", "slice 'x' exceeding its limit (a REJECT)"
+  std::string reject;
+  // "the risk test", "slice 'x''s test"
+  std::string test;
+};
+
+// One rate test's plan, toward PROMOTE (rate below epsilon: the hold-out
+// planner of plan.h, or PlanAnytime in sequential mode) or toward REJECT
+// (PlanRejection, or PlanAnytime), from `held` samples with the upper and
+// lower bounds at `upper_delta` and `lower_delta`. Adds its sentence to
+// `reasons` and returns the samples it needs, or nullopt when there is no
+// plan.
+absl::StatusOr<std::optional<std::uint64_t>> PlanRate(double epsilon, double rate,
+                                                      std::uint64_t held, double upper_delta,
+                                                      double lower_delta, double pass,
+                                                      bool sequential, const RateTestWords& w,
+                                                      const StopToken& stop,
+                                                      std::vector<std::string>* reasons) {
+  if (sequential) {
+    const bool promote = rate < epsilon;
+    absl::StatusOr<std::uint64_t> n =
+        PlanAnytime(epsilon, rate, promote ? upper_delta : lower_delta, pass, held, stop);
+    if (stop.StopRequested()) return stop.Status();
+    if (n.ok()) {
+      const std::uint64_t more = *n - std::min(*n, held);
+      reasons->push_back(absl::StrCat("if the error rate stays near ", w.rate, " ", Num(rate),
+                                      ", about ", more, " more ", w.samples, " (", *n,
+                                      " in all) give ", promote ? w.promote : w.reject,
+                                      " with probability at least ", Num(pass),
+                                      " under the anytime-valid bounds (sequential mode)"));
+      return std::optional<std::uint64_t>(more);
+    }
+    reasons->push_back(absl::StrCat(
+        w.rate, " ", Num(rate),
+        promote || rate > epsilon
+            ? absl::StrCat(" is too close to the threshold: no hold-out size up to 2^40 is "
+                           "expected to settle ",
+                           w.test, " under the anytime-valid bounds")
+            : absl::StrCat(" is at the threshold: no hold-out size is expected to settle ",
+                           w.test)));
+    return std::optional<std::uint64_t>();
+  }
+  if (rate < epsilon) {
+    HoldoutPlanRequest req;
+    req.target_risk = epsilon;
+    req.expected_risk = rate;
+    req.failure_probability = upper_delta;
+    req.pass_probability = pass;
+    req.held_sample_count = held;
+    absl::StatusOr<HoldoutPlan> h = PlanHoldout(req, stop);
+    if (stop.StopRequested()) return stop.Status();
+    if (h.ok() && h->reachable) {
+      reasons->push_back(absl::StrCat("if the error rate stays near ", w.rate, " ", Num(rate),
+                                      ", about ", h->additional_sample_count, " more ",
+                                      w.samples, " (", h->sample_count, " in all) give ",
+                                      w.promote, " with probability ",
+                                      Num(h->pass_probability_at_plan)));
+      return std::optional<std::uint64_t>(h->additional_sample_count);
+    }
+    reasons->push_back(
+        absl::StrCat("no hold-out plan: ", h.ok() ? h->reason : std::string(h.status().message())));
+    return std::optional<std::uint64_t>();
+  }
+  absl::StatusOr<std::uint64_t> n = PlanRejection(epsilon, rate, lower_delta, pass, held, stop);
+  if (stop.StopRequested()) return stop.Status();
+  if (n.ok()) {
+    const std::uint64_t more = *n - std::min(*n, held);
+    reasons->push_back(absl::StrCat(w.rate, " ", Num(rate), " is at or above the threshold: about ",
+                                    more, " more ", w.samples, " (", *n,
+                                    " in all) would show it with probability ", Num(pass),
+                                    " if the rate stays there (", w.reject, ")"));
+    return std::optional<std::uint64_t>(more);
+  }
+  if (n.status().code() == absl::StatusCode::kResourceExhausted) {
+    reasons->push_back(absl::StrCat("no REJECT plan: ", w.rate, " ", Num(rate),
+                                    " is so close to the threshold that a plan would "
+                                    "take more than the per-call work budget"));
+  } else {
+    reasons->push_back(absl::StrCat(w.rate, " ", Num(rate),
+                                    " is at the threshold: no hold-out size up to "
+                                    "2^53 is expected to settle ",
+                                    w.test));
+  }
+  return std::optional<std::uint64_t>();
+}
+
+// The risk test's plan (PlanRate on the hold-out counts, or on the training
+// rate when there are none yet), at the shares a future run with hold-out
+// counts will use. Adds its sentence to `plan`.
 absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
                                                       const Evidence& evidence,
                                                       bool with_champion, const Measured& m,
@@ -387,93 +482,84 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
   Evidence future = evidence;
   if (!future.holdout.has_value()) future.holdout = SampleCounts{0, 1};
   const Split next = MakeSplit(policy, future, with_champion);
-  const bool has_binomial =
-      std::any_of(next.families.begin(), next.families.end(), [](const FamilySpec* s) {
-        return s->family == Family::kHoldoutExactBinomial;
-      });
-  const double epsilon = m.max_risk;
+  const Family needed = policy.sequential ? Family::kHoldoutAnytime : Family::kHoldoutExactBinomial;
+  const bool allowed = std::any_of(next.families.begin(), next.families.end(),
+                                   [needed](const FamilySpec* s) { return s->family == needed; });
+  if (!allowed) {
+    plan->reasons.push_back(policy.sequential
+                                ? "no hold-out plan: the policy does not allow the anytime-valid "
+                                  "hold-out bound"
+                                : "no hold-out plan: the policy does not allow the hold-out "
+                                  "exact binomial bound");
+    return std::optional<std::uint64_t>();
+  }
   const double rate = evidence.holdout.has_value() ? EmpiricalRate(*evidence.holdout)
                                                    : m.risk_certificate.empirical_risk;
-  const std::string rate_words = evidence.holdout.has_value()
-                                     ? "the observed hold-out error rate"
-                                     : "the training error rate (no hold-out counts yet)";
-  if (policy.sequential) {
-    const bool has_anytime =
-        std::any_of(next.families.begin(), next.families.end(),
-                    [](const FamilySpec* s) { return s->family == Family::kHoldoutAnytime; });
-    if (!has_anytime) {
-      plan->reasons.push_back(
-          "no hold-out plan: the policy does not allow the anytime-valid hold-out bound");
-      return std::optional<std::uint64_t>();
+  RateTestWords words;
+  words.rate = evidence.holdout.has_value() ? "the observed hold-out error rate"
+                                            : "the training error rate (no hold-out counts yet)";
+  words.samples = "labelled hold-out samples";
+  words.promote = "a PROMOTE on risk";
+  words.reject = "a REJECT";
+  words.test = "the risk test";
+  return PlanRate(m.max_risk, rate, m.held, next.per_family, next.risk_lower, pass,
+                  policy.sequential, words, stop, &plan->reasons);
+}
+
+// CPU time all slice plans of one call may take together (each plan also
+// has its own budget, so the call's worst case is this plus one plan's).
+constexpr double kSlicePlansCpuSeconds = 0.25;
+
+// Each undecided slice's plan, worst first, on its own counts, limit and
+// bound shares; its sentence is appended to the slice's reason. Returns the
+// sum of the plans, or nullopt when some undecided slice has none.
+absl::StatusOr<std::optional<std::uint64_t>> PlanSlices(const Measured& m, double pass,
+                                                        const StopToken& stop,
+                                                        std::vector<SliceCheck>* slices,
+                                                        HoldPlan* plan) {
+  WorkBudget budget(kSlicePlansCpuSeconds);
+  std::uint64_t sum = 0;
+  bool all = true;
+  std::size_t unplanned = 0;
+  for (SliceCheck& s : *slices) {
+    if (s.outcome != SliceOutcome::kUndecided) continue;
+    if (budget.Spent()) {
+      s.reason += "; not planned: the call's planning budget for slices ran out";
+      all = false;
+      ++unplanned;
+      continue;
     }
-    const bool promote = rate < epsilon;
-    absl::StatusOr<std::uint64_t> n =
-        PlanAnytime(epsilon, rate, promote ? next.per_family : next.risk_lower, pass, m.held, stop);
-    if (stop.StopRequested()) return stop.Status();
-    if (n.ok()) {
-      const std::uint64_t more = *n - std::min(*n, m.held);
-      plan->reasons.push_back(
-          absl::StrCat("if the error rate stays near ", rate_words, " ", Num(rate), ", about ",
-                       more, " more labelled hold-out samples (", *n, " in all) give ",
-                       promote ? "a PROMOTE" : "a REJECT", " on risk with probability at least ",
-                       Num(pass), " under the anytime-valid bounds (sequential mode)"));
-      return std::optional<std::uint64_t>(more);
+    const std::string quoted = absl::StrCat("'", s.slice_name, "'");
+    RateTestWords words;
+    words.rate = absl::StrCat("slice ", quoted, "'s observed error rate");
+    words.samples = absl::StrCat("labelled hold-out samples from slice ", quoted);
+    words.promote = absl::StrCat("slice ", quoted, " clearing its limit");
+    words.reject = absl::StrCat("slice ", quoted, " exceeding its limit (a REJECT)");
+    words.test = absl::StrCat("slice ", quoted, "'s test");
+    std::vector<std::string> sentence;
+    const double half = s.failure_probability / 2.0;
+    absl::StatusOr<std::optional<std::uint64_t>> more =
+        PlanRate(s.max_risk, EmpiricalRate(SampleCounts{s.error_count, s.sample_count}),
+                 s.sample_count, half, half, pass, m.sequential, words, stop, &sentence);
+    if (!more.ok()) return more.status();
+    for (const std::string& t : sentence) absl::StrAppend(&s.reason, "; ", t);
+    if (more->has_value()) {
+      s.additional_sample_count = **more;
+      sum = std::min<std::uint64_t>(sum + **more, kMaxSampleCount);
+    } else {
+      all = false;
     }
-    plan->reasons.push_back(absl::StrCat(
-        rate_words, " ", Num(rate),
-        promote || rate > epsilon
-            ? " is too close to the threshold: no hold-out size up to 2^40 is expected to "
-              "settle the risk test under the anytime-valid bounds"
-            : " is at the threshold: no hold-out size is expected to settle the risk test"));
-    return std::optional<std::uint64_t>();
   }
-  if (!has_binomial) {
-    plan->reasons.push_back(
-        "no hold-out plan: the policy does not allow the hold-out exact binomial bound");
-    return std::optional<std::uint64_t>();
+  if (unplanned > 0) {
+    plan->reasons.push_back(absl::StrCat(unplanned,
+                                         " undecided slices were not planned: the call's "
+                                         "planning budget for slices ran out"));
   }
-  if (rate < epsilon) {
-    HoldoutPlanRequest req;
-    req.target_risk = epsilon;
-    req.expected_risk = rate;
-    req.failure_probability = next.per_family;
-    req.pass_probability = pass;
-    req.held_sample_count = m.held;
-    absl::StatusOr<HoldoutPlan> h = PlanHoldout(req, stop);
-    if (stop.StopRequested()) return stop.Status();
-    if (h.ok() && h->reachable) {
-      plan->reasons.push_back(absl::StrCat(
-          "if the error rate stays near ", rate_words, " ", Num(rate), ", about ",
-          h->additional_sample_count, " more labelled hold-out samples (", h->sample_count,
-          " in all) give a PROMOTE on risk with probability ", Num(h->pass_probability_at_plan)));
-      return std::optional<std::uint64_t>(h->additional_sample_count);
-    }
-    plan->reasons.push_back(
-        absl::StrCat("no hold-out plan: ", h.ok() ? h->reason : std::string(h.status().message())));
-    return std::optional<std::uint64_t>();
-  }
-  absl::StatusOr<std::uint64_t> n = PlanRejection(epsilon, rate, next.risk_lower, pass, m.held,
-                                                  stop);
-  if (stop.StopRequested()) return stop.Status();
-  if (n.ok()) {
-    const std::uint64_t more = *n - std::min(*n, m.held);
-    plan->reasons.push_back(absl::StrCat(rate_words, " ", Num(rate),
-                                         " is at or above the threshold: about ", more,
-                                         " more labelled hold-out samples (", *n,
-                                         " in all) would show it with probability ", Num(pass),
-                                         " if the rate stays there (a REJECT)"));
-    return std::optional<std::uint64_t>(more);
-  }
-  if (n.status().code() == absl::StatusCode::kResourceExhausted) {
-    plan->reasons.push_back(absl::StrCat("no REJECT plan: ", rate_words, " ", Num(rate),
-                                         " is so close to the threshold that a plan would "
-                                         "take more than the per-call work budget"));
-  } else {
-    plan->reasons.push_back(absl::StrCat(rate_words, " ", Num(rate),
-                                         " is at the threshold: no hold-out size up to "
-                                         "2^53 is expected to settle the risk test"));
-  }
-  return std::optional<std::uint64_t>();
+  if (!all) return std::optional<std::uint64_t>();
+  plan->reasons.push_back(absl::StrCat("the undecided slices need about ", sum,
+                                       " more labelled hold-out samples in all, from those "
+                                       "slices (each slice's plan: slices)"));
+  return std::optional<std::uint64_t>(sum);
 }
 
 // The champion comparison's plan (paired comparisons only), at the plan
@@ -519,7 +605,7 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanComparison(const ChampionCompar
 absl::StatusOr<HoldPlan> PlanHold(const GatePolicy& policy, const Evidence& evidence,
                                   const std::optional<ChampionComparison>& champion,
                                   const Findings& f, const Measured& m, double pass,
-                                  const StopToken& stop) {
+                                  const StopToken& stop, std::vector<SliceCheck>* slices) {
   HoldPlan plan;
   std::uint64_t need = 0;
   bool plannable = true;
@@ -540,6 +626,15 @@ absl::StatusOr<HoldPlan> PlanHold(const GatePolicy& policy, const Evidence& evid
     if (!cmp.ok()) return cmp.status();
     if (cmp->has_value()) {
       need = std::max(need, **cmp);
+    } else {
+      plannable = false;
+    }
+  }
+  if (!f.slices_promote && !f.slices_reject) {
+    absl::StatusOr<std::optional<std::uint64_t>> sl = PlanSlices(m, pass, stop, slices, &plan);
+    if (!sl.ok()) return sl.status();
+    if (sl->has_value()) {
+      need = std::max(need, **sl);
     } else {
       plannable = false;
     }

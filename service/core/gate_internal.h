@@ -39,6 +39,9 @@ struct Split {
   double risk_lower = 0.0;
   double difference_upper = 0.0;
   double difference_lower = 0.0;
+  // The slices' part (0 without slices), shared between them by
+  // policy.slice_sharing.
+  double slices_total = 0.0;
 };
 
 // MakeSplit
@@ -75,6 +78,11 @@ struct Measured {
   std::uint64_t min_holdout_sample_count = 0;
   // policy.sequential: every hold-out bound is anytime-valid.
   bool sequential = false;
+  // With slice limits: every slice, worst first (SliceCheck without its plan;
+  // the reason holds the bounds sentence), and the rule that shared delta.
+  std::vector<SliceCheck> slices;
+  SliceShareRule slice_rule = SliceShareRule::kBonferroni;
+  bool slice_weighted = false;
 };
 
 // The yes/no facts the decision table reads.
@@ -90,6 +98,9 @@ struct Findings {
   bool cmp_promote = true;
   // Difference lower bound DL > tolerance.
   bool cmp_reject = false;
+  // Every slice clears its limit (true without slices); some slice exceeds.
+  bool slices_promote = true;
+  bool slices_reject = false;
 };
 
 // FindingsOf
@@ -112,8 +123,10 @@ struct Decision {
 // DecideVerdict
 // The decision table of gate.h (DecideGate), first matching row wins:
 //   below the minimum                    -> HOLD    (kBelowMinimum)
-//   risk_reject or cmp_reject            -> REJECT  (kReject)
-//   risk_promote and cmp_promote         -> PROMOTE (kPromote)
+//   risk_reject, cmp_reject or
+//   slices_reject                        -> REJECT  (kReject)
+//   risk_promote, cmp_promote and
+//   slices_promote                       -> PROMOTE (kPromote)
 //   otherwise                            -> HOLD    (kUnsettled)
 Decision DecideVerdict(const Findings& f);
 
@@ -128,6 +141,11 @@ std::string SummaryReason(const Decision& decision, const Findings& f, const Mea
 // contradiction between them, then the champion comparison.
 std::vector<std::string> BoundReasons(const Findings& f, const Measured& m);
 
+// SliceSentence
+// One slice's bounds against its limit, in words (SliceCheck.reason before
+// any plan).
+std::string SliceSentence(const SliceCheck& slice, bool sequential);
+
 // The HOLD planner's answer.
 struct HoldPlan {
   // How many more labelled hold-out samples are expected to settle the
@@ -139,11 +157,13 @@ struct HoldPlan {
 
 // PlanHold
 // For a HOLD: the plans of gate.h (DecideGate), the largest of them. `pass`
-// is the plan pass probability. Returns stop.Status() when `stop` stops.
+// is the plan pass probability. Undecided slices of *slices get their plan
+// (additional_sample_count, and its sentence appended to reason). Returns
+// stop.Status() when `stop` stops.
 absl::StatusOr<HoldPlan> PlanHold(const GatePolicy& policy, const Evidence& evidence,
                                   const std::optional<ChampionComparison>& champion,
                                   const Findings& f, const Measured& m, double pass,
-                                  const StopToken& stop);
+                                  const StopToken& stop, std::vector<SliceCheck>* slices);
 
 }  // namespace riskbound::core::gate_internal
 

@@ -27,9 +27,64 @@ std::string ComparisonClause(const Findings& f, const Measured& m) {
                       Num(*m.difference_upper), " against a tolerated ", Num(m.tolerance));
 }
 
+// Up to four slice names, quoted, then how many more.
+std::string SliceNames(const std::vector<const SliceCheck*>& slices) {
+  std::vector<std::string> names;
+  for (std::size_t i = 0; i < slices.size() && i < 4; ++i) {
+    names.push_back(absl::StrCat("'", slices[i]->slice_name, "'"));
+  }
+  std::string out = absl::StrJoin(names, ", ");
+  if (slices.size() > 4) absl::StrAppend(&out, " and ", slices.size() - 4, " more");
+  return out;
+}
+
+std::vector<const SliceCheck*> SlicesWith(const Measured& m, SliceOutcome outcome) {
+  std::vector<const SliceCheck*> out;
+  for (const SliceCheck& s : m.slices) {
+    if (s.outcome == outcome) out.push_back(&s);
+  }
+  return out;
+}
+
+// The slices in one clause, for the summary.
+std::string SliceClause(const Findings& f, const Measured& m) {
+  if (f.slices_reject) {
+    const std::vector<const SliceCheck*> bad = SlicesWith(m, SliceOutcome::kExceeds);
+    const SliceCheck& w = *bad.front();
+    return absl::StrCat(bad.size() == 1 ? "slice " : "slices ", SliceNames(bad),
+                        bad.size() == 1 ? " exceeds its limit" : " exceed their limits",
+                        " with confidence (", bad.size() == 1 ? "" : "worst: ", "'",
+                        w.slice_name, "' lower bound ", Num(w.risk_lower_bound), " > limit ",
+                        Num(w.max_risk), ")");
+  }
+  if (f.slices_promote) {
+    const SliceCheck& w = m.slices.front();
+    return absl::StrCat("every one of the ", m.slices.size(),
+                        " slices clears its limit (closest: '", w.slice_name, "', at most ",
+                        Num(w.risk_upper_bound), " against ", Num(w.max_risk), ")");
+  }
+  const std::vector<const SliceCheck*> open = SlicesWith(m, SliceOutcome::kUndecided);
+  return absl::StrCat(open.size(), " of the ", m.slices.size(), " slices ",
+                      open.size() == 1 ? "is" : "are", " undecided (", SliceNames(open),
+                      "): more labelled samples from ", open.size() == 1 ? "it" : "them",
+                      " are needed");
+}
+
 }  // namespace
 
 std::string Num(double v) { return absl::StrFormat("%.6g", v); }
+
+std::string SliceSentence(const SliceCheck& s, bool sequential) {
+  const char* where = s.outcome == SliceOutcome::kClears    ? "clears its limit"
+                      : s.outcome == SliceOutcome::kExceeds ? "exceeds its limit"
+                                                            : "is undecided against its limit";
+  return absl::StrCat("slice '", s.slice_name, "' ", where, " ", Num(s.max_risk),
+                      ": true error between ", Num(s.risk_lower_bound), " and ",
+                      Num(s.risk_upper_bound), " (", s.error_count, " errors in ",
+                      s.sample_count, " samples, ",
+                      sequential ? "anytime-valid" : "Clopper-Pearson",
+                      ", failure probability ", Num(s.failure_probability), ")");
+}
 
 std::string SummaryReason(const Decision& decision, const Findings& f, const Measured& m) {
   const double upper = m.risk_certificate.risk_upper_bound;
@@ -38,9 +93,9 @@ std::string SummaryReason(const Decision& decision, const Findings& f, const Mea
       std::string s = absl::StrCat("HOLD: ", m.held, " hold-out samples, fewer than the policy's ",
                                    "minimum of ", m.min_holdout_sample_count,
                                    "; more labelled data is needed before a verdict");
-      if (f.risk_reject || f.cmp_reject) {
+      if (f.risk_reject || f.cmp_reject || f.slices_reject) {
         absl::StrAppend(&s, " (the bounds alone would already REJECT)");
-      } else if (f.risk_promote && f.cmp_promote) {
+      } else if (f.risk_promote && f.cmp_promote && f.slices_promote) {
         absl::StrAppend(&s, " (the bounds alone would PROMOTE)");
       }
       return s;
@@ -53,6 +108,7 @@ std::string SummaryReason(const Decision& decision, const Findings& f, const Mea
                                    ")"));
       }
       if (f.cmp_reject) why.push_back(ComparisonClause(f, m));
+      if (f.slices_reject) why.push_back(SliceClause(f, m));
       return absl::StrCat("REJECT: ", absl::StrJoin(why, "; and "),
                           "; more data is not expected to change this");
     }
@@ -60,6 +116,7 @@ std::string SummaryReason(const Decision& decision, const Findings& f, const Mea
       std::string s = absl::StrCat("PROMOTE: the true error is at most ", Num(upper),
                                    ", at or below the threshold ", Num(m.max_risk));
       if (f.has_champion) absl::StrAppend(&s, "; and ", ComparisonClause(f, m));
+      if (!m.slices.empty()) absl::StrAppend(&s, "; and ", SliceClause(f, m));
       return s;
     }
     case Rule::kUnsettled:
@@ -72,6 +129,7 @@ std::string SummaryReason(const Decision& decision, const Findings& f, const Mea
                                ", but is not shown to exceed it"));
   }
   if (!f.cmp_promote) why.push_back(ComparisonClause(f, m));
+  if (!f.slices_promote) why.push_back(SliceClause(f, m));
   return absl::StrCat("HOLD: ", absl::StrJoin(why, "; and "));
 }
 
@@ -119,6 +177,15 @@ std::vector<std::string> BoundReasons(const Findings& f, const Measured& m) {
         "the risk upper bound ", Num(upper), " (", m.upper_family_name,
         ") lies below the hold-out lower bound ", Num(*m.risk_lower_bound),
         ": the evidence contradicts itself (a bound's assumptions may be violated)"));
+  }
+  if (!m.slices.empty()) {
+    out.push_back(absl::StrCat(
+        m.slices.size(), " slices share failure probability ", Num(m.split.slices_total), ": ",
+        SliceShareRuleText(m.slice_rule, m.slice_weighted), "; ",
+        SlicesWith(m, SliceOutcome::kClears).size(), " clear, ",
+        SlicesWith(m, SliceOutcome::kExceeds).size(), " exceed, ",
+        SlicesWith(m, SliceOutcome::kUndecided).size(),
+        " undecided (each slice's finding: slices)"));
   }
   if (!f.has_champion) return out;
   if (!m.tolerance_given) {

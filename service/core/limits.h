@@ -50,6 +50,12 @@ inline constexpr std::size_t kMaxStructureWeights = kMaxStructureCandidates;
 // and PlanSamples): input width, one width per fully connected layer.
 inline constexpr std::size_t kMaxLayerWidths = 1000;
 
+// Evidence.slices (wherever evidence appears), SliceSharing.weights and
+// GatePolicy.slice_max_risks: declared slices of a hold-out set. Their names
+// are at most kMaxSliceNameBytes.
+inline constexpr std::size_t kMaxSlices = 1000;
+inline constexpr std::size_t kMaxSliceNameBytes = 128;
+
 // Caller-chosen names, in bytes of UTF-8: StructureCandidate.id,
 // GateCandidate.id and ChampionComparison.champion_id.
 inline constexpr std::size_t kMaxIdBytes = 256;

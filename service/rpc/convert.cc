@@ -100,6 +100,31 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
     }
     out->relabel = std::move(c);
   }
+  // An oversized list is refused whole, before any entry is copied.
+  if (refusals->RefuseList(prefix + ".slices", e.slices_size(), core::kMaxSlices)) {
+    out->slices.reserve(e.slices_size());
+    for (const v1::SliceEvidence& s : e.slices()) {
+      core::SliceEvidence c;
+      c.name = s.name();
+      c.error_count = s.error_count();
+      c.sample_count = s.sample_count();
+      out->slices.push_back(std::move(c));
+    }
+  }
+}
+
+void SliceSharingFromProto(const v1::SliceSharing& in, const std::string& prefix,
+                           core::SliceSharing* out, Refusals* refusals) {
+  // Unset is the core's default rule; a number this server does not know is
+  // nullopt, which the core refuses.
+  out->rule = in.rule() == v1::SLICE_SHARE_RULE_UNSPECIFIED
+                  ? std::optional<core::SliceShareRule>(core::SliceShareRule::kBonferroni)
+                  : SliceShareRuleFromProto(in.rule());
+  if (refusals->RefuseList(prefix + ".weights", in.weights_size(), core::kMaxSlices)) {
+    for (const v1::SliceWeight& w : in.weights()) {
+      out->weights.push_back({w.slice_name(), w.weight()});
+    }
+  }
 }
 
 Converted<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in) {
@@ -131,6 +156,7 @@ Converted<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest
       r.family_choice = core::FamilyChoice::kRecommended;
       break;
   }
+  SliceSharingFromProto(in.slice_sharing(), "slice_sharing", &r.slice_sharing, &out.refusals);
   return out;
 }
 
@@ -169,8 +195,23 @@ v1::CertifyResponse CertifyResponseToProto(const core::CertifyResult& result) {
   ledger->set_spent_failure_probability(result.spent_failure_probability);
   ledger->set_family_count(static_cast<std::uint32_t>(result.certificates.size()));
   ledger->set_rule(result.rule);
-  for (const std::string& caution : core::Cautions()) out.add_cautions(caution);
+  for (const std::string& caution : result.cautions) out.add_cautions(caution);
   out.set_engine_version(RISKBOUND_ENGINE_VERSION);
+  if (result.slices.has_value()) {
+    const core::SliceSummary& in = *result.slices;
+    v1::SliceSummary* s = out.mutable_slices();
+    for (const core::SliceCertificate& c : in.slice_certificates) {
+      v1::SliceCertificate* sc = s->add_slice_certificates();
+      sc->set_slice_name(c.slice_name);
+      CertificateToProto(c.certificate, sc->mutable_certificate());
+    }
+    s->set_rule(SliceShareRuleToProto(in.rule));
+    s->set_failure_probability(in.failure_probability);
+    s->set_spent_failure_probability(in.spent_failure_probability);
+    s->set_worst_slice_upper_bound(in.worst_slice_upper_bound);
+    s->set_worst_slice_name(in.worst_slice_name);
+    s->set_statement(in.statement);
+  }
   return out;
 }
 

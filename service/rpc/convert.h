@@ -36,6 +36,13 @@ void EvidenceFromProto(const v1::Evidence& in, const std::string& prefix, core::
 // under "listed" left to them. Thread-safe.
 Converted<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest& in);
 
+// SliceSharingFromProto
+// Copies a SliceSharing found at `prefix` ("slice_sharing",
+// "policy.slice_sharing"); an unset rule is the core's default, an unknown
+// one nullopt (the core names it); more than kMaxSlices weights are refused.
+void SliceSharingFromProto(const v1::SliceSharing& in, const std::string& prefix,
+                           core::SliceSharing* out, Refusals* refusals);
+
 // CertificateToProto
 // Copies a certificate, with the family's name, source and assumptions from
 // the core's registry (families.h).

@@ -58,6 +58,17 @@ constexpr Row<v1::RelabelTraining, core::RelabelTraining> kRelabelTrainings[] = 
     {v1::RELABEL_TRAINING_APPROXIMATE, core::RelabelTraining::kApproximate},
 };
 
+constexpr Row<v1::SliceShareRule, core::SliceShareRule> kSliceShareRules[] = {
+    {v1::SLICE_SHARE_RULE_BONFERRONI, core::SliceShareRule::kBonferroni},
+    {v1::SLICE_SHARE_RULE_SIDAK, core::SliceShareRule::kSidak},
+};
+
+constexpr Row<v1::SliceOutcome, core::SliceOutcome> kSliceOutcomes[] = {
+    {v1::SLICE_OUTCOME_CLEARS, core::SliceOutcome::kClears},
+    {v1::SLICE_OUTCOME_EXCEEDS, core::SliceOutcome::kExceeds},
+    {v1::SLICE_OUTCOME_UNDECIDED, core::SliceOutcome::kUndecided},
+};
+
 constexpr Row<v1::PacBayesTarget, core::PacBayesTarget> kPacBayesTargets[] = {
     {v1::PAC_BAYES_TARGET_GIBBS, core::PacBayesTarget::kGibbs},
     {v1::PAC_BAYES_TARGET_MAJORITY_VOTE, core::PacBayesTarget::kMajorityVote},
@@ -130,6 +141,20 @@ std::optional<core::RelabelTraining> RelabelTrainingFromProto(int wire) {
 }
 v1::RelabelTraining RelabelTrainingToProto(core::RelabelTraining training) {
   return WireOf(kRelabelTrainings, training, v1::RELABEL_TRAINING_UNSPECIFIED);
+}
+
+std::optional<core::SliceShareRule> SliceShareRuleFromProto(int wire) {
+  return CoreOf(kSliceShareRules, wire);
+}
+v1::SliceShareRule SliceShareRuleToProto(core::SliceShareRule rule) {
+  return WireOf(kSliceShareRules, rule, v1::SLICE_SHARE_RULE_UNSPECIFIED);
+}
+
+std::optional<core::SliceOutcome> SliceOutcomeFromProto(int wire) {
+  return CoreOf(kSliceOutcomes, wire);
+}
+v1::SliceOutcome SliceOutcomeToProto(core::SliceOutcome outcome) {
+  return WireOf(kSliceOutcomes, outcome, v1::SLICE_OUTCOME_UNSPECIFIED);
 }
 
 std::optional<core::ModelKind> ModelKindFromProto(int wire) { return CoreOf(kModelKinds, wire); }

@@ -23,6 +23,7 @@
 #include "service/core/gate.h"
 #include "service/core/registry.h"
 #include "service/core/select.h"
+#include "service/core/slices.h"
 
 namespace riskbound::rpc {
 
@@ -39,6 +40,12 @@ v1::RelabelScheme RelabelSchemeToProto(core::RelabelScheme scheme);
 
 std::optional<core::RelabelTraining> RelabelTrainingFromProto(int wire);
 v1::RelabelTraining RelabelTrainingToProto(core::RelabelTraining training);
+
+std::optional<core::SliceShareRule> SliceShareRuleFromProto(int wire);
+v1::SliceShareRule SliceShareRuleToProto(core::SliceShareRule rule);
+
+std::optional<core::SliceOutcome> SliceOutcomeFromProto(int wire);
+v1::SliceOutcome SliceOutcomeToProto(core::SliceOutcome outcome);
 
 std::optional<core::ModelKind> ModelKindFromProto(int wire);
 v1::ModelKind ModelKindToProto(core::ModelKind kind);

@@ -36,6 +36,17 @@ Converted<GateInputs> GateInputsFromProto(const v1::GateRequest& in) {
   if (p.has_max_regression()) r.policy.max_regression = p.max_regression();
   if (p.has_plan_pass_probability()) r.policy.plan_pass_probability = p.plan_pass_probability();
   r.policy.sequential = p.sequential();
+  if (p.has_max_slice_risk()) r.policy.max_slice_risk = p.max_slice_risk();
+  if (out.refusals.RefuseList("policy.slice_max_risks", p.slice_max_risks_size(),
+                              core::kMaxSlices)) {
+    for (const v1::SliceMaxRisk& l : p.slice_max_risks()) {
+      r.policy.slice_max_risks.push_back({l.slice_name(), l.max_risk()});
+    }
+  } else {
+    out.refusals.skipped_exact.push_back("policy.max_slice_risk");
+  }
+  SliceSharingFromProto(p.slice_sharing(), "policy.slice_sharing", &r.policy.slice_sharing,
+                        &out.refusals);
 
   out.refusals.RefuseText("candidate.id", in.candidate().id(), core::kMaxIdBytes);
   r.candidate.id = in.candidate().id().substr(0, core::kMaxIdBytes);
@@ -113,6 +124,22 @@ v1::GateResponse GateResponseToProto(const core::GateDecision& d, const v1::Gate
     v1::DeltaSpend* entry = out.add_delta_ledger();
     entry->set_test(spend.test);
     entry->set_failure_probability(spend.failure_probability);
+    if (!spend.slice_name.empty()) entry->set_slice_name(spend.slice_name);
+  }
+  for (const core::SliceCheck& c : d.slices) {
+    v1::SliceCheck* s = out.add_slices();
+    s->set_slice_name(c.slice_name);
+    s->set_outcome(SliceOutcomeToProto(c.outcome));
+    s->set_max_risk(c.max_risk);
+    s->set_error_count(c.error_count);
+    s->set_sample_count(c.sample_count);
+    s->set_risk_upper_bound(c.risk_upper_bound);
+    s->set_risk_lower_bound(c.risk_lower_bound);
+    s->set_failure_probability(c.failure_probability);
+    if (c.additional_sample_count.has_value()) {
+      s->set_additional_sample_count(*c.additional_sample_count);
+    }
+    s->set_reason(c.reason);
   }
 
   v1::AuditRecord* audit = out.mutable_audit();

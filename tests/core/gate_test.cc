@@ -63,7 +63,7 @@ GatePolicy Policy(double max_risk, double delta) {
 
 double LedgerSum(const GateDecision& d) {
   double s = 0.0;
-  for (const auto& [name, delta] : d.delta_ledger) s += delta;
+  for (const DeltaSpend& e : d.delta_ledger) s += e.failure_probability;
   return s;
 }
 
@@ -186,7 +186,7 @@ TEST(GateTest, PairedChampionDecisionValues) {
   EXPECT_THAT(Reasons(*d), HasSubstr("it is not the probability that it is better"));
   // Ledger: risk upper, risk lower, difference upper, difference lower.
   ASSERT_EQ(d->delta_ledger.size(), 4u);
-  for (const auto& [name, delta] : d->delta_ledger) EXPECT_EQ(delta, 0.0125) << name;
+  for (const DeltaSpend& e : d->delta_ledger) EXPECT_EQ(e.failure_probability, 0.0125) << e.test;
   EXPECT_LE(LedgerSum(*d), 0.05);
 
   // A tolerance of 0.01 accepts the same candidate.

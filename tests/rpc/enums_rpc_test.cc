@@ -46,6 +46,8 @@ const std::map<std::string, RoundTrip>& Tables() {
       {"riskbound.v1.DeltaSpread", Through(&DeltaSpreadFromProto, &DeltaSpreadToProto)},
       {"riskbound.v1.Verdict", Through(&VerdictFromProto, &VerdictToProto)},
       {"riskbound.v1.DeltaSharing", Through(&DeltaSharingFromProto, &DeltaSharingToProto)},
+      {"riskbound.v1.SliceShareRule", Through(&SliceShareRuleFromProto, &SliceShareRuleToProto)},
+      {"riskbound.v1.SliceOutcome", Through(&SliceOutcomeFromProto, &SliceOutcomeToProto)},
   };
   return *kTables;
 }
