@@ -441,6 +441,11 @@ void MeasureSlices(const GatePolicy& policy, const Evidence& evidence, Measured*
         shares[i], s.name});
     m->slices.push_back(std::move(c));
   }
+  const Family family = policy.sequential ? Family::kHoldoutAnytime : Family::kHoldoutExactBinomial;
+  if (std::find(d->families_used.begin(), d->families_used.end(), family) ==
+      d->families_used.end()) {
+    d->families_used.push_back(family);
+  }
   std::sort(m->slices.begin(), m->slices.end(), [](const SliceCheck& a, const SliceCheck& b) {
     const double ma = a.risk_upper_bound - a.max_risk;
     const double mb = b.risk_upper_bound - b.max_risk;

@@ -214,7 +214,8 @@ struct GateDecision {
   double spent_failure_probability = 0.0;
   // The bound families the risk bounds used, for the audit record: those of
   // the risk upper bound in policy order, then kHoldoutExactBinomial for the
-  // risk lower bound when there are hold-out counts (each at most once).
+  // risk lower bound when there are hold-out counts and for the slices' bounds
+  // (kHoldoutAnytime in sequential mode), each at most once.
   std::vector<Family> families_used;
   // Cautions that apply to every verdict (GateCautions), plus
   // SliceCautions() with slices.

@@ -384,8 +384,11 @@ struct RateTestWords {
   std::string samples;
   // "a PROMOTE on risk", "slice 'x' clearing its limit"
   std::string promote;
-  // "a REJECT", "slice 'x' exceeding its limit (a REJECT)"
+  // "a REJECT", "slice 'x' exceeding its limit, a REJECT" (in parentheses
+  // after a REJECT plan's sentence)
   std::string reject;
+  // "a REJECT on risk", ... (after "give" in sequential mode)
+  std::string reject_outcome;
   // "the risk test", "slice 'x''s test"
   std::string test;
 };
@@ -411,7 +414,7 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRate(double epsilon, double rat
       const std::uint64_t more = *n - std::min(*n, held);
       reasons->push_back(absl::StrCat("if the error rate stays near ", w.rate, " ", Num(rate),
                                       ", about ", more, " more ", w.samples, " (", *n,
-                                      " in all) give ", promote ? w.promote : w.reject,
+                                      " in all) give ", promote ? w.promote : w.reject_outcome,
                                       " with probability at least ", Num(pass),
                                       " under the anytime-valid bounds (sequential mode)"));
       return std::optional<std::uint64_t>(more);
@@ -501,6 +504,7 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanRisk(const GatePolicy& policy,
   words.samples = "labelled hold-out samples";
   words.promote = "a PROMOTE on risk";
   words.reject = "a REJECT";
+  words.reject_outcome = "a REJECT on risk";
   words.test = "the risk test";
   return PlanRate(m.max_risk, rate, m.held, next.per_family, next.risk_lower, pass,
                   policy.sequential, words, stop, &plan->reasons);
@@ -534,7 +538,8 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanSlices(const Measured& m, doubl
     words.rate = absl::StrCat("slice ", quoted, "'s observed error rate");
     words.samples = absl::StrCat("labelled hold-out samples from slice ", quoted);
     words.promote = absl::StrCat("slice ", quoted, " clearing its limit");
-    words.reject = absl::StrCat("slice ", quoted, " exceeding its limit (a REJECT)");
+    words.reject = absl::StrCat("slice ", quoted, " exceeding its limit, a REJECT");
+    words.reject_outcome = words.reject;
     words.test = absl::StrCat("slice ", quoted, "'s test");
     std::vector<std::string> sentence;
     const double half = s.failure_probability / 2.0;
