@@ -110,6 +110,9 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
       c.sample_count = s.sample_count();
       out->slices.push_back(std::move(c));
     }
+  } else {
+    // The slices were evidence: "no evidence" would be wrong.
+    refusals->skipped_exact.push_back(prefix);
   }
 }
 

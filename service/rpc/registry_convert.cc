@@ -1,5 +1,6 @@
 #include "service/rpc/registry_convert.h"
 
+#include <algorithm>
 #include <string>
 #include <utility>
 #include <vector>
@@ -220,9 +221,16 @@ v1::RecordResult ScoreRecord(const v1::ScoreSettings& settings, const v1::Regist
     if (settings.certify().has_all_applicable()) request.mutable_all_applicable();
     absl::StatusOr<v1::CertifyResponse> answer = HandleCertify(request, call);
     if (answer.ok()) {
-      // The cautions are the same for every record: the RunSummary carries
-      // them once.
-      answer->clear_cautions();
+      // The cautions every record shares are in the RunSummary once; a
+      // record's own (the slices' caution) stay with it.
+      const std::vector<std::string>& common = core::Cautions();
+      google::protobuf::RepeatedPtrField<std::string>* cautions = answer->mutable_cautions();
+      cautions->erase(std::remove_if(cautions->begin(), cautions->end(),
+                                     [&common](const std::string& c) {
+                                       return std::find(common.begin(), common.end(), c) !=
+                                              common.end();
+                                     }),
+                      cautions->end());
       *out.mutable_certified() = std::move(*answer);
     } else {
       failed = answer.status();
