@@ -20,7 +20,8 @@ namespace riskbound::cli {
 namespace {
 
 constexpr char kUsage[] =
-    "riskbound select --input structure.json [--plot srm.svg] [--output table|json]";
+    "riskbound select --input structure.json [--heuristic] [--plot srm.svg]\n"
+    "                 [--output table|json]";
 constexpr char kSummary[] =
     "Structural risk minimization: for a nested structure of model classes of growing\n"
     "capacity (fixed, with their delta weights, before the training sample was seen) and the\n"
@@ -37,6 +38,14 @@ constexpr char kSummary[] =
     "                  \"capacity\": {\"vc_dimension\": 8}}, ...]}\n"
     "--plot FILE writes an SVG picture: empirical risk, capacity penalty and bound against\n"
     "capacity, the chosen candidate ringed.\n"
+    "\n"
+    "--heuristic (the request's heuristic field) ranks the classes instead by the VC formula\n"
+    "with each class's FITTED effective VC dimension (structure[i].effective_vc_dimension, from\n"
+    "riskbound effective-vc; Vapnik, Levin & LeCun 1994) in place of its VC dimension. That\n"
+    "answer is a HEURISTIC RANKING, NOT A CERTIFICATE: its scores are no bounds, nothing holds\n"
+    "with the stated probability, and no gate or certificate takes an effective VC dimension.\n"
+    "Use it to compare classes or to plan. The candidates then carry effective_vc_dimension and\n"
+    "no capacity, and the family is vc-additive or vc-relative.\n"
     "\n"
     "exit codes: 0 answered; 1 the plot file could not be written; 2 usage; 3 invalid input\n"
     "(field named); 4 server unreachable.";
@@ -60,11 +69,18 @@ constexpr char kTerms[] =
     "                 data\n"
     "  vacuous        the bound is 1 or more: it says nothing\n"
     "  fragile        another candidate's bound is within the fragility tolerance of the\n"
-    "                 chosen one: the data do not clearly separate them\n";
+    "                 chosen one: the data do not clearly separate them\n"
+    "  h_hat (fitted) heuristic mode: the class's fitted effective VC dimension, an estimate\n"
+    "                 and not a capacity\n"
+    "  score          heuristic mode: the bound's formula with h_hat; it ranks the classes and\n"
+    "                 is NOT a bound on the true error\n";
 
 std::vector<OptionSpec> Specs() {
   std::vector<OptionSpec> specs = {
       {"input", "FILE", "the SelectStructureRequest as JSON (- for stdin); required"},
+      {"heuristic", "",
+       "rank by the candidates' fitted effective_vc_dimension (request heuristic = true): a "
+       "heuristic ranking, NOT a certificate"},
       {"plot", "FILE", "also write an SVG plot of the three curves to FILE"},
       {"output", "table|json", "output format (default table)"},
   };
@@ -77,15 +93,63 @@ int Usage(std::ostream& err, const std::string& message) {
 }
 
 std::string CapacityHeader(const v1::SelectStructureResponse& r) {
+  if (r.heuristic()) return "h_hat (fitted)";
   return r.capacity_measure() == "vc_dimension" ? "VC dim h" : "ln|H|";
 }
 
 std::string CapacityText(const v1::SelectStructureResponse& r, double capacity) {
+  if (r.heuristic()) return FormatSignificant(capacity, 4, Rounding::kNearest);
   return r.capacity_measure() == "vc_dimension" ? absl::StrFormat("%.0f", capacity)
                                                 : FormatSignificant(capacity, 4, Rounding::kUp);
 }
 
+// Heuristic mode's table: the same columns with "score" for "bound", headed
+// and closed so that it cannot be read as a certificate.
+void PrintHeuristicTable(const v1::SelectStructureResponse& r, std::ostream& out) {
+  out << absl::StrFormat(
+      "HEURISTIC RANKING, NOT A CERTIFICATE: %d candidates ranked by the %s formula with fitted\n"
+      "effective VC dimensions (delta = %s spread over them)\n\n",
+      r.candidates_size(), r.family_name(), FormatInput(r.requested_failure_probability()));
+  Table table({"", "field", "candidate", CapacityHeader(r), "empirical", "penalty", "score",
+               "delta used", "weight", "vacuous"});
+  for (int i = 0; i < r.candidates_size(); ++i) {
+    const v1::CandidateBound& c = r.candidates(i);
+    table.AddRow(
+        {static_cast<std::uint32_t>(i) == r.chosen_index() ? "*" : "",
+         absl::StrCat("structure[", i, "]"), c.id(), CapacityText(r, c.capacity()),
+         FormatObserved(c.empirical_risk()), FormatUpper(c.penalty()),
+         FormatUpper(c.risk_upper_bound()), FormatFailureProbability(c.failure_probability()),
+         FormatSignificant(c.delta_weight(), 4, Rounding::kUp), c.vacuous() ? "yes" : "no"});
+  }
+  out << table.Render() << "\n";
+  const v1::CandidateBound& chosen = r.candidates(static_cast<int>(r.chosen_index()));
+  out << absl::StrFormat(
+      "Ranked first (*): %s (structure[%d]): heuristic score %s, NOT a bound on its true "
+      "error%s\n",
+      r.chosen_id(), r.chosen_index(), FormatUpper(chosen.risk_upper_bound()),
+      chosen.vacuous() ? " (>= 1: the ranking says nothing)" : "");
+  if (r.fragile()) {
+    out << absl::StrFormat(
+        "WARNING: fragile ranking: %s within %s of the first score; the fits do not clearly "
+        "separate them.\n",
+        absl::StrJoin(r.within_tolerance_ids(), ", "), FormatInput(r.fragility_tolerance()));
+  } else {
+    out << absl::StrFormat("Not fragile: no other candidate's score is within %s.\n",
+                           FormatInput(r.fragility_tolerance()));
+  }
+  out << "Delta accounting: " << r.delta_rule() << "\n";
+  for (const std::string& note : r.notes()) out << "Note: " << note << "\n";
+  for (const v1::CandidateBound& c : r.candidates()) {
+    for (const std::string& note : c.notes()) out << "Note (" << c.id() << "): " << note << "\n";
+  }
+  PrintCautions(r.cautions(), out);
+}
+
 void PrintTable(const v1::SelectStructureResponse& r, std::ostream& out) {
+  if (r.heuristic()) {
+    PrintHeuristicTable(r, out);
+    return;
+  }
   out << absl::StrFormat(
       "Structural risk minimization with %s over %d candidates (delta = %s spread over them)\n\n",
       r.family_name(), r.candidates_size(), FormatInput(r.requested_failure_probability()));
@@ -151,6 +215,20 @@ SrmPlot PlotOf(const v1::SelectStructureResponse& r) {
   }
   plot.chosen_index = r.chosen_index();
   plot.fragile = r.fragile();
+  if (r.heuristic()) {
+    plot.heuristic = true;
+    plot.title =
+        absl::StrCat("HEURISTIC ranking, NOT a certificate (", r.family_name(), ", fitted h_hat)");
+    plot.subtitle = absl::StrFormat(
+        "Ranked first: %s, score %s: NOT a bound on its true error%s.\n"
+        "Score = empirical risk + penalty of the VC formula with the fitted effective VC "
+        "dimension.",
+        r.chosen_id(), FormatUpper(chosen.risk_upper_bound()),
+        r.fragile() ? absl::StrCat("; FRAGILE: ", absl::StrJoin(r.within_tolerance_ids(), ", "),
+                                   " within ", FormatInput(r.fragility_tolerance()))
+                    : "");
+    plot.capacity_label = "fitted effective VC dimension h_hat (heuristic)";
+  }
   return plot;
 }
 
@@ -169,6 +247,7 @@ int RunSelect(const std::vector<std::string>& args, std::ostream& out, std::ostr
 
   v1::SelectStructureRequest request;
   if (auto code = LoadJsonInput("select", *input, &request, err)) return *code;
+  if (start.args.Has("heuristic")) request.set_heuristic(true);
 
   RiskBoundClient client(start.client);
   v1::SelectStructureResponse response;

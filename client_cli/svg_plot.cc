@@ -178,10 +178,14 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
                         "height=\"%s\" viewBox=\"0 0 %s %s\" font-family=\"sans-serif\">\n",
                         Num(kWidth), Num(height), Num(kWidth), Num(height));
   absl::StrAppend(&s, "  <title>", EscapeMarkup(plot.title), "</title>\n");
-  absl::StrAppend(&s,
-                  "  <desc>Empirical risk, capacity penalty and their sum (the bound) of each "
-                  "candidate against its capacity; the ring marks the candidate with the "
-                  "smallest bound.</desc>\n");
+  absl::StrAppend(&s, plot.heuristic
+                          ? "  <desc>Empirical risk, penalty and their sum (a heuristic score, "
+                            "NOT a bound) of each candidate against its fitted effective VC "
+                            "dimension; the ring marks the candidate with the smallest "
+                            "score.</desc>\n"
+                          : "  <desc>Empirical risk, capacity penalty and their sum (the bound) "
+                            "of each candidate against its capacity; the ring marks the "
+                            "candidate with the smallest bound.</desc>\n");
   absl::StrAppendFormat(&s, "  <rect x=\"0\" y=\"0\" width=\"%s\" height=\"%s\" fill=\"white\"/>\n",
                         Num(kWidth), Num(height));
 
@@ -332,7 +336,8 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
   } entries[] = {
       {kEmpiricalColor, "", 2.0, "empirical risk (training)"},
       {kPenaltyColor, "7 4", 2.0, "capacity penalty"},
-      {kBoundColor, "", 2.8, "bound = empirical + penalty"},
+      {kBoundColor, "", 2.8,
+       plot.heuristic ? "score (heuristic, NOT a bound)" : "bound = empirical + penalty"},
   };
   double ey = ly + 22;
   for (const auto& e : entries) {
@@ -349,9 +354,9 @@ std::string RenderSrmSvg(const SrmPlot& plot) {
   absl::StrAppendFormat(&s,
                         "    <circle cx=\"%s\" cy=\"%s\" r=\"7\" fill=\"none\" stroke=\"%s\" "
                         "stroke-width=\"2.5\"/>\n    <text x=\"%s\" y=\"%s\">chosen: smallest "
-                        "bound</text>\n",
-                        Num(kLegendX + 28), Num(ey), kChosenColor, Num(kLegendX + 52),
-                        Num(ey + 4));
+                        "%s</text>\n",
+                        Num(kLegendX + 28), Num(ey), kChosenColor, Num(kLegendX + 52), Num(ey + 4),
+                        plot.heuristic ? "score" : "bound");
   if (plot.fragile) {
     ey += 22;
     absl::StrAppendFormat(&s,

@@ -35,6 +35,9 @@ struct SrmPlot {
   std::size_t chosen_index = 0;
   // True when the choice is fragile; the picture then says so.
   bool fragile = false;
+  // True for select's heuristic mode: the top curve is a heuristic score, not
+  // a bound, and the legend says so.
+  bool heuristic = false;
 };
 
 // RenderSrmSvg

@@ -26,11 +26,14 @@
 
 namespace riskbound::core {
 
-// Constants of the curve: a = 0.16, b = 1.2 (Vapnik, Levin & LeCun 1994;
-// these values could not be checked against a copy of the paper or of Shao,
-// Cherkassky & Li 2000 here: from memory), and k chosen so that Phi(0.5) = 1,
-// which gives k = 1/2 - 2a - a^2 b = 0.14928 (solve
-// a (ln 1 + 1)/(1/2 - k) (sqrt(1 + b (1/2 - k)) + 1) = 1).
+// Constants of the curve: a = 0.16, b = 1.2 (Vapnik, Levin & LeCun 1994),
+// FROM MEMORY: neither the paper nor a secondary source stating them (Shao,
+// Cherkassky & Li 2000; Cherkassky & Mulier, Learning from Data) could be
+// read; only Shao et al.'s abstract, which confirms the procedure (fitting
+// the theoretical formula to error-frequency measurements on artificial data
+// sets of varying sizes), not the constants. k is derived: Phi(0.5) = 1,
+// i.e. a (ln 1 + 1)/(1/2 - k) (sqrt(1 + b (1/2 - k)) + 1) = 1, solves to
+// k = 1/2 - 2a - a^2 b = 0.14928.
 inline constexpr double kVllA = 0.16;
 inline constexpr double kVllB = 1.2;
 inline constexpr double kVllK = 0.5 - 2.0 * kVllA - kVllA * kVllA * kVllB;

@@ -170,8 +170,9 @@ const std::array<FamilySpec, 17> kFamilies = {{
      [](const Evidence& e, double d) { return HoldoutAnytime(*e.holdout, d); }},
     {Family::kMaximalDiscrepancy, "maximal-discrepancy",
      "Maximal-discrepancy bound from retraining with half the labels flipped",
-     "Bartlett, Boucheron & Lugosi (2002), Machine Learning 48:85-113, maximal discrepancy "
-     "penalty; McDiarmid (1989) for the constant 3 sqrt(ln(1/delta)/(2m))",
+     "Bartlett, Boucheron & Lugosi (2002), Machine Learning 48:85-113 (the maximal "
+     "discrepancy); the constant 3 sqrt(ln(1/delta)/(2m)) derived by symmetrization and "
+     "McDiarmid (1989), not quoted from their theorem",
      kDiscrepancyAssumptions, "evidence.relabel with scheme half flip", CapacityMeasure::kNone,
      false, HasHalfFlip,
      [](const Evidence& e, double d) { return MaximalDiscrepancyBound(*e.relabel, d); }},

@@ -105,9 +105,11 @@ Certificate RademacherFromDraws(const RelabelEvidence& evidence, double delta) {
 //     2/m = 3/m when one example changes (each D_j by at most 2/m).
 //     McDiarmid (1989): P(Z >= E Z + t) <= exp(-2 t^2 / (m (3/m)^2)), so
 //     t = 3 sqrt(ln(1/delta) / (2m)), and E Z <= 0 by step 1.
-// This is the form of the maximal-discrepancy bound of Bartlett, Boucheron &
-// Lugosi (2002); their theorem is not quoted from a copy here (see
-// rademacher.h).
+// This is a maximal-discrepancy bound in the sense of Bartlett, Boucheron &
+// Lugosi (2002), whose first page defines the same discrepancy (first half
+// against second half, computed by retraining with labels flipped); their
+// theorem's number and constant could not be read, so this derivation stands
+// on its own and is not a quotation of it (see rademacher.h).
 Certificate MaximalDiscrepancyBound(const RelabelEvidence& evidence, double delta) {
   const double m = static_cast<double>(evidence.sample_count);
   const double rate = EmpiricalRate(evidence);

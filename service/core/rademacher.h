@@ -71,12 +71,18 @@ Certificate RademacherFromDraws(const RelabelEvidence& evidence, double delta);
 // With probability >= 1 - delta, for every h of the class:
 //   R(h) <= R_emp(h) + D_N + 3 sqrt(ln(1/delta) / (2m)),
 // D_N = RelabelEstimate(evidence) (scheme kHalfFlip). Upper bound only.
-// Source: the maximal-discrepancy penalty of Bartlett, Boucheron & Lugosi
-// (2002), Machine Learning 48:85-113. Their theorem number and constant
-// could not be checked against a copy of the paper here, so the constant
-// used is the one derived in full in rademacher.cc (symmetrization and
-// McDiarmid 1989 with bounded differences 3/m), valid for the average of N
-// draws whose halves were fixed independently of the data.
+// Source: the maximal discrepancy of Bartlett, Boucheron & Lugosi (2002),
+// "Model Selection and Error Estimation", Machine Learning 48:85-113. Only
+// the paper's first page could be read (abstract and introduction): it
+// defines the quantity as we do ("the maximal difference between the error
+// on the first half of the training data and the second half", computed by
+// "empirical risk minimization over the training data with some labels
+// flipped") but the theorem that bounds the error with it, its number and
+// its constant were not available, so none is quoted. The constant used is
+// the one derived in full in rademacher.cc and docs/capacity-from-data.md
+// (symmetrization, then McDiarmid 1989 with bounded differences 3/m), valid
+// for the average of N draws whose halves were fixed independently of the
+// data. Nothing here is taken from memory of their theorem.
 // Heuristic when training is kApproximate.
 // REQUIRES: evidence valid (sample_count even), scheme kHalfFlip,
 //           0 < delta < 1.

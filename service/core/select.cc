@@ -11,6 +11,7 @@
 #include "service/core/delta_split.h"
 #include "service/core/families.h"
 #include "service/core/field_violation.h"
+#include "service/core/vc.h"
 
 namespace riskbound::core {
 namespace {
@@ -57,11 +58,42 @@ double Share(const SelectRequest& request, DeltaSpread spread, double weight) {
   return WeightedShare(request.failure_probability, weight);
 }
 
+// The families whose formula takes a VC dimension: the only ones heuristic
+// mode can evaluate with a fitted effective VC dimension.
+bool IsVcFamily(Family f) { return f == Family::kVcAdditive || f == Family::kVcRelative; }
+
+bool CapacityGiven(const ClassCapacity& c) {
+  return c.vc_dimension.has_value() || c.hypothesis_count.has_value() ||
+         c.log_hypothesis_count.has_value() || c.model.has_value();
+}
+
+// Heuristic mode: each candidate carries a fitted effective VC dimension and
+// no capacity.
+void CheckHeuristicCandidate(const StructureCandidate& c, const std::string& prefix,
+                             std::vector<FieldViolation>* v) {
+  if (CapacityGiven(c.capacity)) {
+    v->push_back({prefix + ".capacity",
+                  "heuristic mode ranks each class by its effective_vc_dimension alone: leave "
+                  "capacity unset (a known capacity belongs in a certified selection, without "
+                  "heuristic)"});
+  }
+  const std::string path = prefix + ".effective_vc_dimension";
+  if (!c.effective_vc_dimension.has_value()) {
+    v->push_back({path,
+                  "required in heuristic mode: the class's fitted h_hat "
+                  "(FitEffectiveVcDimension, riskbound effective-vc)"});
+  } else if (!std::isfinite(*c.effective_vc_dimension) || *c.effective_vc_dimension <= 0.0) {
+    v->push_back({path, absl::StrFormat("must be a finite effective VC dimension > 0, not %g",
+                                        *c.effective_vc_dimension)});
+  }
+}
+
 // Checks every candidate and resolves its capacity in `structure` (a copy of
 // the request's). `measure` is kNone when the family is unknown (then the
-// capacities are resolved but not judged against it).
+// capacities are resolved but not judged against it). In heuristic mode the
+// candidates carry effective VC dimensions instead of capacities.
 void CheckCandidates(std::vector<StructureCandidate>* structure, CapacityMeasure measure,
-                     std::vector<FieldViolation>* v) {
+                     bool heuristic, std::vector<FieldViolation>* v) {
   if (structure->empty()) {
     v->push_back({"structure", "give at least one candidate class"});
     return;
@@ -75,6 +107,17 @@ void CheckCandidates(std::vector<StructureCandidate>* structure, CapacityMeasure
       v->push_back({prefix + ".id", "give each candidate a non-empty id"});
     } else if (!ids.insert(c.id).second) {
       v->push_back({prefix + ".id", absl::StrCat("id \"", c.id, "\" is used twice")});
+    }
+    if (heuristic) {
+      CheckSampleCounts(prefix, c, v);
+      CheckHeuristicCandidate(c, prefix, v);
+      continue;
+    }
+    if (c.effective_vc_dimension.has_value()) {
+      v->push_back({prefix + ".effective_vc_dimension",
+                    "a fitted effective VC dimension is a heuristic estimate, not a capacity a "
+                    "bound may use: give capacity for a certified selection, or set heuristic "
+                    "to rank by it (the answer is then not a certificate)"});
     }
     const std::string capacity_path = prefix + ".capacity";
     const bool resolved = ResolveCapacity(&c.capacity, capacity_path, v);
@@ -160,6 +203,21 @@ std::string DeltaRule(const SelectRequest& request, DeltaSpread spread, double t
       FailureProbabilityText(total));
 }
 
+// Heuristic mode's account of delta: the shares only fix where the formula
+// is evaluated; no union bound is claimed.
+std::string HeuristicDeltaRule(const SelectRequest& request, DeltaSpread spread) {
+  std::string where = "delta * w_k with the caller's weights";
+  if (spread == DeltaSpread::kUniform) {
+    where = absl::StrCat("delta/", request.structure.size());
+  } else if (spread == DeltaSpread::kInverseSquare) {
+    where = "delta * 6/(pi^2 k^2) (k = position, from 1)";
+  }
+  return absl::StrCat("heuristic mode: candidate k's score is the VC formula at ", where,
+                      " (rounded down), as in a certified selection; with fitted effective VC "
+                      "dimensions no union bound is claimed and nothing holds with any stated "
+                      "probability");
+}
+
 // A request after its checks: the structure with resolved capacities, the
 // family, its measure and the spread.
 struct Checked {
@@ -180,7 +238,12 @@ Checked Check(const SelectRequest& request, std::vector<FieldViolation>* v) {
   CheckNonNegativeFinite("fragility_tolerance", out.fragility_tolerance, v);
   out.spec = request.family.has_value() ? FindFamily(*request.family) : nullptr;
   CapacityMeasure measure = CapacityMeasure::kNone;
-  if (out.spec == nullptr) {
+  if (request.heuristic && (out.spec == nullptr || !IsVcFamily(out.spec->family))) {
+    v->push_back({"family",
+                  "heuristic mode evaluates the VC formula with each class's fitted "
+                  "effective VC dimension: give a VC family (vc-additive, "
+                  "vc-relative)"});
+  } else if (out.spec == nullptr) {
     v->push_back({"family", absl::StrCat("required: a training-set family (", TrainingFamilyNames(),
                                          "); unset, or a value this server does not know")});
   } else if (out.spec->capacity_measure == CapacityMeasure::kNone) {
@@ -191,7 +254,7 @@ Checked Check(const SelectRequest& request, std::vector<FieldViolation>* v) {
   } else {
     measure = out.spec->capacity_measure;
   }
-  CheckCandidates(&out.structure, measure, v);
+  CheckCandidates(&out.structure, measure, request.heuristic, v);
   CheckWeights(request, out.spread, v);
   return out;
 }
@@ -214,10 +277,13 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
 
   const FamilySpec* spec = checked.spec;
   const CapacityMeasure measure = spec->capacity_measure;
+  const bool heuristic = request.heuristic;
   const std::vector<double> weights = Weights(request, checked.spread);
   SelectResult result;
   result.family = spec->family;
-  result.capacity_measure = std::string(CapacityMeasureName(measure));
+  result.heuristic = heuristic;
+  result.capacity_measure =
+      heuristic ? "effective_vc_dimension" : std::string(CapacityMeasureName(measure));
   result.delta_spread = checked.spread;
   result.fragility_tolerance = checked.fragility_tolerance;
   result.requested_failure_probability = request.failure_probability;
@@ -225,13 +291,21 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
   for (std::size_t i = 0; i < checked.structure.size(); ++i) {
     if (i % kStopCheckEvery == 0 && stop.StopRequested()) return stop.Status();
     const StructureCandidate& c = checked.structure[i];
-    Evidence evidence;
-    evidence.training = TrainingEvidence{c, c.capacity};
     const double delta_i = Share(request, checked.spread, weights[i]);
-    const Certificate cert = spec->compute(evidence, delta_i);
+    Certificate cert;
     CandidateBound row;
+    if (heuristic) {
+      // The VC formula with h_hat: a score, never a bound (select.h).
+      row.capacity = *c.effective_vc_dimension;
+      cert = spec->family == Family::kVcRelative ? VcRelativeAtReal(c, row.capacity, delta_i)
+                                                 : VcAdditiveAtReal(c, row.capacity, delta_i);
+    } else {
+      Evidence evidence;
+      evidence.training = TrainingEvidence{c, c.capacity};
+      cert = spec->compute(evidence, delta_i);
+      row.capacity = *CapacityOf(c, measure);
+    }
     row.id = c.id;
-    row.capacity = *CapacityOf(c, measure);
     row.empirical_risk = cert.empirical_risk;
     row.penalty = cert.penalty;
     row.risk_upper_bound = cert.risk_upper_bound;
@@ -241,6 +315,12 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
     row.exact = cert.exact;
     row.notes = cert.notes;
     row.notes.insert(row.notes.end(), c.capacity.notes.begin(), c.capacity.notes.end());
+    if (heuristic) {
+      row.notes.push_back(absl::StrFormat(
+          "heuristic score, not a bound: the %s formula with the fitted effective VC "
+          "dimension h_hat = %g in place of a VC dimension",
+          spec->family_name, row.capacity));
+    }
     result.candidates.push_back(std::move(row));
   }
   const auto& rows = result.candidates;
@@ -263,16 +343,40 @@ absl::StatusOr<SelectResult> SelectStructure(const SelectRequest& request,
   shares.reserve(rows.size());
   for (const CandidateBound& row : rows) shares.push_back(row.failure_probability);
   result.spent_failure_probability = SpentOf(shares);
-  result.delta_rule = DeltaRule(request, checked.spread, result.spent_failure_probability);
+  result.delta_rule = heuristic
+                          ? HeuristicDeltaRule(request, checked.spread)
+                          : DeltaRule(request, checked.spread, result.spent_failure_probability);
+  if (heuristic) {
+    result.notes.push_back(absl::StrFormat(
+        "HEURISTIC, NOT A BOUND: the candidates are ranked by the %s formula with each "
+        "class's fitted effective VC dimension (Vapnik, Levin & LeCun 1994) in place of its VC "
+        "dimension. h_hat is an estimate (the fitted curve is an upper-bound shape used as an "
+        "equality, calibrated on linear classifiers), so no score here bounds a true error. Use "
+        "the ranking to compare classes or to plan; never as a certificate: no gate verdict or "
+        "certificate takes an effective VC dimension",
+        spec->family_name));
+    for (std::size_t i = 1; i < checked.structure.size(); ++i) {
+      const double before = *checked.structure[i - 1].effective_vc_dimension;
+      const double here = *checked.structure[i].effective_vc_dimension;
+      if (here < before) {
+        result.notes.push_back(absl::StrFormat(
+            "structure[%d].effective_vc_dimension %g is below the previous class's %g although "
+            "the classes are nested: the fits are noisy (see their bootstrap intervals)",
+            i, here, before));
+      }
+    }
+  }
+  const char* what = heuristic ? "score" : "bound";
   if (rows[result.chosen_index].vacuous) {
-    result.notes.emplace_back(
-        "every candidate's bound is vacuous (>= 1): the structure says nothing about "
-        "the true error; the choice is arbitrary");
+    result.notes.push_back(absl::StrFormat(
+        "every candidate's %s is vacuous (>= 1): the structure says nothing about the true "
+        "error; the choice is arbitrary",
+        what));
   } else if (result.fragile) {
-    result.notes.push_back(
-        absl::StrFormat("%d other candidate(s) are within %g of the chosen bound: the data do not "
-                        "clearly separate them",
-                        result.within_tolerance_ids.size(), checked.fragility_tolerance));
+    result.notes.push_back(absl::StrFormat(
+        "%d other candidate(s) are within %g of the chosen %s: the data do not clearly "
+        "separate them",
+        result.within_tolerance_ids.size(), checked.fragility_tolerance, what));
   }
   return result;
 }

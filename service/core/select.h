@@ -13,6 +13,15 @@
 // memory); Shalev-Shwartz & Ben-David (2014) ch. 7 (SRM with weights w_k,
 // Theorem 7.4 from memory); weights
 // 6/(pi^2 k^2) from sum_k 1/k^2 = pi^2/6 (Euler's Basel sum).
+//
+// Heuristic mode (SelectRequest::heuristic): the same VC formula evaluated
+// with each class's FITTED effective VC dimension h_hat (effective_vc.h;
+// Vapnik, Levin & LeCun 1994) in place of its VC dimension. h_hat is an
+// estimate, not a capacity (the fitted curve is an upper-bound shape used as
+// an equality), so the scores are no bounds and the union bound protects
+// nothing: the result is marked heuristic and says so in its first note. It
+// ranks classes; it is never a certificate, and nothing that builds a
+// certificate or a gate verdict reads an effective VC dimension.
 #ifndef RISKBOUND_SERVICE_CORE_SELECT_H_
 #define RISKBOUND_SERVICE_CORE_SELECT_H_
 
@@ -36,7 +45,11 @@ struct StructureCandidate : SampleCounts {
   // Capacity of the class: vc_dimension for the VC families,
   // log_hypothesis_count (or hypothesis_count) for the finite-class (Occam)
   // families, or a model description (resolved with ResolveCapacity).
+  // Heuristic mode: must be empty.
   ClassCapacity capacity;
+  // HEURISTIC ONLY: the class's fitted effective VC dimension h_hat. Allowed
+  // only in heuristic mode, and then required: finite and > 0.
+  std::optional<double> effective_vc_dimension;
 };
 
 // How the failure probability delta is spread over the candidates. API:
@@ -76,6 +89,10 @@ struct SelectRequest {
   // a near tie (the choice is then "fragile"). Finite, >= 0. nullopt:
   // kDefaultFragilityTolerance.
   std::optional<double> fragility_tolerance;
+  // Heuristic mode: rank by structure[i].effective_vc_dimension with the VC
+  // family's formula (family kVcAdditive or kVcRelative). The result is a
+  // heuristic ranking, not a certificate.
+  bool heuristic = false;
 };
 
 // One candidate's bound. API: CandidateBound.
@@ -87,6 +104,7 @@ struct CandidateBound {
   // risk_upper_bound - empirical_risk.
   double penalty = 0.0;
   // The candidate's bound at failure_probability (below), clipped to [0, 1].
+  // Heuristic mode: the formula's value with h_hat, a score and NOT a bound.
   double risk_upper_bound = 1.0;
   // The request's failure probability * delta_weight: spent on this candidate.
   double failure_probability = 0.0;
@@ -124,7 +142,8 @@ struct SelectResult {
   double spent_failure_probability = 0.0;
   // The family used.
   Family family = Family::kVcAdditive;
-  // What `capacity` means: "vc_dimension" or "log_hypothesis_count".
+  // What `capacity` means: "vc_dimension", "log_hypothesis_count", or in
+  // heuristic mode "effective_vc_dimension".
   std::string capacity_measure;
   // Plain-words remarks (every bound vacuous, near ties, ...).
   std::vector<std::string> notes;
@@ -132,6 +151,10 @@ struct SelectResult {
   DeltaSpread delta_spread = kDefaultDeltaSpread;
   // The request's failure_probability.
   double requested_failure_probability = 0.0;
+  // Heuristic mode: ranked by fitted effective VC dimensions. No
+  // risk_upper_bound is a bound and spent_failure_probability guarantees
+  // nothing; the first note says so.
+  bool heuristic = false;
 };
 
 // ValidateSelectRequest
@@ -152,11 +175,19 @@ absl::Status ValidateSelectRequest(const SelectRequest& request);
 // (0 or > 2^53), structure[i].error_count (> sample_count), family (unset,
 // unknown, or not a training-set family), weights / weights[i] (wrong size,
 // outside (0, 1], sum above 1, or given without kCallerWeights),
-// failure_probability (outside (0, 1)), fragility_tolerance (not finite, < 0).
+// failure_probability (outside (0, 1)), fragility_tolerance (not finite, < 0),
+// structure[i].effective_vc_dimension (given without heuristic; in heuristic
+// mode missing, not finite or <= 0), structure[i].capacity (given in
+// heuristic mode), family (in heuristic mode, not a VC family).
 // Never returns NaN or Inf.
 // Cost: linear in the number of candidates (a bounded amount per candidate);
 // `stop` is checked every few candidates, and a stopped call returns
 // stop.Status() (CANCELLED or DEADLINE_EXCEEDED), never a partial result.
+// Heuristic mode: every candidate's row is the VC formula at its share with
+// h = h_hat (equal to a Certify call with vc_dimension = h_hat when h_hat is
+// an integer), result.heuristic is true, capacity_measure is
+// "effective_vc_dimension", and the notes start "HEURISTIC, NOT A BOUND"; a
+// decrease of h_hat along the structure is noted, not refused.
 // REQUIRES: the candidates, their order, the family and the weights were
 // fixed before the training sample was seen.
 // Thread-safe; no shared state.

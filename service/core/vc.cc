@@ -28,23 +28,30 @@ double VcConfidence(double h, double m, double delta) {
 
 Certificate VcAdditive(const SampleCounts& counts, std::uint64_t vc_dimension,
                        double delta) {
+  return VcAdditiveAtReal(counts, static_cast<double>(vc_dimension), delta);
+}
+
+Certificate VcRelative(const SampleCounts& counts, std::uint64_t vc_dimension, double delta) {
+  return VcRelativeAtReal(counts, static_cast<double>(vc_dimension), delta);
+}
+
+Certificate VcAdditiveAtReal(const SampleCounts& counts, double h, double delta) {
   const double m = static_cast<double>(counts.sample_count);
   const double rate = EmpiricalRate(counts);
-  const double slack = VcConfidence(static_cast<double>(vc_dimension), m, delta) + 1.0 / m;
+  const double slack = VcConfidence(h, m, delta) + 1.0 / m;
   Certificate c = MakeCertificate(Family::kVcAdditive, delta, rate, rate + slack,
                                   rate - slack);
-  if (static_cast<double>(vc_dimension) > 2.0 * m) {
+  if (h > 2.0 * m) {
     c.notes.emplace_back("VC dimension exceeds twice the sample size: the growth "
                          "function is bounded only by 2^(2m) and the bound is vacuous");
   }
   return c;
 }
 
-Certificate VcRelative(const SampleCounts& counts, std::uint64_t vc_dimension,
-                       double delta) {
+Certificate VcRelativeAtReal(const SampleCounts& counts, double h, double delta) {
   const double m = static_cast<double>(counts.sample_count);
   const double rate = EmpiricalRate(counts);
-  const double e = 4.0 * VcNumerator(static_cast<double>(vc_dimension), m, delta) / m;
+  const double e = 4.0 * VcNumerator(h, m, delta) / m;
   const double upper = rate + (e / 2.0) * (1.0 + std::sqrt(1.0 + 4.0 * rate / e));
   return MakeCertificate(Family::kVcRelative, delta, rate, upper, std::nullopt);
 }

@@ -44,6 +44,17 @@ Certificate VcAdditive(const SampleCounts& counts, std::uint64_t vc_dimension,
 Certificate VcRelative(const SampleCounts& counts, std::uint64_t vc_dimension,
                        double delta);
 
+// VcAdditiveAtReal, VcRelativeAtReal
+// The same two formulas with a real h >= 0 in place of the integer VC
+// dimension (VcAdditive(c, h, d) equals VcAdditiveAtReal(c, double(h), d)).
+// Only select's heuristic mode calls them, with a fitted effective VC
+// dimension: the result is then a penalized score, not a bound, and the
+// caller marks it so (a real h is a bound's capacity only when it is the
+// class's VC dimension).
+// REQUIRES: as VcAdditive; h finite and >= 0.
+Certificate VcAdditiveAtReal(const SampleCounts& counts, double h, double delta);
+Certificate VcRelativeAtReal(const SampleCounts& counts, double h, double delta);
+
 }  // namespace riskbound::core
 
 #endif  // RISKBOUND_SERVICE_CORE_VC_H_

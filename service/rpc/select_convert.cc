@@ -32,6 +32,7 @@ Converted<core::SelectRequest> SelectRequestFromProto(const v1::SelectStructureR
       cand.error_count = c.error_count();
       cand.sample_count = c.sample_count();
       CapacityFromProto(c.capacity(), prefix + ".capacity", &cand.capacity, &out.refusals);
+      if (c.has_effective_vc_dimension()) cand.effective_vc_dimension = c.effective_vc_dimension();
       r.structure.push_back(std::move(cand));
     }
   }
@@ -52,6 +53,7 @@ Converted<core::SelectRequest> SelectRequestFromProto(const v1::SelectStructureR
   }
   if (weights_fit && structure_fits) r.weights.assign(in.weights().begin(), in.weights().end());
   if (in.has_fragility_tolerance()) r.fragility_tolerance = in.fragility_tolerance();
+  r.heuristic = in.heuristic();
   return out;
 }
 
@@ -87,6 +89,7 @@ v1::SelectStructureResponse SelectResponseToProto(const core::SelectResult& resu
   out.set_engine_version(RISKBOUND_ENGINE_VERSION);
   out.set_delta_spread(DeltaSpreadToProto(result.delta_spread));
   out.set_requested_failure_probability(result.requested_failure_probability);
+  out.set_heuristic(result.heuristic);
   return out;
 }
 

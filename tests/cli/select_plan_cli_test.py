@@ -23,6 +23,9 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 STRUCTURE = os.path.normpath(os.path.join(HERE, "..", "..", "examples", "fernhill",
                                           "structure.json"))
 FIXTURES = os.path.normpath(os.path.join(HERE, "..", "reference", "fixtures"))
+# Route-delay trees ranked by fitted effective VC dimensions (heuristic mode).
+FITTED = os.path.normpath(os.path.join(HERE, "..", "..", "examples", "fernhill", "requests",
+                                       "route-trees-fitted-structure.json"))
 SVG = "{http://www.w3.org/2000/svg}"
 
 
@@ -161,6 +164,88 @@ class SelectCommandTest(unittest.TestCase):
         code, out, _ = cli("select", "--help")
         self.assertEqual(code, 0)
         self.assertIn("--plot", out)
+
+
+class SelectHeuristicTest(unittest.TestCase):
+    """select's heuristic mode: ranking by fitted effective VC dimensions,
+    labelled so that it cannot be read as a certificate."""
+
+    def test_table_json_and_plot_say_heuristic(self):
+        with open(FITTED) as f:
+            request = json.load(f)
+        with tempfile.TemporaryDirectory() as d:
+            plot = os.path.join(d, "fitted.svg")
+            code, out, err = cli("select", "--input", FITTED, "--plot", plot)
+            self.assertEqual(code, 0, err)
+            root = ET.parse(plot).getroot()  # well-formed XML
+        lines = out.splitlines()
+        self.assertTrue(lines[0].startswith("HEURISTIC RANKING, NOT A CERTIFICATE"), lines[0])
+        for word in ("h_hat (fitted)", "score", "NOT a bound on its true error",
+                     "Note: HEURISTIC, NOT A BOUND", "no union bound is claimed",
+                     "heuristic score, not a bound"):
+            self.assertIn(word, out)
+        # Nothing in the table reads as a guarantee.
+        self.assertNotIn("true error <=", out)
+        self.assertNotIn("with probability >=", out)
+        self.assertNotIn("Chosen (*)", out)
+        # Source: the additive VC formula written out in vc_bound above (Vapnik
+        # 1998; Burges 1998 eq. 3) with the real h = h_hat, at the shares
+        # .05 * 6/(pi^2 k^2): the first-ranked class is the smallest score.
+        scores = []
+        for k, c in enumerate(request["structure"], start=1):
+            eta = request["failure_probability"] * 6 / (math.pi ** 2 * k * k)
+            scores.append(vc_bound(c["error_count"], c["sample_count"],
+                                   c["effective_vc_dimension"], eta))
+        first = scores.index(min(scores))
+        first_id = request["structure"][first]["id"]
+        self.assertEqual(first_id, "route-gbt-d2")
+        self.assertIn(f"Ranked first (*): {first_id} (structure[{first}]): heuristic score "
+                      f"{harness.up6(scores[first])}", out)
+        starred = [line for line in lines if line.startswith("*")]
+        self.assertEqual(len(starred), 1)
+        self.assertIn(first_id, starred[0])
+        texts = " ".join("".join(t.itertext()) for t in root.iter(f"{SVG}text"))
+        self.assertIn("HEURISTIC ranking, NOT a certificate", texts)
+        self.assertIn("NOT a bound", texts)
+
+        code, out, err = cli("select", "--input", FITTED, "--output", "json")
+        self.assertEqual(code, 0, err)
+        doc = json.loads(out)
+        self.assertTrue(doc["heuristic"])
+        self.assertEqual(doc["capacityMeasure"], "effective_vc_dimension")
+        self.assertTrue(doc["notes"][0].startswith("HEURISTIC, NOT A BOUND"))
+        self.assertEqual(doc["chosenId"], first_id)
+        for got, want in zip(doc["candidates"], scores):
+            self.assertAlmostEqual(got["riskUpperBound"], want, places=12)
+
+    def test_flag_sets_the_request_field_and_bad_input_is_named(self):
+        with open(FITTED) as f:
+            request = json.load(f)
+        del request["heuristic"]
+        # Without the flag the fitted dimensions are refused, naming the field.
+        code, out, err = cli("select", "--input", "-", stdin=json.dumps(request))
+        self.assertEqual(code, 3)
+        self.assertEqual(out, "")
+        self.assertIn("structure[0].effective_vc_dimension", err)
+        self.assertIn("set heuristic to rank by it", err)
+        # --heuristic is the request's heuristic field.
+        code, out, err = cli("select", "--input", "-", "--heuristic", "--output", "json",
+                             stdin=json.dumps(request))
+        self.assertEqual(code, 0, err)
+        self.assertTrue(json.loads(out)["heuristic"])
+        # An Occam family, a capacity beside h_hat, a negative h_hat.
+        request["family"] = "BOUND_FAMILY_OCCAM_KL"
+        request["structure"][1]["capacity"] = {"vc_dimension": 14}
+        request["structure"][2]["effective_vc_dimension"] = -1
+        code, out, err = cli("select", "--input", "-", "--heuristic",
+                             stdin=json.dumps(request))
+        self.assertEqual(code, 3)
+        for field in ("family", "structure[1].capacity", "structure[2].effective_vc_dimension"):
+            self.assertIn(field, err)
+        code, out, _ = cli("select", "--help")
+        self.assertEqual(code, 0)
+        self.assertIn("--heuristic", out)
+        self.assertIn("HEURISTIC RANKING, NOT A CERTIFICATE", out)
 
 
 class PlanCommandTest(unittest.TestCase):

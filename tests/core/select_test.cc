@@ -3,7 +3,9 @@
 // weights, agreement with Certify, ties, the fragility flag, bad input.
 #include "service/core/select.h"
 
+#include <algorithm>
 #include <cmath>
+#include <map>
 #include <numbers>
 
 #include "absl/strings/str_cat.h"
@@ -11,15 +13,22 @@
 #include "gtest/gtest.h"
 #include "service/core/certify.h"
 #include "service/core/field_violation.h"
+#include "service/core/vc.h"
+#include "tests/testing/fixture.h"
 #include "tests/testing/status_matchers.h"
 
 namespace riskbound::core {
 namespace {
 
+using ::riskbound::testing::Num;
+using ::riskbound::testing::ReadFixture;
 using ::riskbound::testing::StatusIs;
+using ::testing::Contains;
 using ::testing::ElementsAre;
 using ::testing::HasSubstr;
 using ::testing::IsEmpty;
+using ::testing::Not;
+using ::testing::StartsWith;
 
 StructureCandidate Vc(const std::string& id, std::uint64_t errors, std::uint64_t samples,
                       std::uint64_t h) {
@@ -292,6 +301,169 @@ TEST(SelectTest, InvalidInputNamesTheField) {
   EXPECT_TRUE(SelectStructure(req).ok());
   req.delta_spread = DeltaSpread::kUniform;
   EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("weights"));
+}
+
+// Heuristic mode: candidates that carry a fitted effective VC dimension.
+StructureCandidate Fitted(const std::string& id, std::uint64_t errors, std::uint64_t samples,
+                          double h_hat) {
+  StructureCandidate c;
+  c.id = id;
+  c.error_count = errors;
+  c.sample_count = samples;
+  c.effective_vc_dimension = h_hat;
+  return c;
+}
+
+// Source: Python recomputation of the VC formulas with a real h
+// (tests/reference/fixtures_select.py: Vapnik 1995 ch. 3 and Vapnik 1998
+// ch. 4, plain Python floating point): every score, every share and the whole
+// ranking (increasing score, ties to the earlier candidate) agree, for both
+// VC families and two spreads.
+TEST(SelectHeuristicTest, RankingMatchesPythonRecomputation) {
+  const auto rows = ReadFixture("select_heuristic.csv");
+  std::map<std::string, std::vector<riskbound::testing::FixtureRow>> cases;
+  for (const auto& row : rows) cases[row.at("case")].push_back(row);
+  ASSERT_EQ(cases.size(), 3u);
+  for (const auto& [name, cands] : cases) {
+    SelectRequest req;
+    req.heuristic = true;
+    req.family = cands[0].at("family") == "vc-relative" ? Family::kVcRelative : Family::kVcAdditive;
+    req.delta_spread =
+        cands[0].at("spread") == "uniform" ? DeltaSpread::kUniform : DeltaSpread::kInverseSquare;
+    req.failure_probability = Num(cands[0], "failure_probability");
+    for (const auto& row : cands) {
+      req.structure.push_back(Fitted(row.at("id"),
+                                     static_cast<std::uint64_t>(Num(row, "error_count")),
+                                     static_cast<std::uint64_t>(Num(row, "sample_count")),
+                                     Num(row, "effective_vc_dimension")));
+    }
+    auto got = SelectStructure(req);
+    ASSERT_TRUE(got.ok()) << name << ": " << got.status();
+    EXPECT_TRUE(got->heuristic);
+    EXPECT_EQ(got->capacity_measure, "effective_vc_dimension");
+    ASSERT_EQ(got->candidates.size(), cands.size());
+    std::vector<std::size_t> order(cands.size());
+    for (std::size_t i = 0; i < order.size(); ++i) order[i] = i;
+    std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) {
+      return got->candidates[a].risk_upper_bound < got->candidates[b].risk_upper_bound;
+    });
+    for (std::size_t i = 0; i < cands.size(); ++i) {
+      const CandidateBound& c = got->candidates[i];
+      EXPECT_NEAR(c.failure_probability, Num(cands[i], "share"), 1e-15) << name << " " << i;
+      EXPECT_NEAR(c.risk_upper_bound, Num(cands[i], "score"), 1e-12) << name << " " << i;
+      EXPECT_DOUBLE_EQ(c.capacity, Num(cands[i], "effective_vc_dimension"));
+      EXPECT_EQ(order[static_cast<std::size_t>(Num(cands[i], "rank"))], i) << name;
+      if (Num(cands[i], "chosen") == 1.0) {
+        EXPECT_EQ(got->chosen_index, i) << name;
+      }
+    }
+  }
+}
+
+// The label: the first note, the delta rule and every row say it is no bound;
+// a structure whose h_hat decreases is noted, not refused; near ties are
+// still flagged (the relative case of the fixture: 0.35675 and 0.35753).
+TEST(SelectHeuristicTest, AnswerIsLabelledHeuristic) {
+  SelectRequest req;
+  req.heuristic = true;
+  req.family = Family::kVcRelative;
+  req.structure = {Fitted("depth-1", 420, 2000, 3.1), Fitted("depth-2", 300, 2000, 7.4),
+                   Fitted("depth-3", 240, 2000, 15.2), Fitted("depth-4", 214, 2000, 13.9)};
+  auto got = SelectStructure(req);
+  ASSERT_TRUE(got.ok()) << got.status();
+  EXPECT_TRUE(got->heuristic);
+  ASSERT_GE(got->notes.size(), 2u);
+  EXPECT_THAT(got->notes[0], StartsWith("HEURISTIC, NOT A BOUND"));
+  EXPECT_THAT(got->notes[0], HasSubstr("Vapnik, Levin & LeCun 1994"));
+  EXPECT_THAT(got->notes[1], HasSubstr("structure[3].effective_vc_dimension 13.9 is below"));
+  EXPECT_THAT(got->delta_rule, HasSubstr("no union bound is claimed"));
+  EXPECT_THAT(got->delta_rule, Not(HasSubstr("holds with probability")));
+  for (const CandidateBound& c : got->candidates) {
+    EXPECT_THAT(c.notes, Contains(HasSubstr("heuristic score, not a bound")));
+  }
+  EXPECT_EQ(got->chosen_id, "depth-1");
+  EXPECT_TRUE(got->fragile);
+  EXPECT_THAT(got->within_tolerance_ids, ElementsAre("depth-2"));
+  // The same structure certified with integer capacities is not heuristic.
+  SelectRequest certified;
+  certified.family = Family::kVcRelative;
+  certified.structure = {Vc("a", 420, 2000, 3), Vc("b", 300, 2000, 7)};
+  auto plain = SelectStructure(certified);
+  ASSERT_TRUE(plain.ok()) << plain.status();
+  EXPECT_FALSE(plain->heuristic);
+  EXPECT_EQ(plain->capacity_measure, "vc_dimension");
+}
+
+// With an integer h_hat the score is exactly the VC family's bound at the
+// same share (the formula is the same; only its reading differs).
+TEST(SelectHeuristicTest, IntegerHhatScoresEqualTheVcBound) {
+  for (Family family : {Family::kVcAdditive, Family::kVcRelative}) {
+    SelectRequest req;
+    req.heuristic = true;
+    req.family = family;
+    req.delta_spread = DeltaSpread::kUniform;
+    req.structure = {Fitted("a", 400, 5000, 5), Fitted("b", 320, 5000, 20),
+                     Fitted("c", 240, 5000, 45)};
+    auto got = SelectStructure(req);
+    ASSERT_TRUE(got.ok()) << got.status();
+    for (std::size_t i = 0; i < 3; ++i) {
+      const CandidateBound& row = got->candidates[i];
+      const auto h = static_cast<std::uint64_t>(*req.structure[i].effective_vc_dimension);
+      const Certificate want = family == Family::kVcAdditive
+                                   ? VcAdditive(req.structure[i], h, row.failure_probability)
+                                   : VcRelative(req.structure[i], h, row.failure_probability);
+      EXPECT_EQ(row.risk_upper_bound, want.risk_upper_bound);
+      EXPECT_EQ(row.penalty, want.penalty);
+    }
+  }
+}
+
+TEST(SelectHeuristicTest, InvalidInputNamesTheField) {
+  // An effective VC dimension without heuristic mode: refused, naming it.
+  SelectRequest req;
+  req.family = Family::kVcAdditive;
+  StructureCandidate both = Vc("b", 1, 100, 10);
+  both.effective_vc_dimension = 7.5;
+  req.structure = {Vc("a", 1, 100, 5), both};
+  auto got = SelectStructure(req);
+  EXPECT_THAT(
+      got, StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("set heuristic to rank by it")));
+  EXPECT_THAT(Fields(got.status()), ElementsAre("structure[1].effective_vc_dimension"));
+
+  // Heuristic mode: a capacity given, h_hat missing, not finite, <= 0.
+  req.heuristic = true;
+  StructureCandidate missing = Fitted("c", 1, 100, 1.0);
+  missing.effective_vc_dimension.reset();
+  req.structure = {both,
+                   missing,
+                   Fitted("d", 1, 100, NAN),
+                   Fitted("e", 1, 100, 0.0),
+                   Fitted("f", 1, 100, -2.0),
+                   Fitted("g", 1, 100, INFINITY),
+                   Fitted("ok", 1, 100, 40.0)};
+  got = SelectStructure(req);
+  EXPECT_THAT(
+      Fields(got.status()),
+      ElementsAre("structure[0].capacity", "structure[1].effective_vc_dimension",
+                  "structure[2].effective_vc_dimension", "structure[3].effective_vc_dimension",
+                  "structure[4].effective_vc_dimension", "structure[5].effective_vc_dimension"));
+
+  // Heuristic mode with a family that does not take a VC dimension.
+  for (Family f : {Family::kOccamHoeffding, Family::kOccamKl, Family::kHoldoutExactBinomial}) {
+    req.family = f;
+    req.structure = {Fitted("a", 1, 100, 2.5)};
+    got = SelectStructure(req);
+    EXPECT_THAT(got, StatusIs(absl::StatusCode::kInvalidArgument, HasSubstr("VC family")));
+    EXPECT_THAT(Fields(got.status()), ElementsAre("family"));
+  }
+  req.family = std::nullopt;
+  EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("family"));
+  // Everything else is checked as in a certified selection.
+  req.family = Family::kVcAdditive;
+  req.structure = {Fitted("a", 5, 4, 2.5)};
+  EXPECT_THAT(Fields(SelectStructure(req).status()), ElementsAre("structure[0].error_count"));
+  req.structure = {Fitted("a", 1, 4, 2.5)};
+  EXPECT_TRUE(SelectStructure(req).ok());
 }
 
 }  // namespace

@@ -50,7 +50,8 @@ def main():
             parse(champ, req.champion)
         write("rpc_request_fuzz", "gate-" + os.path.basename(cand), b"\x02" + req.SerializeToString())
     for path in (os.path.join(EX, "structure.json"),
-                 os.path.join(EX, "requests", "label-rules-structure.json")):
+                 os.path.join(EX, "requests", "label-rules-structure.json"),
+                 os.path.join(EX, "requests", "route-trees-fitted-structure.json")):
         req = parse(path, select_pb2.SelectStructureRequest())
         write("rpc_request_fuzz", "select-" + os.path.basename(path), b"\x03" + req.SerializeToString())
     plan = plan_pb2.PlanSamplesRequest()

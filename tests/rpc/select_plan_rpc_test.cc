@@ -7,19 +7,21 @@
 #include <cmath>
 #include <memory>
 #include <numbers>
+#include <set>
 #include <string>
 #include <vector>
 
 #include "absl/strings/match.h"
 #include "gmock/gmock.h"
+#include "google/protobuf/descriptor.h"
 #include "grpcpp/create_channel.h"
 #include "grpcpp/security/credentials.h"
 #include "gtest/gtest.h"
 #include "riskbound/v1/riskbound.grpc.pb.h"
 #include "service/rpc/server.h"
-#include "tests/testing/loopback_server.h"
-#include "tests/testing/fixture.h"
 #include "tests/rpc/error_details.h"
+#include "tests/testing/fixture.h"
+#include "tests/testing/loopback_server.h"
 
 namespace riskbound::rpc {
 namespace {
@@ -244,6 +246,113 @@ TEST_F(SelectPlanTest, ModelDescriptionAndFiniteClassCapacities) {
   ASSERT_TRUE(Select(finite, &resp).ok());
   EXPECT_EQ(resp.capacity_measure(), "log_hypothesis_count");
   EXPECT_NEAR(resp.candidates(0).capacity(), std::log(1000.0), 1e-12);
+}
+
+// Heuristic mode over the wire: the request's heuristic flag and each
+// candidate's effective_vc_dimension reach the core, and the answer comes back
+// labelled (heuristic, capacity_measure, first note). Source: HandVcBound
+// above (the additive VC formula written out, with a real h = h_hat) at the
+// uniform share .06/3.
+TEST_F(SelectPlanTest, HeuristicRankingByEffectiveVcIsLabelled) {
+  v1::SelectStructureRequest req;
+  req.set_family(v1::BOUND_FAMILY_VC_ADDITIVE);
+  req.set_failure_probability(0.06);
+  req.set_delta_spread(v1::DELTA_SPREAD_UNIFORM);
+  req.set_heuristic(true);
+  const struct {
+    const char* id;
+    std::uint64_t errors;
+    double h_hat;
+  } fitted[] = {{"depth-1", 420, 3.1}, {"depth-2", 300, 7.4}, {"depth-3", 240, 15.2}};
+  for (const auto& f : fitted) {
+    v1::StructureCandidate* c = req.add_structure();
+    c->set_id(f.id);
+    c->set_error_count(f.errors);
+    c->set_sample_count(2000);
+    c->set_effective_vc_dimension(f.h_hat);
+  }
+  v1::SelectStructureResponse resp;
+  const grpc::Status status = Select(req, &resp);
+  ASSERT_TRUE(status.ok()) << status.error_message();
+  EXPECT_TRUE(resp.heuristic());
+  EXPECT_EQ(resp.capacity_measure(), "effective_vc_dimension");
+  ASSERT_GE(resp.notes_size(), 1);
+  EXPECT_THAT(resp.notes(0), ::testing::StartsWith("HEURISTIC, NOT A BOUND"));
+  EXPECT_THAT(resp.delta_rule(), HasSubstr("no union bound is claimed"));
+  ASSERT_EQ(resp.candidates_size(), 3);
+  int best = 0;
+  double best_score = 2.0;
+  for (int i = 0; i < 3; ++i) {
+    const double hand =
+        HandVcBound(static_cast<double>(fitted[i].errors), 2000.0, fitted[i].h_hat, 0.02);
+    EXPECT_DOUBLE_EQ(resp.candidates(i).capacity(), fitted[i].h_hat);
+    EXPECT_NEAR(resp.candidates(i).risk_upper_bound(), hand, 1e-12) << i;
+    if (hand < best_score) {
+      best_score = hand;
+      best = i;
+    }
+  }
+  EXPECT_EQ(resp.chosen_index(), static_cast<std::uint32_t>(best));
+  EXPECT_EQ(resp.chosen_id(), "depth-2");
+
+  // The same candidates without the flag: refused, naming every h_hat (and
+  // the capacity a certified selection needs); a certified answer is never
+  // marked heuristic.
+  req.set_heuristic(false);
+  EXPECT_THAT(Fields(Select(req, &resp)),
+              ElementsAre("structure[0].effective_vc_dimension", "structure[0].capacity",
+                          "structure[1].effective_vc_dimension", "structure[1].capacity",
+                          "structure[2].effective_vc_dimension", "structure[2].capacity"));
+  v1::SelectStructureRequest certified;
+  AddVc(&certified, "a", 420, 2000, 3);
+  certified.set_family(v1::BOUND_FAMILY_VC_ADDITIVE);
+  certified.set_failure_probability(0.05);
+  ASSERT_TRUE(Select(certified, &resp).ok());
+  EXPECT_FALSE(resp.heuristic());
+  // Heuristic mode with an Occam family, and with a capacity given.
+  req.set_heuristic(true);
+  req.set_family(v1::BOUND_FAMILY_OCCAM_KL);
+  req.mutable_structure(1)->mutable_capacity()->set_vc_dimension(7);
+  EXPECT_THAT(Fields(Select(req, &resp)), UnorderedElementsAreArray(std::vector<std::string>{
+                                              "family", "structure[1].capacity"}));
+}
+
+// The heuristic never reaches a certificate or a gate verdict: no request of
+// any method but SelectStructure can carry an effective VC dimension (walks
+// every field reachable from each method's input message).
+TEST(HeuristicReachTest, OnlySelectStructureTakesAnEffectiveVcDimension) {
+  // riskbound.proto declares only the service: refer to its descriptor table
+  // so that the linker keeps it in the pool (as enums_rpc_test does).
+  const void* volatile keep = &descriptor_table_riskbound_2fv1_2friskbound_2eproto;
+  EXPECT_NE(keep, nullptr);
+  const google::protobuf::ServiceDescriptor* service =
+      google::protobuf::DescriptorPool::generated_pool()->FindServiceByName(
+          v1::RiskBound::service_full_name());
+  ASSERT_NE(service, nullptr);
+  std::vector<std::string> takers;
+  for (int i = 0; i < service->method_count(); ++i) {
+    const google::protobuf::MethodDescriptor* method = service->method(i);
+    std::vector<const google::protobuf::Descriptor*> todo = {method->input_type()};
+    std::set<const google::protobuf::Descriptor*> seen;
+    bool takes = false;
+    while (!todo.empty()) {
+      const google::protobuf::Descriptor* d = todo.back();
+      todo.pop_back();
+      if (!seen.insert(d).second) continue;
+      for (int f = 0; f < d->field_count(); ++f) {
+        const google::protobuf::FieldDescriptor* field = d->field(f);
+        if (field->name() == "effective_vc_dimension") takes = true;
+        if (field->message_type() != nullptr) todo.push_back(field->message_type());
+      }
+    }
+    if (takes) takers.push_back(method->name());
+  }
+  EXPECT_THAT(takers, ElementsAre("SelectStructure"));
+  // The walk covered the methods that make certificates and verdicts.
+  std::vector<std::string> walked;
+  for (int i = 0; i < service->method_count(); ++i) walked.push_back(service->method(i)->name());
+  EXPECT_THAT(walked, ::testing::IsSupersetOf(
+                          {"Certify", "Gate", "ScoreRegistry", "PlanSamples", "SelectStructure"}));
 }
 
 TEST_F(SelectPlanTest, InvalidStructureNamesEveryWireField) {
