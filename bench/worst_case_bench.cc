@@ -209,6 +209,24 @@ std::vector<WorstCase> Cases() {
                    "sequential mode: paired champion, rate a hair below max_risk (anytime "
                    "HOLD plans: risk over 2^40, champion over its 2 s budget), pass 0.999999",
                    [] { HairBelowWithChampion(true); }});
+  cases.push_back({"DecideGate",
+                   "1 000 slices (the request limit), each a hair above its limit at n = "
+                   "10^6 (slice REJECT plans until the 250 ms slice budget runs out)",
+                   [] {
+                     GatePolicy policy;
+                     policy.max_slice_risk = 0.05;
+                     GateCandidate c;
+                     c.id = "candidate";
+                     c.evidence.holdout = SampleCounts{50'001'000, 1'000'000'000};
+                     for (int i = 0; i < 1000; ++i) {
+                       SliceEvidence s;
+                       s.name = std::to_string(i);
+                       s.error_count = 50'001;
+                       s.sample_count = 1'000'000;
+                       c.evidence.slices.push_back(s);
+                     }
+                     benchmark::DoNotOptimize(DecideGate(policy, c, std::nullopt));
+                   }});
   cases.push_back({"EstimateCapacity",
                    "relu network given by 1 000 layer widths (the request limit) of 1 000",
                    [] {
