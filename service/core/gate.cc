@@ -108,8 +108,8 @@ void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdo
       out->push_back({absl::StrCat(prefix, ".", part.field),
                       count_ok ? absl::StrCat(part.value, " exceeds the ", p.sample_count,
                                               " samples it was counted on")
-                               : absl::StrCat("must be at most 2^53 = ", kMaxSampleCount,
-                                              ", got ", part.value)});
+                               : absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
+                                              part.value)});
       each_ok = false;
     }
   }

@@ -92,8 +92,8 @@ absl::Status ValidateRegistrySettings(const RegistrySettings& s) {
   if (s.certify.has_value()) {
     // 0 (-0.0 too) is the unset field: the default applies.
     if (s.certify->failure_probability != 0.0) {
-      CheckProbabilityOpen("settings.certify.failure_probability",
-                           s.certify->failure_probability, &v);
+      CheckProbabilityOpen("settings.certify.failure_probability", s.certify->failure_probability,
+                           &v);
     }
     if (s.certify->family_choice == FamilyChoice::kListed) {
       CheckListedFamilies(s.certify->listed, &v);
