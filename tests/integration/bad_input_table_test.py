@@ -7,7 +7,8 @@ field (proto/riskbound/v1/*.proto), written once per field as a predicate on
 the value ("in (0, 1)", "finite and >= 0", "in [1, 2^53]"): a value the
 comment admits must get an OK answer, any other INVALID_ARGUMENT naming the
 field's path in the google.rpc.BadRequest details (proto/riskbound/v1/
-README.md, "Errors"). -0.0 and denormals are therefore valid wherever the
+README.md, "Errors") and blaming no other field (but the other fields of a
+relation it breaks, such as loss_min < loss_max). -0.0 and denormals are therefore valid wherever the
 comment's interval admits 0 or tiny positive values. Every OK answer is walked
 field by field: no NaN or infinity anywhere, every probability, rate and
 bound inside its documented range. After every case the server must still
@@ -437,7 +438,7 @@ class Case:
     def __init__(self, rpc, klass, field, build, expect_paths=None,
                  code=grpc.StatusCode.INVALID_ARGUMENT, compression=None, raw=None,
                  min_violations=None, stream_where=None, message_contains=None,
-                 summary_contains=None):
+                 summary_contains=None, only_named=False):
         self.rpc, self.klass, self.field = rpc, klass, field
         self.build, self.expect_paths, self.code = build, expect_paths, code
         self.compression, self.raw = compression, raw
@@ -446,6 +447,8 @@ class Case:
         self.stream_where = stream_where
         self.message_contains = message_contains
         self.summary_contains = summary_contains
+        # One bad value: no other field may be blamed for it.
+        self.only_named = only_named
 
     @property
     def ok_expected(self):
@@ -469,7 +472,8 @@ def value_cases(rpc, base, path, domain, values, klass_prefix, report_path=None,
         named = [report_path or path] if not related else [
             tuple([report_path or path] + list(related))]
         out.append(Case(rpc, f"{klass_prefix}:{label}", report_path or path,
-                        build, None if valid else named, stream_where=stream_where))
+                        build, None if valid else named, stream_where=stream_where,
+                        only_named=True))
     return out
 
 
@@ -559,8 +563,11 @@ def numeric_slots():
          "candidate.evidence.holdout.sample_count", sample_count, "count"),
         ("Gate", lambda: gate_base("paired"), "champion.paired.only_challenger_wrong_count",
          lambda v: v == 2, "count"),
+        # Counts above a too-small sample_count may be named too.
         ("Gate", lambda: gate_base("paired"), "champion.paired.sample_count",
-         lambda v: v == 1000, "count"),
+         lambda v: v == 1000, "count",
+         ["champion.paired.only_champion_wrong_count",
+          "champion.paired.only_challenger_wrong_count", "champion.paired.both_wrong_count"]),
         ("Gate", lambda: gate_base("holdout"), "champion.champion_holdout.error_count",
          at_most(1200), "count"),
     ]
@@ -1052,10 +1059,25 @@ def named(path, fields):
                for f in fields)
 
 
+def flat(paths):
+    for p in paths:
+        yield from (p if isinstance(p, tuple) else (p,))
+
+
+def check_only_named(test, case, fields, violations):
+    if not case.only_named:
+        return
+    allowed = list(flat(case.expect_paths))
+    for f in fields:
+        test.assertTrue(any(named(a, [f]) or named(f, [a]) for a in allowed),
+                        f"{case.name()}: {f} blamed as well: {violations}")
+
+
 def check_named(test, case, violations, info):
     fields = [f for f, _ in violations]
     for path in case.expect_paths:
         test.assertTrue(named(path, fields), f"{case.name()}: {path} not in {violations}")
+    check_only_named(test, case, fields, violations)
     if case.summary_contains:
         test.assertTrue(any(case.summary_contains in d for _, d in violations), violations)
     for field, description in violations:
@@ -1147,6 +1169,7 @@ def run_stream(test, channel, case):
         fields = [f for f, _ in violations]
         for path in case.expect_paths:
             test.assertTrue(named(path, fields), f"{case.name()}: {path} not in {violations}")
+        check_only_named(test, case, fields, violations)
         return
     for r in results:
         test.assertNotEqual(r.WhichOneof("outcome"), "error",
