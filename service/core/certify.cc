@@ -161,6 +161,7 @@ void CheckRelabel(const RelabelEvidence& r, bool has_rademacher, const std::stri
   }
   std::size_t reported = 0;  // at most 10 draws named, then a count
   std::size_t unreported = 0;
+  std::uint64_t unreported_violations = 0;
   for (std::size_t j = 0; j < r.draws.size(); ++j) {
     const RelabelDraw& d = r.draws[j];
     const std::string at = absl::StrCat(p, ".draws[", j, "].");
@@ -195,11 +196,15 @@ void CheckRelabel(const RelabelEvidence& r, bool has_rademacher, const std::stri
       ++reported;
     } else {
       ++unreported;
+      unreported_violations += found.size();
     }
   }
   if (unreported > 0) {
-    out->push_back(
-        {p + ".draws", absl::StrCat("and ", unreported, " more invalid draws were not listed")});
+    // Stands for every violation of the unlisted draws, so that the error
+    // details' violation_count counts them all.
+    out->push_back({p + ".draws",
+                    absl::StrCat("and ", unreported, " more invalid draws were not listed"),
+                    unreported_violations - 1});
   }
 }
 
@@ -249,11 +254,11 @@ void ResolveModel(ClassCapacity* c, const std::string& model_path,
     for (FieldViolation& v : found.listed) out->push_back(std::move(v));
     if (unlisted > 0) {
       out->push_back(
-          {model_path, absl::StrCat("and ", unlisted,
-                                    unlisted == 1 ? " more invalid field of this model was "
-                                                    "not listed"
-                                                  : " more invalid fields of this model "
-                                                    "were not listed")});
+          {model_path,
+           absl::StrCat("and ", unlisted,
+                        unlisted == 1 ? " more invalid field of this model was not listed"
+                                      : " more invalid fields of this model were not listed"),
+           unlisted - 1});
     }
     return;
   }

@@ -106,6 +106,7 @@ absl::Status Validate(const EffectiveVcRequest& r) {
   }
   std::set<std::uint64_t> seen;
   std::size_t total = 0;
+  std::uint64_t unlisted = 0;  // bad deviations counted but not built
   for (std::size_t i = 0; i < r.design_points.size() && i < kMaxDesignPoints; ++i) {
     const DeviationPoint& p = r.design_points[i];
     const std::string at = absl::StrCat("design_points[", i, "]");
@@ -123,13 +124,17 @@ absl::Status Validate(const EffectiveVcRequest& r) {
       v.push_back({at + ".deviations", "give at least one measured deviation"});
     }
     total += p.deviations.size();
-    for (std::size_t j = 0; j < p.deviations.size(); ++j) {
+    for (std::size_t j = 0; j < p.deviations.size() && total <= kMaxDeviationCount; ++j) {
       const double x = p.deviations[j];
-      if (!std::isfinite(x) || x < 0.0 || x > 1.0) {
+      if (std::isfinite(x) && x >= 0.0 && x <= 1.0) continue;
+      // Every bad deviation is counted; only those InvalidFields can list
+      // are built (a request may hold 100000 of them).
+      if (v.size() < kMaxListedViolations) {
         v.push_back({absl::StrCat(at, ".deviations[", j, "]"),
                      "must be a deviation |error rate on half 1 - error rate on half 2| in "
                      "[0, 1]"});
-        break;  // one per point
+      } else {
+        ++unlisted;
       }
     }
   }
@@ -147,7 +152,7 @@ absl::Status Validate(const EffectiveVcRequest& r) {
   if (r.interval_level.has_value()) {
     CheckProbabilityOpen("interval_level", *r.interval_level, &v);
   }
-  return InvalidFields(v);
+  return InvalidFields(v, unlisted);
 }
 
 }  // namespace

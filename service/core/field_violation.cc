@@ -189,7 +189,8 @@ absl::Status InvalidFields(const std::vector<FieldViolation>& violations,
     listed.push_back({SanitizeText(violations[i].field, kMaxFieldPathBytes),
                       SanitizeText(violations[i].description, kMaxDescriptionBytes)});
   }
-  const std::uint64_t unlisted = SaturatingAdd(violations.size() - listed_count, unlisted_count);
+  std::uint64_t unlisted = SaturatingAdd(violations.size() - listed_count, unlisted_count);
+  for (const FieldViolation& v : violations) unlisted = SaturatingAdd(unlisted, v.also_counts);
   std::string payload(kPayloadMagic);
   AppendNetstring(absl::StrCat(unlisted), &payload);
   for (const FieldViolation& v : listed) {

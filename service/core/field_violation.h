@@ -28,6 +28,10 @@ namespace riskbound::core {
 struct FieldViolation {
   std::string field;
   std::string description;
+  // For a violation that sums up others a check chose not to build ("and 4990
+  // more invalid draws"): how many violations it stands for besides itself.
+  // InvalidFields counts them as found but not listed.
+  std::uint64_t also_counts = 0;
 };
 
 // At most this many violations are listed by InvalidFields; more are counted
@@ -54,10 +58,10 @@ inline constexpr char kFieldViolationsPayload[] = "riskbound/field-violations";
 // Returns OK for an empty list (and unlisted_count 0), else INVALID_ARGUMENT.
 // Lists the first kMaxListedViolations violations, sanitized and truncated;
 // the others, plus `unlisted_count` (violations a caller found but did not
-// keep, e.g. those a capped status it merges had already left out), are
-// counted. The message is "field: description; field: description" for as
-// many as fit in kMaxMessageBytes, then "; and N more invalid fields" when
-// some were left out of it. Thread-safe.
+// keep, e.g. those a capped status it merges had already left out) and every
+// violation's also_counts, are counted. The message is "field: description;
+// field: description" for as many as fit in kMaxMessageBytes, then "; and N
+// more invalid fields" when some were left out of it. Thread-safe.
 absl::Status InvalidFields(const std::vector<FieldViolation>& violations,
                            std::uint64_t unlisted_count = 0);
 

@@ -78,17 +78,33 @@ constexpr double kMinGateDelta = 1e-300;
 void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdout,
                  std::vector<FieldViolation>* out) {
   const std::string prefix = "champion.paired";
+  // Every check below runs whatever the others found (no early return), so
+  // one answer names every bad field; a check that needs another field's
+  // value in range runs only when it is.
+  bool count_ok = true;
   if (p.sample_count == 0) {
     out->push_back({prefix + ".sample_count", "must be at least 1"});
-    return;
-  }
-  if (p.sample_count > kMaxSampleCount) {
+    count_ok = false;
+  } else if (p.sample_count > kMaxSampleCount) {
     out->push_back(
         {prefix + ".sample_count",
          absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ", p.sample_count)});
-    return;
+    count_ok = false;
   }
-  // Each term <= 2^53 here or it is reported, so the sum cannot overflow.
+  if (!holdout.has_value()) {
+    out->push_back({"candidate.evidence.holdout",
+                    "a paired champion comparison needs the candidate's hold-out counts "
+                    "on the same hold-out set"});
+  } else if (count_ok && holdout->sample_count != p.sample_count) {
+    out->push_back(
+        {prefix + ".sample_count",
+         absl::StrCat(p.sample_count, " differs from candidate.evidence.holdout.sample_count ",
+                      holdout->sample_count,
+                      ": paired counts must come from the candidate's hold-out "
+                      "set")});
+  }
+  // Each term <= 2^53 below or it is reported, so the sums cannot overflow.
+  const std::uint64_t limit = count_ok ? p.sample_count : kMaxSampleCount;
   const struct {
     const char* field;
     std::uint64_t value;
@@ -97,40 +113,27 @@ void CheckPaired(const PairedCounts& p, const std::optional<SampleCounts>& holdo
                {"only_challenger_wrong_count", p.only_challenger_wrong_count}};
   bool each_ok = true;
   for (const auto& part : parts) {
-    if (part.value > p.sample_count) {
+    if (part.value > limit) {
       out->push_back({absl::StrCat(prefix, ".", part.field),
-                      absl::StrCat(part.value, " exceeds the ", p.sample_count,
-                                   " samples it was counted on")});
+                      count_ok ? absl::StrCat(part.value, " exceeds the ", p.sample_count,
+                                              " samples it was counted on")
+                               : absl::StrCat("must be at most 2^53 = ", kMaxSampleCount, ", got ",
+                                              part.value)});
       each_ok = false;
     }
   }
   if (!each_ok) return;
   const std::uint64_t sum =
       p.both_wrong_count + p.only_champion_wrong_count + p.only_challenger_wrong_count;
-  if (sum > p.sample_count) {
+  if (count_ok && sum > p.sample_count) {
     out->push_back(
         {prefix + ".sample_count",
          absl::StrCat("both_wrong_count + only_champion_wrong_count + "
                       "only_challenger_wrong_count = ",
                       sum, " exceeds the ", p.sample_count, " samples they were counted on")});
-    return;
-  }
-  if (!holdout.has_value()) {
-    out->push_back({"candidate.evidence.holdout",
-                    "a paired champion comparison needs the candidate's hold-out counts "
-                    "on the same hold-out set"});
-    return;
-  }
-  if (holdout->sample_count != p.sample_count) {
-    out->push_back(
-        {prefix + ".sample_count",
-         absl::StrCat(p.sample_count, " differs from candidate.evidence.holdout.sample_count ",
-                      holdout->sample_count,
-                      ": paired counts must come from the candidate's hold-out "
-                      "set")});
   }
   const std::uint64_t candidate_errors = p.both_wrong_count + p.only_challenger_wrong_count;
-  if (holdout->error_count != candidate_errors) {
+  if (holdout.has_value() && holdout->error_count != candidate_errors) {
     out->push_back(
         {prefix + ".only_challenger_wrong_count",
          absl::StrCat("both_wrong_count + only_challenger_wrong_count = ", candidate_errors,

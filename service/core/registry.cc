@@ -90,8 +90,11 @@ absl::Status ValidateRegistrySettings(const RegistrySettings& s) {
                                  : "give a mode: settings.certify or settings.gate"});
   }
   if (s.certify.has_value()) {
-    CheckProbabilityOpen("settings.certify.failure_probability", s.certify->failure_probability,
-                         &v);
+    // 0 (-0.0 too) is the unset field: the default applies.
+    if (s.certify->failure_probability != 0.0) {
+      CheckProbabilityOpen("settings.certify.failure_probability", s.certify->failure_probability,
+                           &v);
+    }
     if (s.certify->family_choice == FamilyChoice::kListed) {
       CheckListedFamilies(s.certify->listed, &v);
     }
@@ -133,7 +136,10 @@ absl::Status ValidateRegistrySettings(const RegistrySettings& s) {
 }
 
 double RunFailureProbability(const RegistrySettings& settings) {
-  if (settings.certify.has_value()) return settings.certify->failure_probability;
+  if (settings.certify.has_value()) {
+    const double delta = settings.certify->failure_probability;
+    return delta == 0.0 ? kDefaultRunFailureProbability : delta;
+  }
   return settings.gate.has_value() ? settings.gate->failure_probability : 0.0;
 }
 
@@ -201,7 +207,16 @@ absl::StatusOr<RegistryLedger::Allotment> RegistryLedger::Allot(const std::strin
                            "every record of a set a weight, or none"}});
   }
   const double share = MultiplyDown(delta_, delta_weight);
-  if (share <= 0.0 || AddUp(a.weighted_spent, share) > delta_) {
+  if (share <= 0.0) {
+    // A subnormal weight: delta * delta_weight rounds down to 0, which no
+    // statement can be made at.
+    return InvalidFields(
+        {{"delta_weight",
+          absl::StrFormat("the share delta * delta_weight = %.17g * %.17g rounds to 0: give a "
+                          "larger weight, or 0 for the equal share",
+                          delta_, delta_weight)}});
+  }
+  if (AddUp(a.weighted_spent, share) > delta_) {
     return InvalidFields(
         {{"delta_weight",
           absl::StrFormat("this share would bring hold-out set \"%s\" above delta: %.17g "

@@ -40,6 +40,10 @@ struct HoldoutSetPlan {
   std::uint64_t record_count = 0;
 };
 
+// The run's delta in certify mode when settings.certify.failure_probability
+// is 0 (unset): ScoreSettings' documented default.
+inline constexpr double kDefaultRunFailureProbability = 0.05;
+
 // Most hold-out sets one run may declare, and most records one set may
 // declare.
 inline constexpr std::size_t kMaxHoldoutSets = 10000;
@@ -63,7 +67,8 @@ struct RegistrySettings {
 
 // ValidateRegistrySettings
 // Returns OK or INVALID_ARGUMENT naming every bad field at once:
-// "settings" (no mode, or both), "settings.certify.failure_probability",
+// "settings" (no mode, or both), "settings.certify.failure_probability"
+// (neither 0, the default, nor in (0, 1)),
 // "settings.certify.listed.families[i]" (unknown or listed twice),
 // "settings.certify.listed.delta_weights[i]", "settings.gate.<field>" (as
 // ValidateGatePolicy), "settings.delta_sharing", "settings.holdout_sets"
@@ -73,7 +78,8 @@ struct RegistrySettings {
 // kMaxRecordsPerHoldoutSet, or a share too small for the gate).
 absl::Status ValidateRegistrySettings(const RegistrySettings& settings);
 
-// The run's delta: settings.certify->failure_probability or
+// The run's delta: settings.certify->failure_probability
+// (kDefaultRunFailureProbability when it is 0, unset) or
 // settings.gate->failure_probability.
 double RunFailureProbability(const RegistrySettings& settings);
 

@@ -14,6 +14,14 @@
 #include "grpcpp/server_builder.h"
 
 namespace riskbound::rpc {
+namespace {
+
+// How long grpc::Server::Shutdown waits, once the calls in flight are done or
+// cancelled, for the last answers to be sent before it drops the
+// connections. Below the one second Drain waits for it.
+constexpr std::chrono::milliseconds kShutdownGrace(500);
+
+}  // namespace
 
 RunningServer::RunningServer(std::unique_ptr<CallPool> pool, std::unique_ptr<Metrics> metrics,
                              std::unique_ptr<TokenAuthenticator> auth,
@@ -49,17 +57,25 @@ DrainOutcome RunningServer::Drain(absl::Duration grace) {
   service_->StartDrain();
   if (http_ != nullptr) http_->StartDrain();
   pool_->StopAdmitting();
-  // grpc::Server::Shutdown stops the listener at once, and at the deadline
-  // cancels the calls still running; it returns once every call is done.
+  // The calls in flight run for up to `grace`; meanwhile the service answers
+  // every new call UNAVAILABLE itself (it is draining), so that a client
+  // racing the drain learns to retry elsewhere.
+  const bool clean = pool_->WaitIdle(grace);
+  if (!clean) service_->CancelAll();
+  // Only then grpc::Server::Shutdown: it closes the listener, sends GOAWAY,
+  // lets the answers just finished reach their clients, and at its deadline
+  // cancels what gRPC still holds and drops the connections. Its deadline is
+  // short, not `grace`: an idle client connection holds Shutdown until its
+  // deadline, which used to outlast the one second waited below and turn a
+  // clean drain into an abandoned one (exit 3) whenever a client stayed
+  // connected.
   auto done = std::make_shared<absl::Notification>();
   grpc::Server* server = server_.get();
-  const auto deadline = std::chrono::system_clock::now() + absl::ToChronoMilliseconds(grace);
+  const auto deadline = std::chrono::system_clock::now() + kShutdownGrace;
   std::thread shutdown([server, deadline, done] {
     server->Shutdown(deadline);
     done->Notify();
   });
-  const bool clean = pool_->WaitIdle(grace);
-  if (!clean) service_->CancelAll();
   const absl::Time give_up = absl::Now() + absl::Seconds(1);
   if (!done->WaitForNotificationWithTimeout(absl::Seconds(1)) ||
       !pool_->WaitIdle(give_up - absl::Now())) {

@@ -87,9 +87,10 @@ class RunningServer {
   const std::vector<std::string>& warnings() const { return warnings_; }
 
   // Drain
-  // Marks both health names NOT_SERVING, stops accepting calls, lets the
-  // calls in flight run for up to `grace`, then cancels them (each observes
-  // its StopToken) and waits at most one more second. Returns how it ended.
+  // Marks both health names NOT_SERVING, refuses new calls (UNAVAILABLE),
+  // lets the calls in flight run for up to `grace`, then cancels them (each
+  // observes its StopToken); then stops gRPC (listener, connections) and
+  // waits at most one more second in all. Returns how it ended.
   // The first call does the work; later calls return its outcome at once.
   // Thread-safe.
   DrainOutcome Drain(absl::Duration grace);

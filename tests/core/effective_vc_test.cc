@@ -148,5 +148,25 @@ TEST(EffectiveVcTest, BadInputNamesEveryField) {
   EXPECT_THAT(fields, Contains("interval_level"));
 }
 
+// Thousands of bad deviations in one point: every one is counted (the check
+// used to stop at the first of each point), the first ones listed. Found by
+// the bad-input table (tests/integration/bad_input_table_test.py).
+TEST(EffectiveVcTest, EveryBadDeviationIsCounted) {
+  EffectiveVcRequest r;
+  r.training = RelabelTraining::kExact;
+  r.design_points = {{10, {0.9, 0.8}}, {40, {0.5}}};
+  r.design_points[0].deviations.insert(r.design_points[0].deviations.end(), 5000, std::nan(""));
+  const absl::StatusOr<EffectiveVcFit> fit = FitEffectiveVcDimension(r, StopToken::Never());
+  ASSERT_FALSE(fit.ok());
+  const ViolationReport report = ViolationReportOf(fit.status());
+  std::uint64_t listed = 0;
+  for (const FieldViolation& v : report.listed) {
+    if (v.field != kSummaryField) ++listed;
+  }
+  EXPECT_EQ(listed + report.unlisted_count, 5000u);
+  ASSERT_FALSE(report.listed.empty());
+  EXPECT_EQ(report.listed[0].field, "design_points[0].deviations[2]");
+}
+
 }  // namespace
 }  // namespace riskbound::core

@@ -142,6 +142,19 @@ TEST(InvalidFieldsTest, CountsViolationsLeftOutEarlier) {
               ElementsAre(::testing::Field(&FieldViolation::field, "request")));
 }
 
+// A violation that sums up others (also_counts) counts them as found but not
+// listed, wherever it stands in the list.
+TEST(InvalidFieldsTest, SummaryViolationsCountWhatTheyStandFor) {
+  std::vector<FieldViolation> v = Numbered(2);
+  v.push_back({"draws", "and 7 more invalid draws were not listed", 6});
+  const ViolationReport report = ViolationReportOf(InvalidFields(v));
+  EXPECT_THAT(report.listed, SizeIs(3));
+  EXPECT_EQ(report.unlisted_count, 6u);
+  std::vector<FieldViolation> many = Numbered(25);
+  many.push_back({"draws", "and 100 more invalid draws were not listed", 99});
+  EXPECT_EQ(ViolationReportOf(InvalidFields(many)).unlisted_count, 5u + 1u + 99u);
+}
+
 TEST(InvalidFieldsTest, ManyViolationsStayBounded) {
   std::vector<FieldViolation> many = Numbered(200000);
   for (std::size_t i = 0; i < 40; ++i) many[i].description = std::string(600, 'd');

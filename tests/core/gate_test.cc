@@ -644,6 +644,32 @@ TEST(GateTest, InvalidCandidateAndChampionNameFields) {
               Contains("champion.champion_holdout.sample_count"));
 }
 
+// A paired sample_count that is both too small for the counts and not the
+// candidate's hold-out size names sample_count as well as the counts (the
+// check used to stop at the counts). Found by the bad-input table
+// (tests/integration/bad_input_table_test.py): paired sample_count 1 against
+// a candidate holding 3 errors in 1000.
+TEST(GateTest, PairedCountsNameEveryBadFieldAtOnce) {
+  const GatePolicy p = Policy(0.05, 0.05);
+  ChampionComparison champ;
+  champ.champion_id = "model-a";
+  champ.paired = PairedCounts{1, 5, 2, 1};
+  std::vector<std::string> fields = Fields(DecideGate(p, Candidate(3, 1000), champ).status());
+  EXPECT_THAT(fields, Contains("champion.paired.sample_count"));
+  EXPECT_THAT(fields, Contains("champion.paired.only_champion_wrong_count"));
+  EXPECT_THAT(fields, Contains("champion.paired.only_challenger_wrong_count"));
+  // A sum above the samples and a candidate error count that disagrees.
+  champ.paired = PairedCounts{60, 30, 20, 100};
+  fields = Fields(DecideGate(p, Candidate(5, 100), champ).status());
+  EXPECT_THAT(fields, Contains("champion.paired.sample_count"));
+  EXPECT_THAT(fields, Contains("champion.paired.only_challenger_wrong_count"));
+  // sample_count 0 and counts above 2^53: each named.
+  champ.paired = PairedCounts{std::uint64_t{1} << 60, 0, 0, 0};
+  fields = Fields(DecideGate(p, Candidate(3, 1000), champ).status());
+  EXPECT_THAT(fields, Contains("champion.paired.sample_count"));
+  EXPECT_THAT(fields, Contains("champion.paired.both_wrong_count"));
+}
+
 TEST(GateTest, VerdictNames) {
   EXPECT_STREQ(VerdictName(Verdict::kPromote), "PROMOTE");
   EXPECT_STREQ(VerdictName(Verdict::kHold), "HOLD");

@@ -71,6 +71,42 @@ TEST(RegistrySettingsTest, EveryBadFieldAtOnce) {
   EXPECT_TRUE(ValidateRegistrySettings(CertifyRun(0.05)).ok());
 }
 
+// ScoreSettings' contract (registry.proto, CertifySettings.failure_probability):
+// "0 means 0.05". -0.0 is the same number (IEEE 754: -0 == +0). Found by the
+// bad-input table (tests/integration/bad_input_table_test.py): 0 was refused.
+TEST(RegistrySettingsTest, ZeroCertifyDeltaIsTheDefault) {
+  for (double zero : {0.0, -0.0}) {
+    const RegistrySettings s = CertifyRun(zero);
+    EXPECT_TRUE(ValidateRegistrySettings(s).ok()) << zero;
+    EXPECT_EQ(RunFailureProbability(s), 0.05);
+    RegistryLedger ledger(s);
+    auto a = ledger.Allot("", 0.0);
+    ASSERT_TRUE(a.ok());
+    EXPECT_EQ(a->failure_probability, 0.05);
+    EXPECT_THAT(ledger.Statement(1), HasSubstr("0.05"));
+  }
+  RegistryLedger shared(SharedRun(0.0, {{"s", 4}}));
+  auto q = shared.Allot("s", 0.0);
+  ASSERT_TRUE(q.ok());
+  EXPECT_EQ(q->failure_probability, 0.0125);  // 0.05 / 4, exact in binary64
+  for (double bad : {-0.05, 1.0, std::nan("")}) {
+    EXPECT_THAT(Fields(ValidateRegistrySettings(CertifyRun(bad))),
+                Contains("settings.certify.failure_probability"))
+        << bad;
+  }
+}
+
+// A subnormal weight is in (0, 1], but its share delta * w rounds down to 0:
+// refused saying so, not as an overspend. Source: IEEE 754 binary64, the
+// smallest subnormal 2^-1074 times 0.05 rounds to 0.
+TEST(RegistryLedgerTest, WeightWhoseShareRoundsToZeroIsNamedAsSuch) {
+  RegistryLedger ledger(SharedRun(0.05, {{"s", 1}}));
+  const absl::Status refused = ledger.Allot("s", std::ldexp(1.0, -1074)).status();
+  EXPECT_THAT(Fields(refused), Contains("delta_weight"));
+  EXPECT_THAT(std::string(refused.message()), HasSubstr("rounds to 0"));
+  EXPECT_TRUE(ledger.Allot("s", 1e-300).ok());
+}
+
 TEST(RegistryLedgerTest, PerRecordGivesEveryRecordTheWholeDelta) {
   RegistryLedger ledger(CertifyRun(0.01));
   for (int i = 0; i < 5; ++i) {

@@ -213,6 +213,18 @@ TEST(RelabelTest, ValidationNamesEveryBadField) {
               Contains("evidence.relabel.draws[0].relabelled_error_count"));
 }
 
+// 5000 bad draws: 10 named, one violation for the rest, and every one of them
+// counted (the details' violation_count used to say 11). Found by the
+// bad-input table (tests/integration/bad_input_table_test.py).
+TEST(RelabelTest, EveryBadDrawIsCounted) {
+  Evidence ev;
+  ev.relabel = Signed(0, 10, std::vector<std::uint64_t>(5000, 11));
+  const ViolationReport report = ViolationReportOf(ValidateEvidence(ev));
+  ASSERT_THAT(report.listed, ::testing::SizeIs(11));
+  EXPECT_EQ(report.listed.back().field, "evidence.relabel.draws");
+  EXPECT_EQ(report.listed.size() + report.unlisted_count, 5000u);
+}
+
 // Approximate training: certified, marked heuristic, never the tightest
 // while a valid certificate exists.
 TEST(RelabelTest, ApproximateTrainingIsHeuristicAndNeverTightestBesideAValidOne) {

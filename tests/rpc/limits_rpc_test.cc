@@ -330,7 +330,9 @@ TEST_P(LimitsRpcTest, OversizedModelInsideCertifyAndPlanIsNamedAtItsPath) {
 
 TEST_P(LimitsRpcTest, ModelAtTheCapWithEveryWidthZeroIsCountedUnderItsPath) {
   // 1000 zero widths: the core finds 1000 violations; the answer lists 19
-  // and one on the model itself counts the other 981.
+  // and one on the model itself counts the other 981, and the request's
+  // summary counts them in the details (violation_count 1000: 20 listed and
+  // 980 more; it said 20 before the summary's also_counts).
   v1::CertifyRequest req;
   auto* t = req.mutable_evidence()->mutable_training();
   t->set_error_count(1);
@@ -341,14 +343,16 @@ TEST_P(LimitsRpcTest, ModelAtTheCapWithEveryWidthZeroIsCountedUnderItsPath) {
   req.set_failure_probability(0.05);
   const Answer a = Certify(req);
   ASSERT_EQ(a.status.error_code(), grpc::StatusCode::INVALID_ARGUMENT);
-  ASSERT_THAT(a.violations, SizeIs(core::kMaxListedViolations));
+  ASSERT_THAT(a.violations, SizeIs(core::kMaxListedViolations + 1));
   for (std::size_t i = 0; i + 1 < core::kMaxListedViolations; ++i) {
     EXPECT_EQ(a.violations[i].first,
               absl::StrCat("evidence.training.capacity.model.layer_widths[", i, "]"));
   }
-  EXPECT_EQ(a.violations.back().first, "evidence.training.capacity.model");
-  EXPECT_EQ(a.violations.back().second,
+  EXPECT_EQ(a.violations[core::kMaxListedViolations - 1].first, "evidence.training.capacity.model");
+  EXPECT_EQ(a.violations[core::kMaxListedViolations - 1].second,
             "and 981 more invalid fields of this model were not listed");
+  EXPECT_EQ(a.violations.back().first, "request");
+  EXPECT_EQ(a.violations.back().second, "and 980 more invalid fields were not listed");
   EXPECT_LT(a.trailer_bytes, kTrailerPromise);
 }
 
