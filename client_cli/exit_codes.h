@@ -18,6 +18,7 @@ enum ExitCode : int {
                             // request or its answer is above its size limits.
   kExitUnauthenticated = 8,  // The server refused the credentials (UNAUTHENTICATED:
                              // no valid bearer token; PERMISSION_DENIED).
+  kExitBenchErrors = 9,     // `bench`: some calls failed during the run (counted by code).
   kExitGateHold = 10,       // `gate`: verdict HOLD (more hold-out data needed).
   kExitGateReject = 11,     // `gate`: verdict REJECT.
   kExitRowErrors = 12,      // `score`: some rows are error rows (the others were written).
