@@ -2,6 +2,10 @@
 // baseline measured in the same run:
 // - BM_CoreCertify/<choice>: counter x_recommended = time / time of the
 //   recommended single family, measured just before.
+// - BM_HandleCertify/<choice>: the service's own work per call without the
+//   transport (decode the request bytes, copy to the core, Certify, copy the
+//   answer back, encode it); counter x_core = time / the core's Certify
+//   alone on the same request, measured just before.
 // - BM_RpcCertify: counter x_health_check = Certify round trip / gRPC health
 //   check round trip on the same loopback server and channel.
 #include <chrono>
@@ -15,6 +19,8 @@
 #include "grpcpp/security/credentials.h"
 #include "riskbound/v1/riskbound.grpc.pb.h"
 #include "service/core/certify.h"
+#include "service/core/stop.h"
+#include "service/rpc/handlers.h"
 #include "service/rpc/server.h"
 
 namespace {
@@ -46,17 +52,52 @@ double SecondsPerCall(int n, Fn fn) {
 void BM_CoreCertify(benchmark::State& state) {
   const auto choice = static_cast<FamilyChoice>(state.range(0));
   const CertifyRequest baseline = MakeRequest(FamilyChoice::kRecommended);
-  const double base = SecondsPerCall(2000, [&] {
-    benchmark::DoNotOptimize(riskbound::core::Certify(baseline));
-  });
+  const double base =
+      SecondsPerCall(2000, [&] { benchmark::DoNotOptimize(riskbound::core::Certify(baseline)); });
   const CertifyRequest req = MakeRequest(choice);
   const auto start = std::chrono::steady_clock::now();
   for (auto _ : state) benchmark::DoNotOptimize(riskbound::core::Certify(req));
-  const double per = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count() /
-                     static_cast<double>(state.iterations());
+  const double per =
+      std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count() /
+      static_cast<double>(state.iterations());
   state.counters["x_recommended"] = per / base;
 }
 BENCHMARK(BM_CoreCertify)
+    ->Arg(static_cast<int>(FamilyChoice::kRecommended))
+    ->Arg(static_cast<int>(FamilyChoice::kAllApplicable));
+
+void BM_HandleCertify(benchmark::State& state) {
+  const auto choice = static_cast<FamilyChoice>(state.range(0));
+  const CertifyRequest core_request = MakeRequest(choice);
+  const double base = SecondsPerCall(
+      2000, [&] { benchmark::DoNotOptimize(riskbound::core::Certify(core_request)); });
+  riskbound::v1::CertifyRequest wire;
+  wire.mutable_evidence()->mutable_holdout()->set_error_count(212);
+  wire.mutable_evidence()->mutable_holdout()->set_sample_count(5000);
+  auto* training = wire.mutable_evidence()->mutable_training();
+  training->set_error_count(270);
+  training->set_sample_count(9000);
+  training->mutable_capacity()->set_vc_dimension(41);
+  training->mutable_capacity()->set_log_hypothesis_count(13.86);
+  wire.set_failure_probability(0.05);
+  if (choice == FamilyChoice::kAllApplicable) wire.mutable_all_applicable();
+  const std::string bytes = wire.SerializeAsString();
+  const riskbound::core::StopToken stop;
+  const auto start = std::chrono::steady_clock::now();
+  for (auto _ : state) {
+    riskbound::v1::CertifyRequest decoded;
+    decoded.ParseFromString(bytes);
+    auto answer = riskbound::rpc::HandleCertify(decoded, {.stop = stop, .request_id = "bench"});
+    std::string out;
+    if (answer.ok()) answer->SerializeToString(&out);
+    benchmark::DoNotOptimize(out);
+  }
+  const double per =
+      std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count() /
+      static_cast<double>(state.iterations());
+  state.counters["x_core"] = per / base;
+}
+BENCHMARK(BM_HandleCertify)
     ->Arg(static_cast<int>(FamilyChoice::kRecommended))
     ->Arg(static_cast<int>(FamilyChoice::kAllApplicable));
 
@@ -100,8 +141,9 @@ void BM_RpcCertify(benchmark::State& state) {
   const double base = SecondsPerCall(500, health_check);
   const auto start = std::chrono::steady_clock::now();
   for (auto _ : state) benchmark::DoNotOptimize(certify());
-  const double per = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count() /
-                     static_cast<double>(state.iterations());
+  const double per =
+      std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count() /
+      static_cast<double>(state.iterations());
   state.counters["x_health_check"] = per / base;
 }
 BENCHMARK(BM_RpcCertify)->UseRealTime();
