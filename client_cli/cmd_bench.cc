@@ -440,7 +440,10 @@ std::optional<std::string> ReadFlags(const ParsedArgs& args, BenchFlags* f) {
     }
     if (f->cycle.empty()) {
       std::vector<std::string> words;
-      for (const Method& m : Methods()) words.push_back(m.word);
+      for (const Method& m : Methods()) {
+        if (std::string(m.word) != "health") words.push_back(m.word);
+      }
+      words.push_back("health");
       words.push_back("mixed");
       return absl::StrCat("--rpc: unknown RPC '", f->rpc_word, "'; one of ",
                           absl::StrJoin(words, ", "));
