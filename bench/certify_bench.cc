@@ -133,6 +133,22 @@ std::vector<riskbound::core::SampleCounts> ScipyRecords() {
   return records;
 }
 
+// Prints scipy's CPU seconds per record for both limits of the records in
+// the file argv[1] ("k n" lines), best of 5 runs of the vectorised calls.
+constexpr char kScipyScript[] =
+    "import sys, time, numpy as np\n"
+    "from scipy.special import betaincinv\n"
+    "k, n = np.loadtxt(sys.argv[1], dtype=np.float64, unpack=True)\n"
+    "d = 0.05\n"
+    "best = 1e9\n"
+    "for _ in range(5):\n"
+    "    t = time.process_time()\n"
+    "    up = betaincinv(k + 1, n - k, 1 - d)\n"
+    "    lo = betaincinv(k, n - k + 1, d)\n"
+    "    best = min(best, time.process_time() - t)\n"
+    "assert np.all(np.isfinite(up)) and np.all(np.isfinite(lo))\n"
+    "print(best / len(k))\n";
+
 // scipy's CPU seconds per record for both limits of `records` (best of 5
 // runs of the two vectorised calls), or a negative value when scipy cannot
 // be run.
@@ -145,21 +161,7 @@ double ScipySecondsPerRecord(const std::vector<riskbound::core::SampleCounts>& r
     std::ofstream out(path);
     for (const auto& r : records) out << r.error_count << " " << r.sample_count << "\n";
   }
-  const std::string command = std::string(
-      "/usr/bin/python3 -c '\n"
-      "import sys, time, numpy as np\n"
-      "from scipy.special import betaincinv\n"
-      "k, n = np.loadtxt(sys.argv[1], dtype=np.float64, unpack=True)\n"
-      "d = 0.05\n"
-      "best = 1e9\n"
-      "for _ in range(5):\n"
-      "    t = time.process_time()\n"
-      "    up = betaincinv(k + 1, n - k, 1 - d)\n"
-      "    lo = betaincinv(k, n - k + 1, d)\n"
-      "    best = min(best, time.process_time() - t)\n"
-      "assert np.all(np.isfinite(up)) and np.all(np.isfinite(lo))\n"
-      "print(best / len(k))\n"
-      "' ") + path;
+  const std::string command = std::string("/usr/bin/python3 -c '") + kScipyScript + "' " + path;
   FILE* pipe = popen(command.c_str(), "r");
   double seconds = -1;
   if (pipe != nullptr) {
@@ -193,8 +195,8 @@ void BM_CoreVsScipy(benchmark::State& state) {
   for (auto _ : state) {
     for (const CertifyRequest& r : requests) benchmark::DoNotOptimize(riskbound::core::Certify(r));
   }
-  const double per = (cpu_seconds() - start) /
-                     static_cast<double>(state.iterations() * requests.size());
+  const double per =
+      (cpu_seconds() - start) / static_cast<double>(state.iterations() * requests.size());
   state.counters["core_us_per_record"] = per * 1e6;
   state.counters["scipy_us_per_record"] = scipy * 1e6;
   state.counters["x_scipy"] = per / scipy;

@@ -52,8 +52,7 @@ const std::vector<Command>& Commands() {
       {"plan", "hold-out or training sample size that reaches a target risk", RunPlan},
       {"score", "a whole model registry, one row per input row (JSONL or CSV)", RunScore},
       {"health", "the server's gRPC health status (exit 0 only when SERVING)", RunHealth},
-      {"bench", "load the server and compare with the gRPC health check's throughput",
-       RunBench},
+      {"bench", "load the server and compare with the gRPC health check's throughput", RunBench},
   };
   return *kCommands;
 }

@@ -11,9 +11,9 @@
 #include <array>
 #include <cstdint>
 #include <functional>
-#include <string_view>
 #include <map>
 #include <string>
+#include <string_view>
 #include <tuple>
 #include <utility>
 #include <vector>

@@ -57,8 +57,7 @@ TEST(LatencyHistogramTest, PercentilesWithinABucketOfTheExactOnes) {
     const std::uint64_t exact = NearestRank(values, q);
     const std::uint64_t reported = h.Percentile(q);
     EXPECT_GE(reported, exact) << q;
-    EXPECT_LE(static_cast<double>(reported), static_cast<double>(exact) * (1.0 + 1.0 / 128))
-        << q;
+    EXPECT_LE(static_cast<double>(reported), static_cast<double>(exact) * (1.0 + 1.0 / 128)) << q;
   }
   EXPECT_EQ(h.Percentile(1.0), h.max_nanoseconds());
 }
