@@ -28,7 +28,9 @@ TEST(LatencyHistogramTest, BucketsCoverEveryValueOnce) {
   std::uint64_t previous_edge = 0;
   for (int b = 0; b < 2000; ++b) {
     const std::uint64_t edge = LatencyHistogram::UpperEdge(b);
-    if (b > 0) EXPECT_GT(edge, previous_edge) << b;
+    if (b > 0) {
+      EXPECT_GT(edge, previous_edge) << b;
+    }
     EXPECT_EQ(LatencyHistogram::BucketOf(edge), b) << b;
     EXPECT_EQ(LatencyHistogram::BucketOf(edge + 1), b + 1) << b;
     previous_edge = edge;
@@ -36,7 +38,9 @@ TEST(LatencyHistogramTest, BucketsCoverEveryValueOnce) {
   for (std::uint64_t v = 0; v < (1u << 16); ++v) {
     const int b = LatencyHistogram::BucketOf(v);
     EXPECT_LE(v, LatencyHistogram::UpperEdge(b));
-    if (b > 0) EXPECT_GT(v, LatencyHistogram::UpperEdge(b - 1));
+    if (b > 0) {
+      EXPECT_GT(v, LatencyHistogram::UpperEdge(b - 1));
+    }
   }
 }
 
