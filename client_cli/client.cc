@@ -157,11 +157,12 @@ absl::StatusOr<ClientOptions> ClientOptionsFromArgs(const ParsedArgs& args) {
   return out;
 }
 
-std::shared_ptr<grpc::Channel> MakeChannel(const ClientOptions& options) {
+std::shared_ptr<grpc::Channel> MakeChannel(const ClientOptions& options, bool own_connection) {
   // Calls spread over every address the target resolves to (several
   // replicas behind dns:///name, or ipv4:a:p,b:p): gRPC's round_robin policy.
   grpc::ChannelArguments arguments;
   arguments.SetLoadBalancingPolicyName("round_robin");
+  if (own_connection) arguments.SetInt(GRPC_ARG_USE_LOCAL_SUBCHANNEL_POOL, 1);
   if (options.plaintext) {
     return grpc::CreateCustomChannel(options.server, grpc::InsecureChannelCredentials(),
                                      arguments);

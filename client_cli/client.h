@@ -59,8 +59,11 @@ absl::StatusOr<ClientOptions> ClientOptionsFromArgs(const ParsedArgs& args);
 
 // MakeChannel
 // The channel `options` describe (plaintext or TLS). Every command,
-// `health` included, connects through it.
-std::shared_ptr<grpc::Channel> MakeChannel(const ClientOptions& options);
+// `health` included, connects through it. With `own_connection`, the
+// channel never shares its connections with another channel of the process
+// (gRPC otherwise reuses one connection for channels with equal settings).
+std::shared_ptr<grpc::Channel> MakeChannel(const ClientOptions& options,
+                                           bool own_connection = false);
 
 // AddCallCredentials
 // Adds the bearer token (if any) to a call's metadata.

@@ -30,6 +30,7 @@ constexpr char kExitCodes[] =
     "  6  health: the server answered, but not SERVING\n"
     "  7  the server refused the call for its limits (busy, or a request or answer too large)\n"
     "  8  the server refused the credentials (no valid bearer token)\n"
+    "  9  bench: some calls failed during the run (counted by status code)\n"
     "  10 gate: verdict HOLD (0 is PROMOTE)\n"
     "  11 gate: verdict REJECT\n"
     "  12 score: some rows are error rows (the other rows are written)\n"
@@ -51,6 +52,7 @@ const std::vector<Command>& Commands() {
       {"plan", "hold-out or training sample size that reaches a target risk", RunPlan},
       {"score", "a whole model registry, one row per input row (JSONL or CSV)", RunScore},
       {"health", "the server's gRPC health status (exit 0 only when SERVING)", RunHealth},
+      {"bench", "load the server and compare with the gRPC health check's throughput", RunBench},
   };
   return *kCommands;
 }

@@ -20,6 +20,7 @@ struct Command {
   CommandFn run;
 };
 
+int RunBench(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunCapacity(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunEffectiveVc(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
 int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);

@@ -27,6 +27,7 @@
 #include "absl/strings/str_replace.h"
 #include "absl/strings/str_split.h"
 #include "absl/strings/strip.h"
+#include "absl/synchronization/mutex.h"
 #include "absl/time/time.h"
 #include "service/rpc/logging.h"
 #include "service/rpc/server.h"
@@ -386,6 +387,12 @@ int main(int argc, char** argv) {
   if (std::string problem = TransportProblem(&settings); !problem.empty()) {
     return UsageError(problem);
   }
+
+  // Debian's Abseil is built with the Mutex deadlock detector on: every lock
+  // taken updates a global graph of lock orders, which cost about a tenth of
+  // the server's CPU under load (riskbound bench, docs/performance.md). The
+  // tests keep it on in their own processes.
+  absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
 
   // Block the shutdown signals before gRPC starts its threads, so that only
   // this thread (sigwait below) receives them.

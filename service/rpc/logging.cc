@@ -110,8 +110,10 @@ absl::Status ConfigureLogging(LogFormat format, absl::string_view level) {
   return absl::OkStatus();
 }
 
+bool CallLogging() { return spdlog::should_log(spdlog::level::debug); }
+
 void LogCall(const CallRecord& r) {
-  if (!spdlog::should_log(spdlog::level::debug)) return;
+  if (!CallLogging()) return;
   const bool failed = r.code != absl::StatusCode::kOk;
   const std::string code = absl::StatusCodeToString(r.code);
   if (g_format == LogFormat::kJson) {

@@ -43,6 +43,11 @@ struct CallRecord {
 // they are written at debug level only. Thread-safe.
 void LogCall(const CallRecord& record);
 
+// CallLogging
+// True when LogCall writes lines (the level is debug), so that a caller can
+// skip gathering fields that cost something (the peer address). Thread-safe.
+bool CallLogging();
+
 // JsonEscape
 // `text` escaped for the inside of a JSON string (quotes, backslashes,
 // control characters as \uXXXX). Exposed for tests.

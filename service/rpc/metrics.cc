@@ -2,6 +2,8 @@
 
 #include <cmath>
 #include <cstdlib>
+#include <string_view>
+#include <tuple>
 #include <utility>
 
 #include "absl/strings/str_cat.h"
@@ -26,6 +28,26 @@ std::string Number(double value) {
 
 void Header(std::string* out, const char* name, const char* type, const char* help) {
   absl::StrAppend(out, "# HELP ", name, " ", help, "\n# TYPE ", name, " ", type, "\n");
+}
+
+// ++map[key] without building a key string when the key is already there.
+template <class Map, class Key>
+void Increment(Map& map, const Key& key) {
+  auto it = map.find(key);
+  if (it == map.end()) it = map.emplace(typename Map::key_type(key), 0).first;
+  ++it->second;
+}
+
+// absl::StatusCodeToString's names, built once (it returns a new string).
+std::string_view CodeName(absl::StatusCode code) {
+  static const auto* const kNames = [] {
+    auto* names = new std::array<std::string, 17>;
+    for (int c = 0; c < 17; ++c) (*names)[c] = absl::StatusCodeToString(absl::StatusCode(c));
+    return names;
+  }();
+  const int c = static_cast<int>(code);
+  if (c < 0 || c >= 17) return "";  // as absl::StatusCodeToString
+  return (*kNames)[c];
 }
 
 }  // namespace
@@ -53,9 +75,23 @@ Metrics::Metrics(std::string version, std::string commit, std::function<int()> i
 void Metrics::RecordCall(const char* transport, const char* rpc, absl::StatusCode code,
                          absl::Duration latency) {
   const double seconds = absl::ToDoubleSeconds(latency);
+  const std::string_view rpc_name(rpc);
   absl::MutexLock lock(&mu_);
-  ++calls_[{transport, rpc, absl::StatusCodeToString(code)}];
-  Histogram& h = latency_[rpc];
+  {
+    const auto key = std::make_tuple(std::string_view(transport), rpc_name, CodeName(code));
+    auto it = calls_.find(key);
+    if (it == calls_.end()) {
+      it = calls_
+               .emplace(std::make_tuple(std::string(transport), std::string(rpc_name),
+                                        std::string(CodeName(code))),
+                        0)
+               .first;
+    }
+    ++it->second;
+  }
+  auto found = latency_.find(rpc_name);
+  if (found == latency_.end()) found = latency_.emplace(std::string(rpc_name), Histogram{}).first;
+  Histogram& h = found->second;
   for (std::size_t i = 0; i < kLatencyBuckets.size(); ++i) {
     if (seconds <= kLatencyBuckets[i]) {
       ++h.buckets[i];
@@ -68,17 +104,17 @@ void Metrics::RecordCall(const char* transport, const char* rpc, absl::StatusCod
 
 void Metrics::RecordRefusal(const char* reason) {
   absl::MutexLock lock(&mu_);
-  ++refusals_[reason];
+  Increment(refusals_, std::string_view(reason));
 }
 
 void Metrics::RecordVerdict(const std::string& verdict) {
   absl::MutexLock lock(&mu_);
-  ++verdicts_[verdict];
+  Increment(verdicts_, verdict);
 }
 
 void Metrics::RecordCertificate(const std::string& family) {
   absl::MutexLock lock(&mu_);
-  ++certificates_[family];
+  Increment(certificates_, family);
 }
 
 void Metrics::SetLimit(const std::string& name, double value) {

@@ -13,6 +13,7 @@
 #include <functional>
 #include <map>
 #include <string>
+#include <string_view>
 #include <tuple>
 #include <utility>
 #include <vector>
@@ -73,12 +74,14 @@ class Metrics {
   const std::function<int()> in_flight_;
 
   mutable absl::Mutex mu_;
-  std::map<std::tuple<std::string, std::string, std::string>, std::uint64_t> calls_
+  // Transparent comparators (std::less<>): a call finds its counters by
+  // string views, and allocates key strings only for a label set's first call.
+  std::map<std::tuple<std::string, std::string, std::string>, std::uint64_t, std::less<>> calls_
       ABSL_GUARDED_BY(mu_);
-  std::map<std::string, Histogram> latency_ ABSL_GUARDED_BY(mu_);
-  std::map<std::string, std::uint64_t> refusals_ ABSL_GUARDED_BY(mu_);
-  std::map<std::string, std::uint64_t> verdicts_ ABSL_GUARDED_BY(mu_);
-  std::map<std::string, std::uint64_t> certificates_ ABSL_GUARDED_BY(mu_);
+  std::map<std::string, Histogram, std::less<>> latency_ ABSL_GUARDED_BY(mu_);
+  std::map<std::string, std::uint64_t, std::less<>> refusals_ ABSL_GUARDED_BY(mu_);
+  std::map<std::string, std::uint64_t, std::less<>> verdicts_ ABSL_GUARDED_BY(mu_);
+  std::map<std::string, std::uint64_t, std::less<>> certificates_ ABSL_GUARDED_BY(mu_);
   std::map<std::string, double> limits_ ABSL_GUARDED_BY(mu_);
 };
 

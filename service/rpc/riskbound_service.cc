@@ -141,17 +141,20 @@ grpc::ServerUnaryReactor* RiskBoundService::Dispatch(
   // Finishes the call; the only place that does. REQUIRES: called once.
   auto finish = [this, method, context, reactor, request_id, start, request_bytes](
                     const absl::Status& status, std::int64_t response_bytes) {
-    if (metrics_ != nullptr) metrics_->RecordCall("grpc", method, status.code(), absl::Now() - start);
-    const std::string peer = context->peer();
-    LogCall({.transport = "grpc",
-             .rpc = method,
-             .code = status.code(),
-             .latency_us = absl::ToInt64Microseconds(absl::Now() - start),
-             .peer = peer,
-             .request_id = request_id,
-             .message = status.message(),
-             .request_bytes = request_bytes,
-             .response_bytes = response_bytes});
+    const absl::Duration latency = absl::Now() - start;
+    if (metrics_ != nullptr) metrics_->RecordCall("grpc", method, status.code(), latency);
+    if (CallLogging()) {  // the peer address is a new string each time: only when logged
+      const std::string peer = context->peer();
+      LogCall({.transport = "grpc",
+               .rpc = method,
+               .code = status.code(),
+               .latency_us = absl::ToInt64Microseconds(latency),
+               .peer = peer,
+               .request_id = request_id,
+               .message = status.message(),
+               .request_bytes = request_bytes,
+               .response_bytes = response_bytes});
+    }
     reactor->Finish(ToGrpcStatus(status));
   };
 
