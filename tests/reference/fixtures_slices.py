@@ -2,6 +2,10 @@
 the slices' shares, for Certify and for the promotion gate, and the error
 counts where a slice's gate outcome flips.
 
+Limits also at 40 digits with mpmath (root of the regularized incomplete
+beta, mpmath.betainc), rounded outward to a double: columns upper_outward
+and lower_outward, the reference of the outward-rounding checks.
+
 Shares: Bonferroni (1936), delta_slices / G; Sidak (1967),
 1 - (1 - delta_slices)^(1/G), computed in numpy as -expm1(log1p(-d) / G) and
 cross-checked at 50 digits with mpmath. Limits: scipy.stats.beta.isf /
@@ -26,8 +30,6 @@ import numpy
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from fixtures_gate import checked_lower, checked_upper, cp_lower, cp_upper  # noqa: E402
 
-mpmath.mp.dps = 50
-
 # (name, error_count, sample_count): slices of different sizes, with zero
 # errors, all errors and ordinary rates.
 SLICES = [("north", 12, 900), ("south", 40, 500), ("coast", 3, 300), ("inland", 0, 1200),
@@ -41,12 +43,67 @@ def bonferroni_share(total, g):
 def sidak_share(total, g):
     """1 - (1 - total)^(1/g) in numpy, checked at 50 digits with mpmath."""
     value = float(-numpy.expm1(numpy.log1p(-total) / g))
-    exact = 1 - mpmath.power(1 - mpmath.mpf(total), mpmath.mpf(1) / g)
-    assert abs(mpmath.mpf(value) - exact) <= mpmath.mpf(1e-14) * exact, (total, g, value)
+    with mpmath.workdps(50):
+        exact = 1 - mpmath.power(1 - mpmath.mpf(total), mpmath.mpf(1) / g)
+        assert abs(mpmath.mpf(value) - exact) <= mpmath.mpf(1e-14) * exact, (total, g, value)
     return value
 
 
 SHARE_RULES = [("bonferroni", bonferroni_share), ("sidak", sidak_share)]
+
+
+def mp_root(f, guess):
+    """The root of the increasing f near guess, at 40 digits (mpmath's
+    Anderson iteration from a bracket around scipy's value, else bisection
+    over [0, 1])."""
+    try:
+        root = mpmath.findroot(f, (guess * (1 - 1e-6), guess * (1 + 1e-6)), solver="anderson")
+        if 0 < root < 1:
+            return root
+    except (ValueError, ZeroDivisionError):
+        pass
+    lo, hi = mpmath.mpf(0), mpmath.mpf(1)
+    for _ in range(140):
+        mid = (lo + hi) / 2
+        lo, hi = (mid, hi) if f(mid) < 0 else (lo, mid)
+    return (lo + hi) / 2
+
+
+def outward(x, up):
+    """The double next to the 40-digit x on the outer side: the smallest
+    double >= x (up) or the largest <= x."""
+    d = float(x)
+    if up and mpmath.mpf(d) < x:
+        d = math.nextafter(d, math.inf)
+    if not up and mpmath.mpf(d) > x:
+        d = math.nextafter(d, -math.inf)
+    return d
+
+
+def mp_limits(n, k, level, upper, lower):
+    """Clopper-Pearson limits at 40 digits (regularized incomplete beta,
+    mpmath.betainc; Clopper & Pearson 1934), each rounded outward to a
+    double, after checking scipy's agree within 1e-12 relative: the
+    reference of the outward-rounding check (scipy's own values can be a
+    unit or two in the last place on the inner side)."""
+    with mpmath.workdps(40):
+        return _mp_limits(n, k, level, upper, lower)
+
+
+def _mp_limits(n, k, level, upper, lower):
+    d = mpmath.mpf(level)
+    if k >= n:
+        u = mpmath.mpf(1)
+    else:
+        u = mp_root(lambda x: mpmath.betainc(k + 1, n - k, 0, x, regularized=True) - (1 - d),
+                    upper)
+    if k == 0:
+        lo = mpmath.mpf(0)
+    else:
+        lo = mp_root(lambda x: mpmath.betainc(k, n - k + 1, 0, x, regularized=True) - d, lower)
+    assert abs(u - upper) <= 1e-12 * u, (n, k, level, upper, u)
+    assert abs(lo - lower) <= 1e-12 * lo, (n, k, level, lower, lo)
+    return outward(u, True), outward(lo, False)
 
 
 def slice_certify():
@@ -55,7 +112,7 @@ def slice_certify():
     sides are each one-sided at that share, as the hold-out exact binomial
     family states)."""
     header = ["case", "rule", "failure_probability", "slice_count", "slice", "error_count",
-              "sample_count", "share", "upper", "lower"]
+              "sample_count", "share", "upper", "lower", "upper_outward", "lower_outward"]
     rows = []
     for case, part in [("slices-only", 1.0), ("with-holdout", 0.5)]:
         for delta in [0.05, 0.01, 1e-6]:
@@ -65,8 +122,9 @@ def slice_certify():
                     total = delta * part  # halving is exact in binary
                     share = share_of(total, g)
                     for name, k, n in slices:
-                        rows.append([case, rule, delta, g, name, k, n, share,
-                                     checked_upper(n, k, share), checked_lower(n, k, share)])
+                        u, lo = checked_upper(n, k, share), checked_lower(n, k, share)
+                        rows.append([case, rule, delta, g, name, k, n, share, u, lo,
+                                     *mp_limits(n, k, share, u, lo)])
     return header, rows
 
 
@@ -78,7 +136,7 @@ def slice_gate():
     """Gate: each slice's share of the slices' part, the upper and the lower
     limit at half the share each."""
     header = ["rule", "failure_probability", "champion", "slice_count", "slice", "error_count",
-              "sample_count", "share", "upper", "lower"]
+              "sample_count", "share", "upper", "lower", "upper_outward", "lower_outward"]
     rows = []
     for delta in [0.05, 0.1, 1e-4]:
         for champion in [0, 1]:
@@ -87,9 +145,9 @@ def slice_gate():
                 for rule, share_of in SHARE_RULES:
                     share = share_of(gate_part(delta, champion), g)
                     for name, k, n in slices:
-                        rows.append([rule, delta, champion, g, name, k, n, share,
-                                     checked_upper(n, k, share / 2),
-                                     checked_lower(n, k, share / 2)])
+                        u, lo = checked_upper(n, k, share / 2), checked_lower(n, k, share / 2)
+                        rows.append([rule, delta, champion, g, name, k, n, share, u, lo,
+                                     *mp_limits(n, k, share / 2, u, lo)])
     return header, rows
 
 
