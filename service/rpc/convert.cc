@@ -110,6 +110,10 @@ void EvidenceFromProto(const v1::Evidence& e, const std::string& prefix, core::E
       c.sample_count = s.sample_count();
       out->slices.push_back(std::move(c));
     }
+  } else {
+    // Without its slices the evidence may look empty: a finding on
+    // "<prefix>" itself would be about the refused list.
+    refusals->skipped_exact.push_back(prefix);
   }
 }
 
@@ -157,6 +161,10 @@ Converted<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest
       break;
   }
   SliceSharingFromProto(in.slice_sharing(), "slice_sharing", &r.slice_sharing, &out.refusals);
+  // Slices refused: a sharing "without slices" is about the refused list.
+  if (static_cast<std::size_t>(in.evidence().slices_size()) > core::kMaxSlices) {
+    out.refusals.skipped_exact.push_back("slice_sharing");
+  }
   return out;
 }
 
