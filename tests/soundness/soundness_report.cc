@@ -147,8 +147,8 @@ void WriteSliceGate(std::ostream& md, const Options& options, int* failures) {
           absl::StrJoin(setup.true_rates, ", ",
                         [](std::string* out, double v) { absl::StrAppend(out, v); }),
           r.exact_promote, r.simulated_promote, se(r.simulated_promote),
-          r.promote_is_wrong ? absl::StrFormat("%.6f", r.promote_promise) : "-",
-          r.exact_reject, r.simulated_reject, se(r.simulated_reject),
+          r.promote_is_wrong ? absl::StrFormat("%.6f", r.promote_promise) : "-", r.exact_reject,
+          r.simulated_reject, se(r.simulated_reject),
           r.reject_is_wrong ? absl::StrFormat("%.6f", r.reject_promise) : "-",
           fails.empty() ? "pass" : Escape(absl::StrJoin(fails, "; ")));
     }
@@ -168,7 +168,8 @@ void WriteSliceGate(std::ostream& md, const Options& options, int* failures) {
     SliceGateSetup s = SliceGateSetups(rule)[0].second;
     for (std::size_t j = 0; j < s.true_rates.size(); ++j) s.true_rates[j] = 1.05 * s.limits[j];
     const SequentialSliceResult r = RunSequentialSlices(s, 20);
-    const bool pass = r.reject_ever <= r.reject_promise && r.promote_ever_bound <= r.promote_promise;
+    const bool pass =
+        r.reject_ever <= r.reject_promise && r.promote_ever_bound <= r.promote_promise;
     if (!pass) ++*failures;
     md << absl::StrFormat("| %s | %.6f | %.6f | %.6f | %.6f | %.6f | %.6f | %s |\n",
                           core::SliceShareRuleName(rule), r.reject_ever, r.fixed_reject_ever,
