@@ -129,11 +129,12 @@ class SlicesIntegrationTest(unittest.TestCase):
 
     def assert_limits(self, rule, n, k, level, upper, lower):
         """Limits at `level` (the exact share's part) against scipy: within
-        1e-9 relative (2.2e-9 at Sidak shares, whose 1e-9 lowering moves them
-        a little outward). Outward: upper >= scipy's and lower <= scipy's, or,
+        1e-9 relative (also at Sidak shares: the server's share is 1e-9
+        lower on purpose, which moves the limits outward by less).
+        Outward: upper >= scipy's and lower <= scipy's, or,
         where scipy's own value is a unit in the last place off, >= (<=) the
         limit at 40 digits (mpmath)."""
-        rel = 2.2e-9 if rule == "sidak" else 1e-9
+        rel = 1e-9
         want_u, want_l = cp_upper(n, k, float(level)), cp_lower(n, k, float(level))
         self.assertLessEqual(abs(upper - want_u), rel * want_u, (n, k, upper, want_u))
         self.assertLessEqual(abs(lower - want_l), rel * want_l, (n, k, lower, want_l))
