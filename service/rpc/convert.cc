@@ -160,6 +160,10 @@ Converted<core::CertifyRequest> CertifyRequestFromProto(const v1::CertifyRequest
       break;
   }
   SliceSharingFromProto(in.slice_sharing(), "slice_sharing", &r.slice_sharing, &out.refusals);
+  // Slices refused: a sharing "without slices" is about the refused list.
+  if (static_cast<std::size_t>(in.evidence().slices_size()) > core::kMaxSlices) {
+    out.refusals.skipped_exact.push_back("slice_sharing");
+  }
   return out;
 }
 

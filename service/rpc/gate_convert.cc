@@ -52,6 +52,10 @@ Converted<GateInputs> GateInputsFromProto(const v1::GateRequest& in) {
   r.candidate.id = in.candidate().id().substr(0, core::kMaxIdBytes);
   EvidenceFromProto(in.candidate().evidence(), "candidate.evidence", &r.candidate.evidence,
                     &out.refusals);
+  // Slices refused: weights "without slices" are about the refused list.
+  if (static_cast<std::size_t>(in.candidate().evidence().slices_size()) > core::kMaxSlices) {
+    out.refusals.skipped_exact.push_back("policy.slice_sharing.weights");
+  }
 
   if (in.has_champion()) {
     const v1::ChampionComparison& c = in.champion();
