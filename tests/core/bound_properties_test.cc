@@ -1,8 +1,9 @@
 // Property tests over a grid: every family's certificate lies in [0, 1]; it is
 // non-increasing in the sample size (at a fixed error rate), non-decreasing in
 // the errors, in the capacity, and as delta shrinks; upper >= empirical risk
-// >= lower. Brute force over the grid; the properties are those stated in the
-// formula sheet (sections 1, 2, 4 and 9.3).
+// >= lower. Brute force over the grid; the properties follow from the
+// published forms (Vapnik 1998 Ch. 4; Clopper & Pearson 1934; Hoeffding 1963;
+// monotonicity in m as used for sample-size inversion).
 #include <cmath>
 #include <cstdint>
 #include <vector>

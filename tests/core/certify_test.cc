@@ -55,7 +55,7 @@ TEST(CertifyTest, RecommendedTrainingFamilies) {
   EXPECT_EQ(Certify(req)->certificates[0].family, Family::kVcAdditive);
 }
 
-// Union bound (formula sheet 11.3; common practice): with K families each is
+// Union bound (Bonferroni; common practice): with K families each is
 // computed at delta/K and equals a standalone computation at delta/K.
 TEST(CertifyTest, AllApplicableSplitsDelta) {
   CertifyRequest req;

@@ -1,6 +1,6 @@
 // Sample-compression family against a scipy reference (exact integer
-// ln C(m, d), binomial tail inverted by brentq in log space), the formula
-// sheet's worked values (rows 7.1, 7.2) and edge cases.
+// ln C(m, d), binomial tail inverted by brentq in log space), worked values of
+// Langford's (2005) sample compression bound and edge cases.
 #include "service/core/compression.h"
 
 #include <cmath>
@@ -29,20 +29,22 @@ CompressionEvidence Make(std::uint64_t m, std::uint64_t d, std::uint64_t k, bool
   return e;
 }
 
-// Source: formula sheet rows 7.1 and 7.2 (check_formulas.py): m = 10000,
+// Source: Langford (2005) sample compression bound (after Littlestone &
+// Warmuth 1986; Floyd & Warmuth 1995), binomial tail inverted independently
+// in Python by log-space bisection: m = 10000,
 // d = 300, delta = 0.05: k = 0 gives 0.130451 (closed-form relaxation
 // (ln C(m,d) + ln(m/delta)) / (m - d) = 0.139781 is larger); k = 150 gives
 // 0.177621.
-TEST(CompressionTest, FormulaSheetWorkedValues) {
+TEST(CompressionTest, WorkedValues) {
   const Certificate c71 = SampleCompression(Make(10000, 300, 0), 0.05);
-  EXPECT_NEAR(c71.risk_upper_bound, 0.130451, 5e-7);  // row 7.1
+  EXPECT_NEAR(c71.risk_upper_bound, 0.130451, 5e-7);  // k = 0
   EXPECT_TRUE(c71.exact);
   const double relaxation =
       (LogChoose(10000, 300) + std::log(10000 / 0.05)) / (10000 - 300);
-  EXPECT_NEAR(relaxation, 0.139781, 5e-7);  // row 7.1, closed form
+  EXPECT_NEAR(relaxation, 0.139781, 5e-7);  // k = 0, closed form
   EXPECT_LT(c71.risk_upper_bound, relaxation);
   const Certificate c72 = SampleCompression(Make(10000, 300, 150), 0.05);
-  EXPECT_NEAR(c72.risk_upper_bound, 0.177621, 5e-7);  // row 7.2
+  EXPECT_NEAR(c72.risk_upper_bound, 0.177621, 5e-7);  // k = 150
   EXPECT_TRUE(c72.exact);
   EXPECT_NEAR(c72.empirical_risk, 150.0 / 9700.0, 1e-15);
 }
@@ -107,7 +109,8 @@ TEST(CompressionTest, TenMillionErrorsSettlesExactly) {
   EXPECT_GT(u, kd / n);
 }
 
-// Formula sheet 7 ("Why it holds"): d = 0 is the test-set bound at delta/m
+// Union bound over sizes and index sets (Langford 2005; Floyd & Warmuth
+// 1995): d = 0 is the test-set bound at delta/m
 // (delta when the size was fixed); fixing the size never hurts; more
 // compression or more errors never helps (brute force over a grid).
 TEST(CompressionTest, StructureOfTheUnionBound) {

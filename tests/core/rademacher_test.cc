@@ -29,7 +29,7 @@ RademacherEvidence Make(std::uint64_t k, std::uint64_t m, double rhat, std::uint
 
 // Source: scipy fixture rademacher.csv (Mohri et al. 2018 Thm 3.5 in closed
 // form; McDiarmid slack sqrt(2 ln(1/delta') / (m N)) with delta split in
-// halves for sampled complexities, formula sheet 6.3).
+// halves for sampled complexities, McDiarmid 1989 bounded differences).
 TEST(RademacherTest, MatchesScipyFixture) {
   int rows = 0;
   for (const auto& row : ReadFixture("rademacher.csv")) {
@@ -63,7 +63,7 @@ TEST(RademacherTest, MatchesScipyFixture) {
 // 13 threshold classifiers h_t(x) = sign(x - t) on 12 sorted points, Rhat
 // computed exactly over all 2^12 sigma vectors. Then the bound equals the
 // formula of Thm 3.5 by hand, and Rhat respects Massart's lemma
-// sqrt(2 ln |H_S| / m) (formula sheet 6.3).
+// sqrt(2 ln |H_S| / m) (Massart 2000).
 TEST(RademacherTest, BruteForceThresholdClass) {
   const int m = 12;
   double total = 0;

@@ -50,7 +50,7 @@ StructureCandidate Finite(const std::string& id, std::uint64_t errors, std::uint
   return c;
 }
 
-// Hand computation (formula sheet 3.1, Occam-Hoeffding; union bound 11.3):
+// Hand computation (Occam-Hoeffding, Hoeffding 1963 plus a union bound):
 // m = 1000, delta = 0.06 over 3 candidates -> delta_k = 0.02, ln(1/0.02) = 3.912.
 //   A: ln|H| = 10,  300 errors: 0.30 + sqrt((10  + 3.912)/2000) = 0.383403
 //   B: ln|H| = 50,  100 errors: 0.10 + sqrt((50  + 3.912)/2000) = 0.264183
@@ -81,7 +81,8 @@ TEST(SelectTest, OccamStructureHandWorked) {
   EXPECT_THAT(got->delta_rule, HasSubstr("delta/3"));
 }
 
-// Hand computation (formula sheet 1 with the +1/m we implement, weights 11.4):
+// Hand computation (Vapnik 1998 with the +1/m we implement; SRM weights,
+// Shalev-Shwartz & Ben-David 2014 Ch. 7):
 // m = 10000, delta = 0.05, w_k = 6/(pi^2 k^2):
 //   k=1: h=10,   2500 errors, delta_1 = 0.030396: 0.25 + 0.095336 + 0.0001 = 0.345436
 //   k=2: h=100,   500 errors, delta_2 = 0.007599: 0.05 + 0.252210 + 0.0001 = 0.302310
@@ -107,9 +108,9 @@ TEST(SelectTest, VcStructureInverseSquareHandWorked) {
   EXPECT_LT(got->spent_failure_probability, 0.05);
 }
 
-// Source: formula sheet row 11.4: w_k = 6/(pi^2 k^2) for k = 1..5 are
+// Source: hand/Python evaluation (sum 1/k^2 = pi^2/6): w_k = 6/(pi^2 k^2) for k = 1..5 are
 // 0.6079, 0.1520, 0.0675, 0.0380, 0.0243 (first five sum to 0.8898).
-TEST(SelectTest, InverseSquareWeightsMatchFormulaSheet) {
+TEST(SelectTest, InverseSquareWeightsWorkedValues) {
   SelectRequest req;
   req.family = Family::kOccamKl;
   req.failure_probability = 0.1;
@@ -119,10 +120,10 @@ TEST(SelectTest, InverseSquareWeightsMatchFormulaSheet) {
   }
   auto got = SelectStructure(req);
   ASSERT_TRUE(got.ok()) << got.status();
-  const double sheet[] = {0.6079, 0.1520, 0.0675, 0.0380, 0.0243};
+  const double expected[] = {0.6079, 0.1520, 0.0675, 0.0380, 0.0243};
   for (int i = 0; i < 5; ++i) {
-    EXPECT_NEAR(got->candidates[i].delta_weight, sheet[i], 5e-5) << i;
-    EXPECT_NEAR(got->candidates[i].failure_probability, 0.1 * sheet[i], 5e-6) << i;
+    EXPECT_NEAR(got->candidates[i].delta_weight, expected[i], 5e-5) << i;
+    EXPECT_NEAR(got->candidates[i].failure_probability, 0.1 * expected[i], 5e-6) << i;
   }
   EXPECT_NEAR(got->candidates[0].delta_weight, 6.0 / (std::numbers::pi * std::numbers::pi), 1e-15);
   EXPECT_NEAR(got->spent_failure_probability, 0.1 * 0.8898, 5e-6);

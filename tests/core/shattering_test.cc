@@ -445,8 +445,8 @@ int StumpVcBruteForce(int features) {
   return vc;
 }
 
-// Source: brute force over feature orderings (bounds.md row 10.3 reports the
-// same: l = 1, 2, 3 -> 2, 3, 4).
+// Source: brute force over feature orderings (Leboeuf, LeBlanc & Marchand
+// 2020 give the same: l = 1, 2, 3 -> 2, 3, 4).
 TEST(ShatteringTest, DecisionStumps) {
   for (int l = 1; l <= 3; ++l) {
     ModelDescription m;

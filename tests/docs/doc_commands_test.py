@@ -1,7 +1,11 @@
 """Runs every riskbound command shown in README.md and docs/*.md against a real
 riskbound-server and checks its exit code and, where the docs show it, its
 output. It also checks that every relative link of those files resolves and
-that none of them cites a private note ("formula sheet", "bounds.md").
+that none of them cites a private note ("formula sheet", "bounds.md",
+"check_formulas"). The same citation check covers every file under tests/
+(including the soundness REPORT.md) and examples/, except the two files that
+implement it (this one and tests/core/texts_test.cc); `--citations-only` runs
+just that check, without a server (the ctest `private_citations`).
 
 The convention (also in DEVELOPERS.md, "Commands in the docs"):
 
@@ -37,6 +41,7 @@ The convention (also in DEVELOPERS.md, "Commands in the docs"):
 
 Usage: doc_commands_test.py --server BIN --cli BIN --source REPO_DIR
        [--stubs PYGEN_DIR] [--only FILE.md ...] [--verbose]
+       doc_commands_test.py --citations-only --source REPO_DIR
 Exit code 0 when every command and link checks out; the report lists every
 block that ran.
 """
@@ -220,19 +225,57 @@ def anchors(path):
     return out
 
 
-# Users do not have the project's private notes: the docs cite published
-# sources (authors, year, theorem), never a "formula sheet" or "bounds.md".
-PRIVATE_CITATION = re.compile(r"bounds\.md|formula sheet", re.I)
+# Users do not have the project's private notes: the docs, tests and examples
+# cite published sources (authors, year, theorem) or say how a value was
+# computed, never a "formula sheet" (also "FormulaSheet", "formula-sheet",
+# "sheet row 4.6", "sheet 11.3", "the sheet's"), "bounds.md" or its script
+# "check_formulas".
+PRIVATE_CITATION = re.compile(r"bounds\.md|formula[\s_-]*sheet|check_formulas"
+                              r"|\bsheet(?:'s)?\s+(?:rows?\b|sections?\b|\d)|\bthe sheet's\b", re.I)
+
+# Trees scanned for private citations besides the docs (relative to --source),
+# and the files exempt because they implement the check and must name it.
+CITATION_TREES = ["tests", "examples"]
+CITATION_CHECKERS = {os.path.join("tests", "docs", "doc_commands_test.py"),
+                     os.path.join("tests", "core", "texts_test.cc")}
+CITATION_SKIP_DIRS = {".git", "__pycache__", "node_modules", "build"}
+
+
+def private_citations(path, rel):
+    """Every line of one file that cites a private note, as a problem."""
+    with open(path, "rb") as f:
+        text = f.read().decode("utf-8", errors="replace")
+    problems = []
+    for number, line in enumerate(text.split("\n"), 1):
+        m = PRIVATE_CITATION.search(line)
+        if m:
+            problems.append(f"{rel}:{number}: cites a private note users do not have "
+                            f"({m.group(0)}): cite the published source")
+    return problems
+
+
+def check_trees(source):
+    """Private citations in tests/ (REPORT.md included) and examples/; returns
+    (files scanned, problems)."""
+    scanned, problems = 0, []
+    for tree in CITATION_TREES:
+        for root, dirs, files in os.walk(os.path.join(source, tree)):
+            dirs[:] = sorted(d for d in dirs if d not in CITATION_SKIP_DIRS)
+            for name in sorted(files):
+                path = os.path.join(root, name)
+                rel = os.path.relpath(path, source)
+                if rel in CITATION_CHECKERS:
+                    continue
+                scanned += 1
+                problems += private_citations(path, rel)
+    return scanned, problems
 
 
 def check_links(path, rel, source):
     problems = []
     with open(path, encoding="utf-8") as f:
         text = f.read()
-    for number, line in enumerate(text.split("\n"), 1):
-        if PRIVATE_CITATION.search(line):
-            problems.append(f"{rel}:{number}: cites a private note users do not have "
-                            f"({PRIVATE_CITATION.search(line).group(0)}): cite the published source")
+    problems += private_citations(path, rel)
     # Links inside fenced blocks are not links.
     text = re.sub(r"```.*?```", "", text, flags=re.S)
     for target in LINK.findall(text):
@@ -262,24 +305,47 @@ def self_check():
     assert split_exit('riskbound a --b "c # d"   # exit 3') == ('riskbound a --b "c # d"', 3)
     assert split_exit("riskbound a --b 1   # a note") == ("riskbound a --b 1", 0)
     assert normalize("a  \nb\n\n") == ["a", "b"]
+    for cited in ("Source: formula sheet row 4.6", "Formula Sheet 11.3", "bounds.md row 10.1",
+                  "(check_formulas.py, 5000 trials)", "TEST(X, FormulaSheetRows)",
+                  "formula-sheet values", "(union bound, sheet 11.3)", "the sheet's 7.3 bound",
+                  "sheet row 9.5"):
+        assert PRIVATE_CITATION.search(cited), cited
+    for clean in ("Source: Clopper & Pearson (1934)", "a spreadsheet of bounds", "spreadsheet 2",
+                  "scipy.stats.binom.cdf", "check_links", "bounds_md_free"):
+        assert not PRIVATE_CITATION.search(clean), clean
 
 
 def main():
     parser = argparse.ArgumentParser()
-    parser.add_argument("--server", required=True, help="the riskbound-server binary")
-    parser.add_argument("--cli", required=True, help="the riskbound binary")
+    parser.add_argument("--server", help="the riskbound-server binary")
+    parser.add_argument("--cli", help="the riskbound binary")
     parser.add_argument("--source", required=True, help="the repository root")
     parser.add_argument("--stubs", help="generated riskbound.v1 Python stubs (runs python blocks)")
     parser.add_argument("--only", nargs="*", help="documents to check, relative to --source")
     parser.add_argument("--verbose", action="store_true", help="print every command's output")
+    parser.add_argument("--citations-only", action="store_true",
+                        help="only check the docs, tests/ and examples/ for private citations")
     args = parser.parse_args()
     self_check()
     source = os.path.abspath(args.source)
 
+    scanned, citation_failures = check_trees(source)
+    print(f"tests/, examples/: {scanned} files scanned for private citations, "
+          f"{len(citation_failures)} found")
+    if args.citations_only:
+        for path in doc_files(source, args.only):
+            citation_failures += private_citations(path, os.path.relpath(path, source))
+        for f in citation_failures:
+            print(f"FAIL {f}")
+        print("OK" if not citation_failures else f"{len(citation_failures)} private citation(s)")
+        return 0 if not citation_failures else 1
+    if not args.server or not args.cli:
+        parser.error("--server and --cli are required unless --citations-only")
+
     bindir = tempfile.mkdtemp(prefix="riskbound-docs-")
     os.symlink(os.path.abspath(args.cli), os.path.join(bindir, "riskbound"))
 
-    all_commands, all_skipped, all_python, failures = [], [], [], []
+    all_commands, all_skipped, all_python, failures = [], [], [], list(citation_failures)
     for path in doc_files(source, args.only):
         rel = os.path.relpath(path, source)
         commands, skipped, read, python = parse(path, rel)

@@ -1,4 +1,4 @@
-"""Sample-size planning reference values (formula sheet section 9), by brute force.
+"""Sample-size planning reference values, by brute force.
 
 Every answer here is found by a plain linear scan over n (numpy arrays), not by
 the logarithmic search the C++ planner uses, so the two agree only if the
@@ -7,15 +7,17 @@ search and its sawtooth shortcut are right.
 Conventions (the planner's, see service/core/plan.h):
 * anticipated errors at n samples: k(n) = ceil(rate * n) in double precision;
 * "robust" answer: the first n with bound(n, k(n)) <= target and the same for
-  every n' in (n, n + ceil(2/rate)] (formula sheet 9.5; check_formulas.py's
-  n_holdout_plan uses the same rule);
+  every n' in (n, n + ceil(2/rate)] (a guard against the sawtooth of the
+  binomial tail in n);
 * pass probability at n: P(Bin(n, p) <= k_max(n)) with
-  k_max(n) = max {k : CP upper(n, k, delta) <= target} (formula sheet 9.6),
-  first n reaching the requested probability.
+  k_max(n) = max {k : CP upper(n, k, delta) <= target} (a standard power
+  calculation), first n reaching the requested probability.
 
 Clopper-Pearson upper limits: scipy.stats.beta.isf (complement inverse).
 Binomial CDF: scipy.special.bdtr. The VC and Occam bounds are written out
-here from the formula sheet (sections 1-3), independently of the C++ code;
+here from the published forms (Vapnik 1998 Ch. 4 / Burges 1998 eq. 3; Vapnik
+1998 relative deviation bound; Hoeffding 1963 and Langford 2005 for Occam),
+independently of the C++ code;
 the kl inverse by vectorized bisection (60 halvings, conservative end).
 """
 import math
@@ -85,8 +87,8 @@ def zero_failure(eps, delta):
 
 HOLDOUT_CASES = [
     # (eps, p, delta, pass probabilities)
-    (0.05, 0.03, 0.05, [0.5, 0.8, 0.95]),   # formula sheet rows 9.5 / 9.6
-    (0.01, 0.0, 0.05, [0.8]),               # row 9.4: zero expected errors
+    (0.05, 0.03, 0.05, [0.5, 0.8, 0.95]),   # 410 robust, 601 at 80% pass
+    (0.01, 0.0, 0.05, [0.8]),               # zero expected errors (Hanley & Lippman-Hand 1983)
     (0.1, 0.05, 0.05, [0.8]),
     (0.02, 0.01, 0.01, [0.9]),
     (0.3, 0.2, 0.05, [0.8]),
@@ -126,7 +128,7 @@ def holdout_plan():
     return header, rows
 
 
-# ---- training-set bounds, written out from the formula sheet ----
+# ---- training-set bounds, written out from the published forms ----
 
 def ln_growth(h, m):
     m = m.astype(float)
@@ -188,7 +190,7 @@ def occam_kl(log_h, delta):
 
 TRAINING_CASES = [
     # (family slug, capacity, bound maker, rate, target, delta)
-    ("vc-additive", 100, lambda d: vc_additive(100, d), 0.05, 0.10, 0.05),  # sheet 9.3
+    ("vc-additive", 100, lambda d: vc_additive(100, d), 0.05, 0.10, 0.05),  # vc_invert below
     ("vc-additive", 10, lambda d: vc_additive(10, d), 0.0, 0.10, 0.05),
     ("vc-additive", 50, lambda d: vc_additive(50, d), 0.02, 0.15, 0.01),
     ("vc-relative", 10, lambda d: vc_relative(10, d), 0.01, 0.05, 0.05),
@@ -233,17 +235,18 @@ def training_plan():
 
 
 def vc_invert():
-    """Formula sheet row 9.3 (R_emp = .05, h = 100, target .10, eta = .05) under
-    three conventions: the sheet's (no +1/m, empirical rate exactly .05), the
+    """Vapnik's bound inverted for m (R_emp = .05, h = 100, target .10, eta = .05)
+    under three conventions: the common form of Burges (1998) eq. 3 (no +1/m,
+    empirical rate exactly .05), the
     conservative +1/m at the exact rate, and the planner's (+1/m, ceil(.05 m)
     errors, robust to the sawtooth)."""
     h, rate, target, delta = 100, 0.05, 0.10, 0.05
-    sheet = real_rate_start(vc_additive(h, delta, plus_one_over_m=False), rate, target)
+    common = real_rate_start(vc_additive(h, delta, plus_one_over_m=False), rate, target)
     f = vc_additive(h, delta)
     exact_rate = real_rate_start(f, rate, target)
     planner = scan(f, rate, exact_rate - 1, target)
-    return (["sheet_form_samples", "plus_one_over_m_samples", "planner_samples"],
-            [[sheet, exact_rate, planner]])
+    return (["common_form_samples", "plus_one_over_m_samples", "planner_samples"],
+            [[common, exact_rate, planner]])
 
 
 FIXTURES = {

@@ -1,5 +1,5 @@
 // The capacity catalogue over the wire: EstimateCapacity against published
-// values and the formula sheet's worked rows (bounds.md sections 8 and 10),
+// values and the published capacity formulas evaluated independently in Python,
 // the error contract with field paths, and Certify taking a model description
 // wherever it takes a VC dimension.
 #include <cmath>
@@ -82,7 +82,7 @@ v1::ModelDescription Widths(v1::ModelKind kind, std::vector<std::uint64_t> width
 }
 
 // Source: Cover (1965); Shalev-Shwartz & Ben-David (2014) Thms 9.2-9.3;
-// bounds.md row 10.1: halfspaces in R^d have VC dimension d + 1 (d without
+// Burges (1998): halfspaces in R^d have VC dimension d + 1 (d without
 // the bias). d = 40 is the belt-jam detector of the demo registry.
 TEST_F(CapacityRpcTest, HalfspacesAreDPlusOne) {
   v1::ModelDescription m = Model(v1::MODEL_KIND_HALFSPACE);
@@ -97,7 +97,7 @@ TEST_F(CapacityRpcTest, HalfspacesAreDPlusOne) {
   EXPECT_THAT(e.formula(), HasSubstr("d + 1"));
   m.set_dimension(10);
   m.set_with_bias(false);
-  EXPECT_EQ(Ok(m).vc_dimension_uint64(), 10u);  // Source: bounds.md row 10.1 (homogeneous)
+  EXPECT_EQ(Ok(m).vc_dimension_uint64(), 10u);  // Source: SSBD (2014) Thm 9.2 (homogeneous)
 }
 
 // Source: Shalev-Shwartz & Ben-David (2014) Ch. 6: axis-aligned rectangles in
@@ -121,7 +121,8 @@ TEST_F(CapacityRpcTest, IntervalsAndUnions) {
   EXPECT_EQ(Ok(m).vc_dimension_uint64(), 6u);
 }
 
-// Source: bounds.md row 10.2: d = 10, p = 3 -> C(13, 3) = 286; checked here by
+// Source: Anthony & Bartlett (1999) Thm 3.5 (from memory; Dudley 1978): d = 10,
+// p = 3 -> C(13, 3) = 286; checked here by
 // counting the monomials of total degree <= 3 in 10 variables directly.
 TEST_F(CapacityRpcTest, PolynomialThresholdCountsMonomials) {
   std::uint64_t monomials = 0;
@@ -145,7 +146,7 @@ TEST_F(CapacityRpcTest, PolynomialThresholdCountsMonomials) {
   EXPECT_EQ(e.status(), v1::CAPACITY_STATUS_EXACT);
 }
 
-// Source: bounds.md rows 8.1 and 10.x: R = 1, gamma = 0.1, d = 1000 -> 101
+// Source: Burges (1998), Theorem 6 (from memory): R = 1, gamma = 0.1, d = 1000 -> 101
 // (Burges 1998 gap-tolerant classifiers), an upper bound.
 TEST_F(CapacityRpcTest, MarginLinearRow81) {
   v1::ModelDescription m = Model(v1::MODEL_KIND_MARGIN_LINEAR);
@@ -158,47 +159,50 @@ TEST_F(CapacityRpcTest, MarginLinearRow81) {
   EXPECT_THAT(e.source(), HasSubstr("Burges (1998)"));
 }
 
-// Source: bounds.md verification rows 10.3-10.8 (computed there by
-// check_formulas.py with exact integers).
-TEST_F(CapacityRpcTest, FormulaSheetRows) {
+// Source: the published capacity formulas evaluated independently with exact
+// Python integers: stumps, Leboeuf, LeBlanc & Marchand (2020); trees, the
+// counting bound (shapes x splits x leaf labels); SSBD (2014) Lemma 10.3;
+// Baum & Haussler (1989); Bartlett, Harvey, Liaw & Mehrabian (2019) Thm 7
+// (form from memory); Anthony & Bartlett (1999) Thm 8.13 (from memory).
+TEST_F(CapacityRpcTest, PublishedFormulaValues) {
   v1::ModelDescription stump = Model(v1::MODEL_KIND_DECISION_STUMP);
   stump.set_feature_count(100);
-  EXPECT_EQ(Ok(stump).vc_dimension_uint64(), 9u);  // row 10.3: l = 100 -> 9 (exact)
+  EXPECT_EQ(Ok(stump).vc_dimension_uint64(), 9u);  // Leboeuf et al. 2020: l = 100 -> 9 (exact)
   stump.set_feature_count(1000);
-  EXPECT_EQ(Ok(stump).vc_dimension_uint64(), 13u);  // row 10.3: l = 1000 -> 13
+  EXPECT_EQ(Ok(stump).vc_dimension_uint64(), 13u);  // Leboeuf et al. 2020: l = 1000 -> 13
 
   v1::ModelDescription tree = Model(v1::MODEL_KIND_DECISION_TREE);
   tree.set_leaf_count(8);
   tree.set_feature_count(20);
   v1::CapacityEstimate t = Ok(tree);
-  EXPECT_EQ(t.vc_dimension_uint64(), 92u);  // row 10.4: L = 8, d = 20 -> 92
+  EXPECT_EQ(t.vc_dimension_uint64(), 92u);  // counting bound: L = 8, d = 20 -> 92
   EXPECT_EQ(t.status(), v1::CAPACITY_STATUS_UPPER_BOUND);
   EXPECT_EQ(t.vc_dimension_lower_bound(), 8.0);
   tree.set_leaf_count(32);
   tree.set_feature_count(100);
-  EXPECT_EQ(Ok(tree).vc_dimension_uint64(), 575u);  // row 10.4: L = 32, d = 100 -> 575
+  EXPECT_EQ(Ok(tree).vc_dimension_uint64(), 575u);  // counting bound: L = 32, d = 100 -> 575
 
   v1::ModelDescription vote = Model(v1::MODEL_KIND_VOTED_ENSEMBLE);
   vote.set_member_count(100);
   vote.set_member_vc_dimension(7);
-  EXPECT_EQ(Ok(vote).vc_dimension_uint64(), 24745u);  // row 10.5 (log2 form)
+  EXPECT_EQ(Ok(vote).vc_dimension_uint64(), 24745u);  // SSBD Lemma 10.3 (log2 form)
 
   v1::ModelDescription net = Model(v1::MODEL_KIND_THRESHOLD_NETWORK);
   net.set_weight_count(1000);
   net.set_unit_count(50);
-  EXPECT_EQ(Ok(net).vc_dimension_uint64(), 14173u);  // row 10.6: W = 1000, N = 50
+  EXPECT_EQ(Ok(net).vc_dimension_uint64(), 14173u);  // Baum & Haussler: W = 1000, N = 50
 
   v1::CapacityEstimate relu = Ok(Widths(v1::MODEL_KIND_RELU_NETWORK, {10, 32, 32, 1}));
-  EXPECT_EQ(relu.vc_dimension_uint64(), 46111u);  // row 10.7: widths 10-32-32-1
+  EXPECT_EQ(relu.vc_dimension_uint64(), 46111u);  // BHLM Thm 7: widths 10-32-32-1
   EXPECT_EQ(relu.status(), v1::CAPACITY_STATUS_UPPER_BOUND);
   EXPECT_EQ(relu.vc_dimension_lower_bound(), 11.0);  // d_0 + 1: contains every halfspace
-  EXPECT_THAT(relu.formula(), HasSubstr("W = 1441"));  // row 10.7: W = 1441
+  EXPECT_THAT(relu.formula(), HasSubstr("W = 1441"));  // BHLM Thm 7: W = 1441
   EXPECT_THAT(relu.source(), HasSubstr("Bartlett, Harvey, Liaw & Mehrabian (2019)"));
 
   v1::ModelDescription sig = Model(v1::MODEL_KIND_SIGMOID_NETWORK);
   sig.set_weight_count(1000);
   sig.set_unit_count(50);
-  EXPECT_NEAR(Ok(sig).vc_dimension(), 2.514e9, 0.001e9);  // row 10.8: 2.514e+09
+  EXPECT_NEAR(Ok(sig).vc_dimension(), 2.514e9, 0.001e9);  // Anthony & Bartlett 8.13: 2.514e+09
 }
 
 // Source: shattering h points needs 2^h hypotheses (Shalev-Shwartz &
@@ -214,7 +218,8 @@ TEST_F(CapacityRpcTest, FiniteClassGivesLogCount) {
   EXPECT_NEAR(Ok(m).log_hypothesis_count(), 12.5 * std::numbers::ln2, 1e-12);
 }
 
-// Source: bounds.md 10.10 (Burges 1998): nearest neighbour and RBF kernels
+// Source: Burges (1998) for RBF kernels; nearest neighbour stores any labelled set:
+// nearest neighbour and RBF kernels
 // without a margin shatter any finite set; the answer says what to use.
 TEST_F(CapacityRpcTest, InfiniteFamiliesAnswerWithAdvice) {
   for (v1::ModelKind kind :

@@ -1,7 +1,8 @@
 // SelectStructure and PlanSamples over a loopback channel to an in-process
-// server on port 0: values against the formula sheet (rows 1.2, 9.1-9.6,
-// 11.4), a hand computation of Vapnik's bound, and Certify (an independent
-// path through the service); unreachable targets; INVALID_ARGUMENT naming the
+// server on port 0: values against published worked values and independent
+// Python computations (Vapnik 1998, Blumer et al. 1989, Clopper & Pearson
+// 1934, SRM weights 6/(pi^2 k^2)), a hand computation of Vapnik's bound, and
+// Certify (an independent path through the service); unreachable targets; INVALID_ARGUMENT naming the
 // wire field paths.
 #include <chrono>
 #include <cmath>
@@ -34,7 +35,8 @@ using ::testing::Not;
 using ::testing::UnorderedElementsAreArray;
 
 // Vapnik's additive VC bound, conservative form with +1/m, written out here
-// from the formula sheet section 1 (Vapnik 1998; Burges 1998 eq. 3):
+// from Vapnik (1998) Ch. 4 and Burges (1998) eq. (3) (+1/m: Vapnik 1998 Thm 4.1,
+// from memory):
 //   R_emp + sqrt((h (ln(2m/h) + 1) - ln(eta/4)) / m) + 1/m, clipped to 1.
 double HandVcBound(double errors, double m, double h, double eta) {
   const double conf = std::sqrt((h * (std::log(2 * m / h) + 1) - std::log(eta / 4)) / m) + 1 / m;
@@ -103,7 +105,7 @@ v1::StructureCandidate* AddVc(v1::SelectStructureRequest* req, const std::string
 // ---------------------------------------------------------------- selection
 
 // A structure whose choice is plain by hand (m = 10000, delta = .05 spread
-// uniformly, so eta = .05/3 each). Source: formula sheet section 1, computed
+// uniformly, so eta = .05/3 each). Source: Vapnik (1998), computed
 // in HandVcBound: the small class underfits (.20 + .096 = .296), the middle
 // one balances (.05 + .188 = .238), the large one pays too much capacity
 // (0 + .81 = .81). The middle one is chosen; the chosen bound equals a Certify
@@ -153,9 +155,10 @@ TEST_F(SelectPlanTest, ChoiceKnownByHandAndEqualToCertify) {
                    CertifyTraining(500, 10000, cap, v1::BOUND_FAMILY_VC_ADDITIVE, 0.05 / 3));
 }
 
-// Source: formula sheet row 1.2 (R_emp = .05, h = 100, m = 10000, eta = .05
-// -> 0.301936 with +1/m): a one-candidate structure with caller weight 1
-// spends the whole delta on it. Row 11.4: the inverse-square weights
+// Source: Vapnik (1998) / Burges (1998) eq. (3) evaluated independently in
+// Python (R_emp = .05, h = 100, m = 10000, eta = .05 -> 0.301936 with +1/m):
+// a one-candidate structure with caller weight 1 spends the whole delta on
+// it. Hand/Python evaluation: the inverse-square weights
 // 6/(pi^2 k^2) are 0.6079, 0.1520, 0.0675 for k = 1..3.
 TEST_F(SelectPlanTest, CallerWeightsAndInverseSquareWeights) {
   v1::SelectStructureRequest req;
@@ -176,20 +179,21 @@ TEST_F(SelectPlanTest, CallerWeightsAndInverseSquareWeights) {
   inv.set_family(v1::BOUND_FAMILY_VC_ADDITIVE);
   inv.set_failure_probability(0.05);  // delta_spread left unset: inverse square
   ASSERT_TRUE(Select(inv, &resp).ok());
-  const double sheet[] = {0.6079, 0.1520, 0.0675};
+  const double expected[] = {0.6079, 0.1520, 0.0675};
   for (int k = 0; k < 3; ++k) {
-    EXPECT_NEAR(resp.candidates(k).delta_weight(), sheet[k], 5e-5);
+    EXPECT_NEAR(resp.candidates(k).delta_weight(), expected[k], 5e-5);
     EXPECT_NEAR(resp.candidates(k).delta_weight(), 6 / (std::numbers::pi * std::numbers::pi *
                                                         (k + 1) * (k + 1)), 1e-15);
     EXPECT_NEAR(resp.candidates(k).risk_upper_bound(),
                 HandVcBound(resp.candidates(k).empirical_risk() * 10000, 10000,
-                            resp.candidates(k).capacity(), 0.05 * sheet[k]),
-                1e-4);  // the sheet's weights carry 4 decimals
+                            resp.candidates(k).capacity(), 0.05 * expected[k]),
+                1e-4);  // the expected weights carry 4 decimals
   }
   EXPECT_THAT(resp.delta_rule(), HasSubstr("6/(pi^2 k^2)"));
   EXPECT_EQ(resp.delta_spread(), v1::DELTA_SPREAD_INVERSE_SQUARE);
   EXPECT_DOUBLE_EQ(resp.requested_failure_probability(), 0.05);
-  EXPECT_NEAR(resp.spent_failure_probability(), 0.05 * (sheet[0] + sheet[1] + sheet[2]), 5e-6);
+  EXPECT_NEAR(resp.spent_failure_probability(),
+              0.05 * (expected[0] + expected[1] + expected[2]), 5e-6);
 }
 
 // By hand: two identical candidates have identical bounds; the tie goes to the
@@ -212,7 +216,7 @@ TEST_F(SelectPlanTest, TieGoesToEarlierAndIsFragile) {
 }
 
 // A capacity given as a model description goes through the catalogue: a
-// halfspace with bias in R^9 has VC dimension 10 (formula sheet 10.1;
+// halfspace with bias in R^9 has VC dimension 10 (Burges 1998;
 // Shalev-Shwartz & Ben-David 2014 Thm 9.3), so it selects exactly as
 // vc_dimension 10 does. A hypothesis count is used as ln |H| by the Occam
 // families (capacity_measure says so).
@@ -412,13 +416,14 @@ v1::PlanSamplesRequest Holdout(double target, double expected, double delta) {
   return req;
 }
 
-// Source: formula sheet rows 9.4-9.6 (check_formulas.py):
-//   9.4 eps = .01, delta = .05, no errors: n = 299 (0.99^299 = .04954 <= .05 <
+// Source: independent Python computation (scipy.stats.beta.isf Clopper &
+// Pearson 1934 limits, scipy.stats.binom.cdf, linear scan over n):
+//   eps = .01, delta = .05, no errors: n = 299 (0.99^299 = .04954 <= .05 <
 //       0.99^298; Hanley & Lippman-Hand 1983, the rule of three says 300);
-//   9.5 eps = .05, p = .03, delta = .05: n = 410 (bound 0.049939);
-//   9.6 the same at 80% pass probability: n = 601, P(pass) = 0.8002.
+//   eps = .05, p = .03, delta = .05: n = 410 (bound 0.049939);
+//   the same at 80% pass probability: n = 601, P(pass) = 0.8002.
 // The boundary is checked through Certify: <= eps at n, > eps at n - 1.
-TEST_F(SelectPlanTest, HoldoutPlansMatchFormulaSheet) {
+TEST_F(SelectPlanTest, HoldoutPlansWorkedValues) {
   v1::PlanSamplesResponse resp;
   ASSERT_TRUE(Plan(Holdout(0.01, 0.0, 0.05), &resp).ok());
   EXPECT_TRUE(resp.reachable());
@@ -458,12 +463,13 @@ TEST_F(SelectPlanTest, HoldoutPlansMatchFormulaSheet) {
   EXPECT_EQ(resp.additional_sample_count(), 351u);
 }
 
-// Source: the brute-force scan of fixture vc_invert.csv (scipy, formula sheet
-// row 9.3 inputs R_emp = .05, h = 100, target .10, delta = .05): the planner
+// Source: the brute-force scan of fixture vc_invert.csv (scipy; Vapnik 1998
+// bound, inputs R_emp = .05, h = 100, target .10, delta = .05): the planner
 // answer counting ceil(.05 m) errors; checked at the boundary through
-// Certify. Row 9.1 (Blumer, Ehrenfeucht, Haussler & Warmuth 1989,
-// Thm 2.1(ii)(b)): eps = .1, h = 1 -> 562 and eps = .05, h = 10 -> 12836;
-// row 9.2 (Shalev-Shwartz & Ben-David 2014, Cor. 2.3 / 4.6): |H| = 1e6,
+// Certify. Blumer, Ehrenfeucht, Haussler & Warmuth (1989),
+// Thm 2.1(ii)(b) (from memory), evaluated in Python: eps = .1, h = 1 -> 562
+// and eps = .05, h = 10 -> 12836;
+// Shalev-Shwartz & Ben-David (2014), Cor. 2.3 / 4.6: |H| = 1e6,
 // eps = .05 -> 337 realizable, 14004 agnostic. All labelled comparison only.
 TEST_F(SelectPlanTest, TrainingPlansAndComparisonReferences) {
   v1::PlanSamplesRequest req;

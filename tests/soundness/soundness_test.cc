@@ -2,8 +2,8 @@
 // scenario at a few thousand simulated datasets, asserting for every family
 //   coverage >= 1 - delta - 3 sqrt(delta (1 - delta) / T)
 // and, where the sampling distribution is a single binomial, that the EXACT
-// coverage (binomial pmf from Boost.Math) is >= 1 - delta and agrees with the
-// formula sheet's published value. The full mode is soundness_report.cc.
+// coverage (binomial pmf from Boost.Math) is >= 1 - delta and agrees with an
+// independent scipy computation. The full mode is soundness_report.cc.
 #include <cmath>
 #include <cstdint>
 #include <functional>
@@ -32,8 +32,9 @@ void CheckRows(const std::vector<CoverageRow>& rows) {
     // The criteria (CheckRow, simulate.h): Monte-Carlo floor
     // 1 - delta - 3 sqrt(delta (1 - delta) / T); exact coverage >= 1 - delta;
     // simulation within 4 standard errors of the exact binomial coverage
-    // (Boost.Math pmf); exact coverage equal to the formula sheet's row 4.6
-    // values to 4 decimals (Source: bounds.md row 4.6, check_formulas.py).
+    // (Boost.Math pmf); exact coverage equal to the reference values to 4
+    // decimals (Source: exact coverage sum computed independently in Python
+    // with scipy.stats.binom.pmf, simulate.cc).
     for (const std::string& failure : CheckRow(r)) ADD_FAILURE() << failure << "\n  " << text;
   }
 }
