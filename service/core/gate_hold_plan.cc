@@ -386,7 +386,7 @@ struct RateTestWords {
   std::string promote;
   // "a REJECT", "slice 'x' exceeding its limit (a REJECT)"
   std::string reject;
-  // "the risk test", "slice 'x''s test"
+  // "the risk test", "the test of slice 'x'"
   std::string test;
 };
 
@@ -531,11 +531,11 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanSlices(const Measured& m, doubl
     }
     const std::string quoted = absl::StrCat("'", s.slice_name, "'");
     RateTestWords words;
-    words.rate = absl::StrCat("slice ", quoted, "'s observed error rate");
+    words.rate = absl::StrCat("the observed error rate of slice ", quoted);
     words.samples = absl::StrCat("labelled hold-out samples from slice ", quoted);
     words.promote = absl::StrCat("slice ", quoted, " clearing its limit");
     words.reject = absl::StrCat("slice ", quoted, " exceeding its limit (a REJECT)");
-    words.test = absl::StrCat("slice ", quoted, "'s test");
+    words.test = absl::StrCat("the test of slice ", quoted);
     std::vector<std::string> sentence;
     const double half = s.failure_probability / 2.0;
     absl::StatusOr<std::optional<std::uint64_t>> more =
