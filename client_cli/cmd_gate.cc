@@ -94,7 +94,8 @@ constexpr char kUsage[] =
     "riskbound gate --max-risk E --failure-probability D --candidate-id ID\n"
     "               --holdout-error-count K --holdout-sample-count N [policy and champion flags]\n"
     "       riskbound gate --policy policy.json --candidate model.json [--champion champion.json]\n"
-    "               [the same flags, each overriding its field of the files] [--output table|json]";
+    "               [the same flags, each overriding its field of the files] [--output table|json]\n"
+    "       riskbound gate ... --slices slices.csv [--max-slice-risk X] [--slice-sharing bonferroni|sidak]";
 constexpr char kSummary[] =
     "Asks the server whether a candidate model may be promoted. A CI step gives everything as\n"
     "flags; files give the same fields, and a flag overrides the same field of a file. Each flag\n"
