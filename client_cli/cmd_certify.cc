@@ -59,7 +59,7 @@ constexpr char kUsage[] =
     "riskbound certify --holdout-error-count K --holdout-sample-count N\n"
     "                  [--failure-probability D] [--families NAME[,NAME]|all] [options]\n"
     "       riskbound certify --errors K --samples N [--delta D] [--family NAME]   (short aliases)\n"
-    "       riskbound certify --slices slices.csv [--slice-sharing bonferroni|sidak] [evidence flags]\n"
+    "       riskbound certify --slices slices.csv [--slice-sharing bonferroni|sidak] [...]\n"
     "       riskbound certify --input request.json [options]";
 constexpr char kSummary[] =
     "Asks the server for certificates: upper bounds on the model's true error (or, for a\n"

@@ -95,7 +95,8 @@ constexpr char kUsage[] =
     "               --holdout-error-count K --holdout-sample-count N [policy and champion flags]\n"
     "       riskbound gate --policy policy.json --candidate model.json [--champion champion.json]\n"
     "               [the same flags, each overriding its field of the files] [--output table|json]\n"
-    "       riskbound gate ... --slices slices.csv [--max-slice-risk X] [--slice-sharing bonferroni|sidak]";
+    "       riskbound gate ... --slices slices.csv [--max-slice-risk X]\n"
+    "               [--slice-sharing bonferroni|sidak]";
 constexpr char kSummary[] =
     "Asks the server whether a candidate model may be promoted. A CI step gives everything as\n"
     "flags; files give the same fields, and a flag overrides the same field of a file. Each flag\n"
@@ -300,7 +301,9 @@ std::optional<std::string> ApplyFlags(const ParsedArgs& args, const SliceFlags& 
   auto max_slice_risk = args.GetDouble("max-slice-risk");
   if (!max_slice_risk.ok()) return std::string(max_slice_risk.status().message());
   if (max_slice_risk->has_value()) req->mutable_policy()->set_max_slice_risk(**max_slice_risk);
-  if (slices.rule.has_value()) req->mutable_policy()->mutable_slice_sharing()->set_rule(*slices.rule);
+  if (slices.rule.has_value()) {
+    req->mutable_policy()->mutable_slice_sharing()->set_rule(*slices.rule);
+  }
   if (slices.file.has_value()) {
     // Like every flag, --slices overrides its fields of the files: the
     // candidate's slices, and (with a max_risk column) the per-slice limits.
@@ -415,7 +418,9 @@ void PrintSlices(const v1::GatePolicy& policy, const v1::GateResponse& r, std::o
   }
   out << Indented(table);
   out << "\nSlice reasons:\n";
-  for (const v1::SliceCheck* c : rows) out << "  * " << c->slice_name() << ": " << c->reason() << "\n";
+  for (const v1::SliceCheck* c : rows) {
+    out << "  * " << c->slice_name() << ": " << c->reason() << "\n";
+  }
 }
 
 void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostream& out) {

@@ -37,8 +37,8 @@ std::vector<OptionSpec> SliceFlagSpecs();
 
 // What --slices and --slice-sharing gave.
 struct SliceFlags {
-  std::optional<SlicesFile> file;            // --slices
-  std::optional<v1::SliceShareRule> rule;    // --slice-sharing
+  std::optional<SlicesFile> file;          // --slices
+  std::optional<v1::SliceShareRule> rule;  // --slice-sharing
 };
 
 // ReadSliceFlags

@@ -2,23 +2,23 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstring>
 #include <cstdint>
+#include <cstring>
 #include <map>
 #include <memory>
 #include <utility>
 
 #include "absl/strings/ascii.h"
+#include "absl/strings/match.h"
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "absl/strings/str_split.h"
-#include "absl/strings/match.h"
 #include "absl/strings/strip.h"
-#include "client_cli/json_io.h"
-#include "client_cli/names.h"
 #include "client_cli/command_start.h"
 #include "client_cli/exit_codes.h"
+#include "client_cli/json_io.h"
+#include "client_cli/names.h"
 #include "client_cli/registry_rows.h"
 #include "client_cli/shared_flags.h"
 
@@ -193,12 +193,12 @@ absl::StatusOr<SlicesFile> ParseCsv(const std::string& text, const std::string& 
     }
     if (cells->size() != columns.size()) {
       // Where the first missing cell would start, or the first extra one.
-      const std::uint64_t at = cells->size() < columns.size() ? line.size() + 1
+      const std::uint64_t at = cells->size() < columns.size()         ? line.size() + 1
                                : columns.size() < cell_columns.size() ? cell_columns[columns.size()]
-                                                                       : 1;
+                                                                      : 1;
       return Bad(source, {line_number, at}, "",
-                 absl::StrCat(cells->size(), " cells where the header has ", columns.size(),
-                              " (", absl::StrJoin(columns, ","), ")"));
+                 absl::StrCat(cells->size(), " cells where the header has ", columns.size(), " (",
+                              absl::StrJoin(columns, ","), ")"));
     }
     RawSlice s;
     s.row = {line_number, 1};
@@ -215,8 +215,9 @@ absl::StatusOr<SlicesFile> ParseCsv(const std::string& text, const std::string& 
   }
   if (columns.empty()) {
     return absl::InvalidArgumentError(
-        absl::StrCat(source, ": empty (a header row name,error_count,sample_count[,max_risk] "
-                             "and one row per slice)"));
+        absl::StrCat(source,
+                     ": empty (a header row name,error_count,sample_count[,max_risk] "
+                     "and one row per slice)"));
   }
   return Convert(source, raw, has_max_risk);
 }
@@ -256,8 +257,8 @@ class JsonReader {
   absl::Status Error(absl::string_view what) { return Bad(source_, Here(), "", what); }
 
   void SkipSpace() {
-    while (i_ < s_.size() && (s_[i_] == ' ' || s_[i_] == '\t' || s_[i_] == '\r' ||
-                              s_[i_] == '\n')) {
+    while (i_ < s_.size() &&
+           (s_[i_] == ' ' || s_[i_] == '\t' || s_[i_] == '\r' || s_[i_] == '\n')) {
       if (s_[i_] == '\n') {
         ++line_;
         line_start_ = i_ + 1;
@@ -289,9 +290,9 @@ class JsonReader {
     if (c == '-' || absl::ascii_isdigit(static_cast<unsigned char>(c))) {
       v->kind = JsonValue::kNumber;
       const std::size_t start = i_;
-      while (i_ < s_.size() && (absl::ascii_isdigit(static_cast<unsigned char>(s_[i_])) ||
-                                s_[i_] == '-' || s_[i_] == '+' || s_[i_] == '.' ||
-                                s_[i_] == 'e' || s_[i_] == 'E')) {
+      while (i_ < s_.size() &&
+             (absl::ascii_isdigit(static_cast<unsigned char>(s_[i_])) || s_[i_] == '-' ||
+              s_[i_] == '+' || s_[i_] == '.' || s_[i_] == 'e' || s_[i_] == 'E')) {
         ++i_;
       }
       v->text = s_.substr(start, i_ - start);
@@ -302,8 +303,8 @@ class JsonReader {
       }
       return absl::OkStatus();
     }
-    return Error(absl::StrCat("unexpected '", std::string(1, c),
-                              "' (check brackets, quotes and commas)"));
+    return Error(
+        absl::StrCat("unexpected '", std::string(1, c), "' (check brackets, quotes and commas)"));
   }
 
   absl::Status String(std::string* out) {
@@ -344,9 +345,7 @@ class JsonReader {
           AppendUtf8(code, out);
           break;
         }
-        default:
-          i_ -= 2;
-          return Error(absl::StrCat("unknown escape '\\", std::string(1, e), "'"));
+        default: i_ -= 2; return Error(absl::StrCat("unknown escape '\\", std::string(1, e), "'"));
       }
     }
     if (i_ >= s_.size()) return Error("a string is not closed");
@@ -455,8 +454,9 @@ class JsonReader {
 absl::Status SliceFromJson(const std::string& source, const JsonValue& v, RawSlice* s,
                            bool* has_max_risk) {
   if (v.kind != JsonValue::kObject) {
-    return Bad(source, v.at, "", "a slice must be an object {\"name\": ..., \"error_count\": ..., "
-                                 "\"sample_count\": ...}");
+    return Bad(source, v.at, "",
+               "a slice must be an object {\"name\": ..., \"error_count\": ..., "
+               "\"sample_count\": ...}");
   }
   s->row = v.at;
   for (const auto& [key_at, value] : v.members) {
@@ -481,7 +481,8 @@ absl::Status SliceFromJson(const std::string& source, const JsonValue& v, RawSli
       continue;
     }
     if (column == kName) {
-      if (value.kind != JsonValue::kString) return Bad(source, value.at, column, "must be a string");
+      if (value.kind != JsonValue::kString)
+        return Bad(source, value.at, column, "must be a string");
       s->name = value.text;
       continue;
     }
@@ -529,6 +530,9 @@ absl::StatusOr<SlicesFile> ParseJsonSlices(const std::string& text, const std::s
 }  // namespace
 
 absl::StatusOr<SlicesFile> ParseSlices(const std::string& text, const std::string& source) {
+  // A spreadsheet's UTF-8 byte order mark is not part of the first column's
+  // name (columns stay counted in characters after it).
+  if (absl::StartsWith(text, "\xEF\xBB\xBF")) return ParseSlices(text.substr(3), source);
   const absl::string_view body = absl::StripLeadingAsciiWhitespace(text);
   if (!body.empty() && (body[0] == '[' || body[0] == '{')) return ParseJsonSlices(text, source);
   return ParseCsv(text, source);
@@ -569,9 +573,9 @@ std::optional<int> ReadSliceFlags(const std::string& command, const ParsedArgs& 
   if (auto word = args.Get("slice-sharing")) {
     out->rule = SliceShareRuleFromName(*word);
     if (!out->rule.has_value()) {
-      return UsageError(err, command,
-                        absl::StrCat("--slice-sharing: '", *word,
-                                     "' is no share rule (bonferroni or sidak)"));
+      return UsageError(
+          err, command,
+          absl::StrCat("--slice-sharing: '", *word, "' is no share rule (bonferroni or sidak)"));
     }
   }
   if (auto path = args.Get("slices")) {

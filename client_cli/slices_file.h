@@ -11,7 +11,8 @@
 //     numbers or decimal strings (the protobuf JSON mapping of uint64);
 //     max_risk a number, or null for no limit.
 // Every bad row is an error naming the source, its line and its column; no
-// row is ever dropped. Blank lines are not rows.
+// row is ever dropped. Blank lines are not rows; a leading UTF-8 byte order
+// mark is skipped.
 #ifndef RISKBOUND_CLIENT_CLI_SLICES_FILE_H_
 #define RISKBOUND_CLIENT_CLI_SLICES_FILE_H_
 

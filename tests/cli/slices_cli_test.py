@@ -25,7 +25,7 @@ EXAMPLES = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", 
 
 def write(name, text):
     path = os.path.join(DIR, name)
-    with open(path, "w") as f:
+    with open(path, "w", encoding="utf-8") as f:
         f.write(text)
     return path
 
@@ -87,8 +87,9 @@ class SliceFileFormsTest(unittest.TestCase):
             "array.json": json.dumps(objects, indent=1),
             "object.json": json.dumps({"slices": camel}),
             "lines.jsonl": "".join(json.dumps(o) + "\n" for o in objects),
-            # Columns in another order, CRLF line ends, quoted cells, blank lines.
-            "reordered.csv": "sample_count,name,error_count\r\n\r\n" + "".join(
+            # A spreadsheet's byte order mark, columns in another order,
+            # CRLF line ends, quoted cells, blank lines.
+            "reordered.csv": "\ufeffsample_count,name,error_count\r\n\r\n" + "".join(
                 f'{m},"{n}",{k}\r\n' for n, k, m in SLICES),
         }
         for name, text in forms.items():
