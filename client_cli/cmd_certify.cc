@@ -20,6 +20,7 @@
 #include "client_cli/json_io.h"
 #include "client_cli/model_flags.h"
 #include "client_cli/names.h"
+#include "client_cli/slices_file.h"
 #include "client_cli/format.h"
 #include "client_cli/table.h"
 
@@ -58,6 +59,7 @@ constexpr char kUsage[] =
     "riskbound certify --holdout-error-count K --holdout-sample-count N\n"
     "                  [--failure-probability D] [--families NAME[,NAME]|all] [options]\n"
     "       riskbound certify --errors K --samples N [--delta D] [--family NAME]   (short aliases)\n"
+    "       riskbound certify --slices slices.csv [--slice-sharing bonferroni|sidak] [...]\n"
     "       riskbound certify --input request.json [options]";
 constexpr char kSummary[] =
     "Asks the server for certificates: upper bounds on the model's true error (or, for a\n"
@@ -69,7 +71,10 @@ constexpr char kSummary[] =
     "...); a PAC-Bayes posterior (--kl-divergence ...); a compression scheme\n"
     "(--compression-size ...); any combination of them; or a whole riskbound.v1.CertifyRequest\n"
     "in the protobuf JSON mapping with --input (- for stdin), the only way to send raw\n"
-    "relabel-and-retrain draws (evidence.relabel, docs/capacity-from-data.md). Each flag is\n"
+    "relabel-and-retrain draws (evidence.relabel, docs/capacity-from-data.md). --slices FILE\n"
+    "adds per-slice hold-out counts (evidence.slices, CSV or JSON, docs/slices.md): a\n"
+    "certificate per slice, worst first, and the worst-slice statement, the slices sharing\n"
+    "their delta by --slice-sharing bonferroni|sidak (slice_sharing.rule). Each flag is\n"
     "named after its field of the request (evidence.holdout.error_count ->\n"
     "--holdout-error-count); the older spellings (listed as \"also\") still work. Families are\n"
     "named by their CLI word (holdout-kl) or their enum name (BOUND_FAMILY_HOLDOUT_KL_CHERNOFF,\n"
@@ -162,11 +167,12 @@ std::vector<OptionSpec> Specs() {
                                   "(listed.families, all_applicable)", true, {"family"}},
       {"delta-weights", "W[,W]", "shares of delta of the listed families, summing to <= 1 "
                                  "(listed.delta_weights)", false, {"weights"}},
-      {"input", "FILE", "read the request from a JSON file (- for stdin)"},
-      {"output", "table|json", "output format (default table)"},
   }) {
     specs.push_back(s);
   }
+  for (OptionSpec& s : SliceFlagSpecs()) specs.push_back(s);
+  specs.push_back({"input", "FILE", "read the request from a JSON file (- for stdin)"});
+  specs.push_back({"output", "table|json", "output format (default table)"});
   for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
   return specs;
 }
@@ -256,11 +262,14 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
     return std::string("--size-fixed-in-advance needs --compression-size");
   }
   if (!f.Has("holdout-error-count") && !training && !f.Has("mean-loss") && !f.Has("kl-divergence") &&
-      !f.Has("compression-size")) {
+      !f.Has("compression-size") && !args.Has("slices")) {
     return std::string("give evidence: --holdout-error-count/--holdout-sample-count, --training-error-count/--training-sample-count with a "
                        "capacity or --empirical-rademacher, --mean-loss/--loss-sample-count, --kl-divergence/"
                        "--gibbs-empirical-risk/--pac-bayes-sample-count, --compression-size/--compression-sample-count/"
-                       "--outside-error-count, or --input FILE");
+                       "--outside-error-count, --slices FILE, or --input FILE");
+  }
+  if (args.Has("slice-sharing") && !args.Has("slices")) {
+    return std::string("--slice-sharing needs --slices FILE");
   }
 
   v1::Evidence* e = req->mutable_evidence();
@@ -342,7 +351,53 @@ std::optional<std::string> RequestFromFlags(const ParsedArgs& args, v1::CertifyR
 }
 
 
-void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
+// The slices' certificates, worst first, the worst-slice statement and the
+// share rule.
+void PrintSlices(const v1::CertifyRequest& req, const v1::SliceSummary& s, std::ostream& out) {
+  std::map<std::string, const v1::SliceEvidence*> counts;
+  for (const v1::SliceEvidence& e : req.evidence().slices()) counts[e.name()] = &e;
+  std::vector<const v1::SliceCertificate*> rows;
+  for (const v1::SliceCertificate& c : s.slice_certificates()) rows.push_back(&c);
+  // Worst first (the server's order; kept here whatever the server sends).
+  std::stable_sort(rows.begin(), rows.end(), [](const auto* a, const auto* b) {
+    if (a->certificate().risk_upper_bound() != b->certificate().risk_upper_bound()) {
+      return a->certificate().risk_upper_bound() > b->certificate().risk_upper_bound();
+    }
+    return a->slice_name() < b->slice_name();
+  });
+  out << "Slices, worst first (hold-out exact binomial, one certificate per slice):\n\n";
+  Table table({"slice_name", "error_count", "sample_count", "empirical", "upper", "lower",
+               "failure_probability"});
+  for (const v1::SliceCertificate* row : rows) {
+    const v1::Certificate& c = row->certificate();
+    const auto it = counts.find(row->slice_name());  // the counts as sent
+    table.AddRow({row->slice_name(),
+                  it == counts.end() ? "-" : absl::StrCat(it->second->error_count()),
+                  it == counts.end() ? "-" : absl::StrCat(it->second->sample_count()),
+                  FormatObserved(c.empirical_risk()),
+                  FormatUpper(c.risk_upper_bound()),
+                  c.has_risk_lower_bound() ? FormatLower(c.risk_lower_bound()) : "-",
+                  FormatFailureProbability(c.failure_probability())});
+  }
+  out << table.Render() << "\n";
+  out << absl::StrFormat("Worst slice: %s, true error <= %s\n", s.worst_slice_name(),
+                         FormatUpper(s.worst_slice_upper_bound()));
+  out << "Statement: " << s.statement() << "\n";
+  out << absl::StrFormat("Share rule: %s; the slices spent %s of their %s\n",
+                         SliceShareRuleWord(s.rule()),
+                         FormatFailureProbability(s.spent_failure_probability()),
+                         FormatFailureProbability(s.failure_probability()));
+}
+
+void PrintTable(const v1::CertifyRequest& req, const v1::CertifyResponse& r, std::ostream& out) {
+  if (r.certificates_size() == 0 && r.has_slices()) {
+    const double requested = r.delta_accounting().requested_failure_probability();
+    out << absl::StrFormat("Slice certificates (requested: confidence >= %s, delta = %s)\n\n",
+                           FormatConfidence(requested), FormatInput(requested));
+    PrintSlices(req, r.slices(), out);
+    PrintCautions(r.cautions(), out);
+    return;
+  }
   const double requested = r.delta_accounting().requested_failure_probability();
   int loss_count = 0;
   for (const v1::Certificate& c : r.certificates()) loss_count += c.has_loss_range() ? 1 : 0;
@@ -392,6 +447,10 @@ void PrintTable(const v1::CertifyResponse& r, std::ostream& out) {
     }
     for (const std::string& note : c.notes()) out << "Note (" << c.family_name() << "): " << note << "\n";
   }
+  if (r.has_slices()) {
+    out << "\n";
+    PrintSlices(req, r.slices(), out);
+  }
   PrintCautions(r.cautions(), out);
 }
 
@@ -421,6 +480,18 @@ int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ost
   } else {
     if (auto problem = RequestFromFlags(start.args, &request)) return Usage(err, *problem);
     if (auto problem = ApplyFamilies(start.args, &request)) return Usage(err, *problem);
+    SliceFlags slices;
+    if (auto code = ReadSliceFlags("certify", start.args, &slices, err)) return *code;
+    if (slices.file.has_value()) {
+      for (const v1::SliceEvidence& s : slices.file->slices) {
+        *request.mutable_evidence()->add_slices() = s;
+      }
+      if (slices.file->has_max_risk) {
+        err << "riskbound certify: note: the max_risk column of " << *start.args.Get("slices")
+            << " is read by `riskbound gate` only (per-slice limits); certify ignores it\n";
+      }
+    }
+    if (slices.rule.has_value()) request.mutable_slice_sharing()->set_rule(*slices.rule);
   }
 
   RiskBoundClient client(start.client);
@@ -430,7 +501,7 @@ int RunCertify(const std::vector<std::string>& args, std::ostream& out, std::ost
   if (start.json) {
     out << ToJson(response);
   } else {
-    PrintTable(response, out);
+    PrintTable(request, response, out);
   }
   return kExitOk;
 }

@@ -18,6 +18,7 @@
 #include "client_cli/shared_flags.h"
 #include "client_cli/json_io.h"
 #include "client_cli/names.h"
+#include "client_cli/slices_file.h"
 #include "client_cli/format.h"
 #include "client_cli/table.h"
 #include "google/protobuf/descriptor.h"
@@ -93,7 +94,9 @@ constexpr char kUsage[] =
     "riskbound gate --max-risk E --failure-probability D --candidate-id ID\n"
     "               --holdout-error-count K --holdout-sample-count N [policy and champion flags]\n"
     "       riskbound gate --policy policy.json --candidate model.json [--champion champion.json]\n"
-    "               [the same flags, each overriding its field of the files] [--output table|json]";
+    "               [the same flags, each overriding its field of the files] [--output table|json]\n"
+    "       riskbound gate ... --slices slices.csv [--max-slice-risk X]\n"
+    "               [--slice-sharing bonferroni|sidak]";
 constexpr char kSummary[] =
     "Asks the server whether a candidate model may be promoted. A CI step gives everything as\n"
     "flags; files give the same fields, and a flag overrides the same field of a file. Each flag\n"
@@ -117,7 +120,12 @@ constexpr char kSummary[] =
     "bound is > max_risk or the candidate is worse than the champion beyond max_regression with\n"
     "confidence; HOLD otherwise or below min_holdout_sample_count, with the number of extra\n"
     "labelled hold-out samples expected to settle it. All bounds hold together with\n"
-    "probability >= 1 - failure_probability (the split is printed). Every answer carries an\n"
+    "probability >= 1 - failure_probability (the split is printed). With slices (--slices\n"
+    "FILE or candidate.evidence.slices: per-slice hold-out counts, docs/slices.md) and a slice\n"
+    "limit (--max-slice-risk X, or a max_risk column of the file: policy.slice_max_risks),\n"
+    "every slice must also clear its limit: a slice whose lower bound is above it REJECTs,\n"
+    "undecided slices HOLD with a per-slice plan; --slice-sharing bonferroni|sidak\n"
+    "(policy.slice_sharing.rule) shares the slices' delta. Every answer carries an\n"
     "audit record: SHA-256 of the canonical request, families and delta spent, time, cautions.\n"
     "Printed bounds round outward (upper up, lower down, deltas up); the reasons are the\n"
     "server's sentences.\n"
@@ -160,6 +168,9 @@ std::vector<OptionSpec> Specs() {
       {"holdout-sample-count", "N", "the candidate's hold-out examples "
                                     "(candidate.evidence.holdout.sample_count)", false,
        {"sample-count", "samples"}},
+      {"max-slice-risk", "X", "highest tolerated true error of every slice, in (0,1) "
+                              "(policy.max_slice_risk); a max_risk column of --slices sets "
+                              "per-slice limits (policy.slice_max_risks)"},
       {"champion-id", "ID", "the model in service (champion.champion_id)"},
       {"both-wrong-count", "K", "examples both models get wrong (champion.paired.both_wrong_count)"},
       {"only-champion-wrong-count", "K", "examples only the champion gets wrong "
@@ -169,6 +180,7 @@ std::vector<OptionSpec> Specs() {
       {"output", "table|json", "output format (default table)"},
   };
   for (OptionSpec& s : rest) specs.push_back(s);
+  for (OptionSpec& s : SliceFlagSpecs()) specs.push_back(s);
   for (OptionSpec& s : ConnectionOptions()) specs.push_back(s);
   return specs;
 }
@@ -283,8 +295,27 @@ bool ReadMessage(const std::string& file, const std::string& root,
 
 // Applies the inline flags to `req`, each overriding its field (files were
 // read first). Returns a usage message on error.
-std::optional<std::string> ApplyFlags(const ParsedArgs& args, v1::GateRequest* req) {
+std::optional<std::string> ApplyFlags(const ParsedArgs& args, const SliceFlags& slices,
+                                      v1::GateRequest* req) {
   if (auto problem = ApplyPolicyFlags(args, req->mutable_policy())) return problem;
+  auto max_slice_risk = args.GetDouble("max-slice-risk");
+  if (!max_slice_risk.ok()) return std::string(max_slice_risk.status().message());
+  if (max_slice_risk->has_value()) req->mutable_policy()->set_max_slice_risk(**max_slice_risk);
+  if (slices.rule.has_value()) {
+    req->mutable_policy()->mutable_slice_sharing()->set_rule(*slices.rule);
+  }
+  if (slices.file.has_value()) {
+    // Like every flag, --slices overrides its fields of the files: the
+    // candidate's slices, and (with a max_risk column) the per-slice limits.
+    auto* list = req->mutable_candidate()->mutable_evidence()->mutable_slices();
+    list->Clear();
+    for (const v1::SliceEvidence& s : slices.file->slices) *list->Add() = s;
+    if (slices.file->has_max_risk) {
+      auto* limits = req->mutable_policy()->mutable_slice_max_risks();
+      limits->Clear();
+      for (const v1::SliceMaxRisk& m : slices.file->max_risks) *limits->Add() = m;
+    }
+  }
 
   v1::GateCandidate* candidate = req->mutable_candidate();
   if (auto id = args.Get("candidate-id")) candidate->set_id(*id);
@@ -349,6 +380,49 @@ std::string Indented(const Table& table) {
   return out;
 }
 
+const char* SliceOutcomeWord(v1::SliceOutcome outcome) {
+  switch (outcome) {
+    case v1::SLICE_OUTCOME_CLEARS:
+      return "CLEARS";
+    case v1::SLICE_OUTCOME_EXCEEDS:
+      return "EXCEEDS";
+    case v1::SLICE_OUTCOME_UNDECIDED:
+      return "UNDECIDED";
+    default:
+      return "UNSPECIFIED";
+  }
+}
+
+// The slices against their limits, worst first, and each slice's reason.
+void PrintSlices(const v1::GatePolicy& policy, const v1::GateResponse& r, std::ostream& out) {
+  std::vector<const v1::SliceCheck*> rows;
+  for (const v1::SliceCheck& c : r.slices()) rows.push_back(&c);
+  // Worst first: largest risk_upper_bound - max_risk, ties by name (the
+  // server's order; kept here whatever the server sends).
+  std::stable_sort(rows.begin(), rows.end(), [](const auto* a, const auto* b) {
+    const double da = a->risk_upper_bound() - a->max_risk();
+    const double db = b->risk_upper_bound() - b->max_risk();
+    if (da != db) return da > db;
+    return a->slice_name() < b->slice_name();
+  });
+  out << absl::StrFormat("\nSlices, worst first (%s sharing of the slices' delta):\n",
+                         SliceShareRuleWord(policy.slice_sharing().rule()));
+  Table table({"slice_name", "outcome", "max_risk", "errors/samples", "lower", "upper",
+               "additional_sample_count"});
+  for (const v1::SliceCheck* c : rows) {
+    table.AddRow({c->slice_name(), SliceOutcomeWord(c->outcome()), FormatInput(c->max_risk()),
+                  absl::StrCat(c->error_count(), "/", c->sample_count()),
+                  FormatLower(c->risk_lower_bound()), FormatUpper(c->risk_upper_bound()),
+                  c->has_additional_sample_count() ? absl::StrCat(c->additional_sample_count())
+                                                   : "-"});
+  }
+  out << Indented(table);
+  out << "\nSlice reasons:\n";
+  for (const v1::SliceCheck* c : rows) {
+    out << "  * " << c->slice_name() << ": " << c->reason() << "\n";
+  }
+}
+
 void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostream& out) {
   const v1::GatePolicy& policy = req.policy();
   const double epsilon = policy.max_risk();
@@ -403,7 +477,12 @@ void PrintTable(const v1::GateRequest& req, const v1::GateResponse& r, std::ostr
            "  evidence that the candidate is better; it is not the probability that it is better.\n";
   }
 
-  out << "\nFailure probability ledger (union bound: all bounds above hold together):\n";
+  if (r.slices_size() > 0) PrintSlices(policy, r, out);
+
+  out << (policy.slice_sharing().rule() == v1::SLICE_SHARE_RULE_SIDAK && r.slices_size() > 0
+              ? "\nFailure probability ledger (union bound, the slice entries combined by "
+                "Sidak: all bounds above hold together):\n"
+              : "\nFailure probability ledger (union bound: all bounds above hold together):\n");
   Table ledger({"test", "failure probability"});
   for (const v1::DeltaSpend& d : r.delta_ledger()) {
     ledger.AddRow({d.test(), FormatFailureProbability(d.failure_probability())});
@@ -475,7 +554,9 @@ int RunGate(const std::vector<std::string>& args, std::ostream& out, std::ostrea
     ok = ReadMessage(*champion, "champion", request.mutable_champion(), err) && ok;
   }
   if (!ok) return kExitInvalidInput;
-  if (auto problem = ApplyFlags(start.args, &request)) return Usage(err, *problem);
+  SliceFlags slices;
+  if (auto code = ReadSliceFlags("gate", start.args, &slices, err)) return *code;
+  if (auto problem = ApplyFlags(start.args, slices, &request)) return Usage(err, *problem);
 
   RiskBoundClient client(start.client);
   v1::GateResponse response;

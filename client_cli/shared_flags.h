@@ -7,7 +7,10 @@
 #include <string>
 #include <vector>
 
+#include <ostream>
+
 #include "client_cli/args.h"
+#include "client_cli/slices_file.h"
 #include "riskbound/v1/certify.pb.h"
 #include "riskbound/v1/gate.pb.h"
 
@@ -27,6 +30,25 @@ std::optional<std::string> ApplyPolicyFlags(const ParsedArgs& args, v1::GatePoli
 // Applies --families (a list, or "all") and --delta-weights to `req`'s
 // family_choice. Returns a usage message on error.
 std::optional<std::string> ApplyFamilies(const ParsedArgs& args, v1::CertifyRequest* req);
+
+// SliceFlagSpecs
+// --slices FILE and --slice-sharing bonferroni|sidak (certify, gate).
+std::vector<OptionSpec> SliceFlagSpecs();
+
+// What --slices and --slice-sharing gave.
+struct SliceFlags {
+  std::optional<SlicesFile> file;          // --slices
+  std::optional<v1::SliceShareRule> rule;  // --slice-sharing
+};
+
+// ReadSliceFlags
+// Reads --slices (the file, slices_file.h) and --slice-sharing. Returns
+// nullopt when they are fine (or absent); else the exit code after writing
+// "riskbound <command>: ..." to `err`: kExitUsage for a bad --slice-sharing
+// word, kExitInvalidInput for a file that cannot be read or has a bad row
+// (its line and column named).
+std::optional<int> ReadSliceFlags(const std::string& command, const ParsedArgs& args,
+                                  SliceFlags* out, std::ostream& err);
 
 }  // namespace riskbound::cli
 

@@ -389,7 +389,7 @@ struct RateTestWords {
   std::string reject;
   // "a REJECT on risk", ... (after "give" in sequential mode)
   std::string reject_outcome;
-  // "the risk test", "slice 'x''s test"
+  // "the risk test", "the test of slice 'x'"
   std::string test;
 };
 
@@ -535,12 +535,12 @@ absl::StatusOr<std::optional<std::uint64_t>> PlanSlices(const Measured& m, doubl
     }
     const std::string quoted = absl::StrCat("'", s.slice_name, "'");
     RateTestWords words;
-    words.rate = absl::StrCat("slice ", quoted, "'s observed error rate");
+    words.rate = absl::StrCat("the observed error rate of slice ", quoted);
     words.samples = absl::StrCat("labelled hold-out samples from slice ", quoted);
     words.promote = absl::StrCat("slice ", quoted, " clearing its limit");
     words.reject = absl::StrCat("slice ", quoted, " exceeding its limit, a REJECT");
     words.reject_outcome = words.reject;
-    words.test = absl::StrCat("slice ", quoted, "'s test");
+    words.test = absl::StrCat("the test of slice ", quoted);
     std::vector<std::string> sentence;
     const double half = s.failure_probability / 2.0;
     absl::StatusOr<std::optional<std::uint64_t>> more =

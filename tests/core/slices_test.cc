@@ -22,6 +22,7 @@ namespace {
 
 using ::riskbound::testing::StatusIs;
 using ::testing::HasSubstr;
+using ::testing::Not;
 
 using Binomial = boost::math::binomial_distribution<>;
 
@@ -293,6 +294,10 @@ TEST(SliceGateTest, HoldNamesUndecidedSlicesWithPlans) {
     EXPECT_GT(*s.additional_sample_count, 0u);
     sum += *s.additional_sample_count;
     EXPECT_THAT(s.reason, HasSubstr("more labelled hold-out samples from slice"));
+    // The plan names the slice's rate once, without a doubled quote
+    // ("slice 'x''s observed error rate" read badly).
+    EXPECT_THAT(s.reason, HasSubstr("the observed error rate of slice '" + s.slice_name + "'"));
+    EXPECT_THAT(s.reason, Not(HasSubstr("''")));
   }
   EXPECT_GE(undecided, 1);
   ASSERT_TRUE(d->additional_sample_count.has_value());

@@ -1,7 +1,8 @@
 // Fuzz target: the CLI's readers of untrusted text. The first byte picks
 // one: registry CSV (header, then rows), a JSON-lines registry row, output
 // rows read back for --resume (JSON lines and CSV), JSON request files of
-// every command, the flag parser, and the outward-rounding formatter (whose
+// every command, the flag parser, slices files (--slices: CSV or JSON), and
+// the outward-rounding formatter (whose
 // printed upper bounds must read back >= the value, lower bounds <=). A
 // finding is a crash, a sanitizer report, or a broken rounding promise.
 #include <cmath>
@@ -17,6 +18,7 @@
 #include "client_cli/format.h"
 #include "client_cli/json_io.h"
 #include "client_cli/registry_rows.h"
+#include "client_cli/slices_file.h"
 #include "riskbound/v1/capacity.pb.h"
 #include "riskbound/v1/certify.pb.h"
 #include "riskbound/v1/gate.pb.h"
@@ -89,7 +91,7 @@ void Rounding(const uint8_t* data, size_t size) {
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   if (size < 1) return 0;
-  const uint8_t which = data[0] % 6;
+  const uint8_t which = data[0] % 7;
   const std::string text(reinterpret_cast<const char*>(data + 1), size - 1);
   switch (which) {
     case 0: Csv(text); break;
@@ -105,6 +107,7 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
     case 3: Json(text); break;
     case 4: Args(text); break;
     case 5: Rounding(data + 1, size - 1); break;
+    case 6: (void)cli::ParseSlices(text, "fuzz"); break;
   }
   return 0;
 }

@@ -7,6 +7,7 @@ repository root after a build; the seeds are committed):
 rpc_request_fuzz: one byte naming the method, then the request's protobuf
 encoding; cli_input_fuzz: one byte naming the reader, then the text.
 """
+import csv
 import glob
 import json
 import os
@@ -38,6 +39,13 @@ def main():
     for path in sorted(glob.glob(os.path.join(EX, "models", "*.json"))):
         req = parse(path, certify_pb2.CertifyRequest())
         write("rpc_request_fuzz", "certify-" + os.path.basename(path), b"\x00" + req.SerializeToString())
+    with open(os.path.join(EX, "slices", "late-risk-v15.slices.json")) as f:
+        req = certify_pb2.CertifyRequest(failure_probability=0.05)
+        req.evidence.holdout.error_count, req.evidence.holdout.sample_count = 180, 6000
+        for s in json.load(f)["slices"]:
+            req.evidence.slices.add(**s)
+        req.slice_sharing.rule = 2  # SLICE_SHARE_RULE_SIDAK
+    write("rpc_request_fuzz", "certify-slices", b"\x00" + req.SerializeToString())
     req = parse(os.path.join(EX, "requests", "late-risk-net-capacity.json"),
                 capacity_pb2.EstimateCapacityRequest())
     write("rpc_request_fuzz", "capacity-relu", b"\x01" + req.SerializeToString())
@@ -48,6 +56,15 @@ def main():
         champ = cand.replace(".candidate.json", ".champion.json")
         if os.path.exists(champ):
             parse(champ, req.champion)
+        slices = cand.replace(".candidate.json", ".slices.csv")
+        if os.path.exists(slices):  # name,error_count,sample_count,max_risk
+            with open(slices) as f:
+                for row in csv.DictReader(f):
+                    req.candidate.evidence.slices.add(name=row["name"],
+                                                      error_count=int(row["error_count"]),
+                                                      sample_count=int(row["sample_count"]))
+                    req.policy.slice_max_risks.add(slice_name=row["name"],
+                                                   max_risk=float(row["max_risk"]))
         write("rpc_request_fuzz", "gate-" + os.path.basename(cand), b"\x02" + req.SerializeToString())
     for path in (os.path.join(EX, "structure.json"),
                  os.path.join(EX, "requests", "label-rules-structure.json"),
@@ -96,6 +113,13 @@ def main():
             write("cli_input_fuzz", "json-" + os.path.basename(path), b"\x03" + f.read())
     write("cli_input_fuzz", "args", b"\x04" + b"\x00".join(
         [b"--delta", b"0.05", b"--families=holdout-kl,vc-additive", b"--size-fixed-in-advance"]))
+    for path in sorted(glob.glob(os.path.join(EX, "**", "*.slices.*"), recursive=True)):
+        with open(path, "rb") as f:
+            write("cli_input_fuzz", "slices-" + os.path.basename(path), b"\x06" + f.read())
+    with open(os.path.join(EX, "slices", "bad-slices.csv"), "rb") as f:
+        write("cli_input_fuzz", "slices-bad-slices.csv", b"\x06" + f.read())
+    write("cli_input_fuzz", "slices-lines.jsonl", b"\x06" + b'{"name": "a\\u00e9", "errorCount": "1", '
+          b'"sampleCount": "10", "maxRisk": null}\n{"name": "b", "error_count": 0, "sample_count": 5}\n')
     for i, x in enumerate([0.0019951618622789857, 0.05, 1e-9, 0.5, 1.0, 5e-324]):
         write("cli_input_fuzz", f"round-{i}", b"\x05" + struct.pack("<d", x))
 
