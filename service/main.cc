@@ -452,7 +452,11 @@ int main(int argc, char** argv) {
   }
   spdlog::info("signal {} received: draining for up to {}s (a second signal exits at once)", sig,
                absl::ToDoubleSeconds(settings.drain));
-  std::thread second([&signals, running] {
+  // The watcher is detached and may first run after main has returned (an
+  // idle drain is quick): it takes its own copy of the signal set, never a
+  // reference into main's frame (AddressSanitizer found a stack use after
+  // return of `signals` in sigwait at shutdown).
+  std::thread second([signals, running] {
     int again = 0;
     do {
       sigwait(&signals, &again);

@@ -26,6 +26,16 @@ def run_module_tests(*extra_arguments):
     unittest.main(module=main_module, argv=[sys.argv[0]] + rest, verbosity=2)
 
 
+def sanitized(binary):
+    """True when binary was built with AddressSanitizer (scripts/sanitize,
+    build-sanitize): its resident memory then also holds ASan's shadow memory
+    and its quarantine of freed blocks (up to 256 MiB by default), so a
+    resident-memory figure says nothing about the server's own use. The
+    ordinary build checks those figures."""
+    with open(binary, "rb") as f:
+        return b"__asan_init" in f.read()
+
+
 def load_stubs(stubs_dir):
     """Makes the generated riskbound.v1 Python stubs importable."""
     if stubs_dir not in sys.path:
