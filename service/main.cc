@@ -456,11 +456,12 @@ int main(int argc, char** argv) {
   // idle drain is quick): it takes its own copy of the signal set, never a
   // reference into main's frame (AddressSanitizer found a stack use after
   // return of `signals` in sigwait at shutdown).
-  std::thread second([signals, running] {
+  // During the drain SIGHUP is ignored: the tokens no longer matter, and the
+  // server this thread could reach is destroyed when main returns.
+  std::thread second([signals] {
     int again = 0;
     do {
       sigwait(&signals, &again);
-      if (again == SIGHUP) ReloadTokens(running);
     } while (again == SIGHUP);
     spdlog::warn("second signal {} received: exiting now", again);
     spdlog::shutdown();

@@ -199,8 +199,12 @@ TEST(LimitDecisionTest, AgreesWithTheReportedLimits) {
                            lo * (1 + 1e-9), lo * (1 - 1e-9), 0.5 * (up + lo), 0.02, 0.9}) {
           if (!(eps > 0.0 && eps < 1.0)) continue;
           SCOPED_TRACE(absl::StrCat("n=", n, " k=", k, " delta=", delta, " eps=", eps));
-          if (up_limit.exact) EXPECT_EQ(UpperLimitAtMost(n, k, delta, eps), up <= eps);
-          if (lo_limit.exact) EXPECT_EQ(LowerLimitAbove(n, k, delta, eps), lo > eps);
+          if (up_limit.exact) {
+            EXPECT_EQ(UpperLimitAtMost(n, k, delta, eps), up <= eps);
+          }
+          if (lo_limit.exact) {
+            EXPECT_EQ(LowerLimitAbove(n, k, delta, eps), lo > eps);
+          }
           checked += up_limit.exact + lo_limit.exact;
         }
       }
@@ -227,7 +231,9 @@ TEST(KlInverseTest, LowerInverseWithHugeBudgetsStaysExactAndShort) {
       }
       const double up = KlInverseUpper(q, c);
       EXPECT_LE(BernoulliKl(q, up * (1 - 2e-12)), c);
-      if (up < 1.0) EXPECT_GT(BernoulliKl(q, up), c);
+      if (up < 1.0) {
+        EXPECT_GT(BernoulliKl(q, up), c);
+      }
     }
   }
 }
