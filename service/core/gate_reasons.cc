@@ -181,11 +181,11 @@ std::vector<std::string> BoundReasons(const Findings& f, const Measured& m) {
   if (!m.slices.empty()) {
     out.push_back(absl::StrCat(
         m.slices.size(), " slices share failure probability ", Num(m.split.slices_total), ": ",
-        SliceShareRuleText(m.slice_rule, m.slice_weighted), "; ",
-        SlicesWith(m, SliceOutcome::kClears).size(), " clear, ",
-        SlicesWith(m, SliceOutcome::kExceeds).size(), " exceed, ",
+        SliceShareRuleText(m.slice_rule, m.slice_weighted), "; outcomes: ",
+        SlicesWith(m, SliceOutcome::kClears).size(), " CLEARS, ",
+        SlicesWith(m, SliceOutcome::kExceeds).size(), " EXCEEDS, ",
         SlicesWith(m, SliceOutcome::kUndecided).size(),
-        " undecided (each slice's finding: slices)"));
+        " UNDECIDED (each slice's finding is in the slices list)"));
   }
   if (!f.has_champion) return out;
   if (!m.tolerance_given) {
