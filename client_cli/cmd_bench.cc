@@ -634,10 +634,12 @@ int RunBench(const std::vector<std::string>& args, std::ostream& out, std::ostre
     }
     out << ",\n  \"throughput_ratio\": " << absl::StrFormat("%.3f", ratio)
         << ",\n  \"error_count\": " << errors
-        << ",\n  \"baseline_seconds\": " << absl::StrFormat("%.3f", baseline->seconds)
-        << ",\n  \"load_seconds\": " << absl::StrFormat("%.3f", load->seconds)
+        // Microseconds: a short phase of a fast server lasts a few
+        // milliseconds, where three decimals would be off by percents.
+        << ",\n  \"baseline_seconds\": " << absl::StrFormat("%.6f", baseline->seconds)
+        << ",\n  \"load_seconds\": " << absl::StrFormat("%.6f", load->seconds)
         << ",\n  \"client_cpu_seconds\": "
-        << absl::StrFormat("%.3f", baseline->client_cpu_seconds + load->client_cpu_seconds)
+        << absl::StrFormat("%.6f", baseline->client_cpu_seconds + load->client_cpu_seconds)
         << "\n}\n";
   } else {
     out << "riskbound bench: " << flags.rpc_word << " against " << setup.client.server << ", "
