@@ -103,6 +103,17 @@ std::string CapacityText(const v1::SelectStructureResponse& r, double capacity) 
                                                 : FormatSignificant(capacity, 4, Rounding::kUp);
 }
 
+// The lines both tables end with: the delta rule, the notes (the answer's,
+// then each candidate's) and the cautions.
+void PrintAccountingNotesCautions(const v1::SelectStructureResponse& r, std::ostream& out) {
+  out << "Delta accounting: " << r.delta_rule() << "\n";
+  for (const std::string& note : r.notes()) out << "Note: " << note << "\n";
+  for (const v1::CandidateBound& c : r.candidates()) {
+    for (const std::string& note : c.notes()) out << "Note (" << c.id() << "): " << note << "\n";
+  }
+  PrintCautions(r.cautions(), out);
+}
+
 // Heuristic mode's table: the same columns with "score" for "bound", headed
 // and closed so that it cannot be read as a certificate.
 void PrintHeuristicTable(const v1::SelectStructureResponse& r, std::ostream& out) {
@@ -137,12 +148,7 @@ void PrintHeuristicTable(const v1::SelectStructureResponse& r, std::ostream& out
     out << absl::StrFormat("Not fragile: no other candidate's score is within %s.\n",
                            FormatInput(r.fragility_tolerance()));
   }
-  out << "Delta accounting: " << r.delta_rule() << "\n";
-  for (const std::string& note : r.notes()) out << "Note: " << note << "\n";
-  for (const v1::CandidateBound& c : r.candidates()) {
-    for (const std::string& note : c.notes()) out << "Note (" << c.id() << "): " << note << "\n";
-  }
-  PrintCautions(r.cautions(), out);
+  PrintAccountingNotesCautions(r, out);
 }
 
 void PrintTable(const v1::SelectStructureResponse& r, std::ostream& out) {
@@ -182,12 +188,7 @@ void PrintTable(const v1::SelectStructureResponse& r, std::ostream& out) {
     out << absl::StrFormat("Not fragile: no other candidate's bound is within %s.\n",
                            FormatInput(r.fragility_tolerance()));
   }
-  out << "Delta accounting: " << r.delta_rule() << "\n";
-  for (const std::string& note : r.notes()) out << "Note: " << note << "\n";
-  for (const v1::CandidateBound& c : r.candidates()) {
-    for (const std::string& note : c.notes()) out << "Note (" << c.id() << "): " << note << "\n";
-  }
-  PrintCautions(r.cautions(), out);
+  PrintAccountingNotesCautions(r, out);
 }
 
 SrmPlot PlotOf(const v1::SelectStructureResponse& r) {
