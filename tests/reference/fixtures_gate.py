@@ -93,6 +93,25 @@ def unpaired_difference():
     return header, rows
 
 
+def verdict_boundaries(n, eps, delta):
+    """Brute-force scan over the error count k of n samples, both
+    Clopper-Pearson limits at delta: (k_max, k_min) with k_max the most errors
+    whose upper limit is <= eps (-1: none) and k_min the fewest whose lower
+    limit is > eps (n + 1: none)."""
+    k_max = -1
+    for k in range(n + 1):
+        if cp_upper(n, k, delta) <= eps:
+            k_max = k
+        else:
+            break
+    k_min = n + 1
+    for k in range(n + 1):
+        if cp_lower(n, k, delta) > eps:
+            k_min = k
+            break
+    return k_max, k_min
+
+
 def gate_risk_boundary():
     """Without a champion the gate spends delta/2 on the Clopper-Pearson upper
     limit and delta/2 on the lower one. k_max_promote: the most hold-out
@@ -102,18 +121,7 @@ def gate_risk_boundary():
     rows = []
     for n, eps, delta in [(1000, 0.05, 0.05), (300, 0.1, 0.05), (5000, 0.02, 0.01),
                           (100, 0.2, 0.1), (20000, 0.01, 0.05), (2000, 0.3, 0.2)]:
-        h = delta / 2
-        k_max = -1
-        for k in range(n + 1):
-            if cp_upper(n, k, h) <= eps:
-                k_max = k
-            else:
-                break
-        k_min = n + 1
-        for k in range(n + 1):
-            if cp_lower(n, k, h) > eps:
-                k_min = k
-                break
+        k_max, k_min = verdict_boundaries(n, eps, delta / 2)
         rows.append([n, eps, delta, k_max, k_min])
     return header, rows
 

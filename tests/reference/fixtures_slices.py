@@ -28,7 +28,7 @@ import mpmath
 import numpy
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from fixtures_gate import checked_lower, checked_upper, cp_lower, cp_upper  # noqa: E402
+from fixtures_gate import checked_lower, checked_upper, verdict_boundaries  # noqa: E402
 
 # (name, error_count, sample_count): slices of different sizes, with zero
 # errors, all errors and ordinary rates.
@@ -166,17 +166,7 @@ def slice_gate_boundary():
         for rule, share_of in SHARE_RULES:
             half = share_of(gate_part(delta, False), g) / 2
             for n in sizes:
-                k_max = -1
-                for k in range(n + 1):
-                    if cp_upper(n, k, half) <= eps:
-                        k_max = k
-                    else:
-                        break
-                k_min = n + 1
-                for k in range(n + 1):
-                    if cp_lower(n, k, half) > eps:
-                        k_min = k
-                        break
+                k_max, k_min = verdict_boundaries(n, eps, half)
                 rows.append([rule, delta, g, n, eps, k_max, k_min])
     return header, rows
 
