@@ -78,7 +78,7 @@ void Metrics::RecordCall(const char* transport, const char* rpc, absl::StatusCod
   const std::string_view rpc_name(rpc);
   absl::MutexLock lock(&mu_);
   {
-    const auto key = std::make_tuple(std::string_view(transport), rpc_name, CodeName(code));
+    const CallKeyView key(transport, rpc_name, CodeName(code));
     auto it = calls_.find(key);
     if (it == calls_.end()) {
       it = calls_

@@ -74,10 +74,25 @@ class Metrics {
   const std::function<int()> in_flight_;
 
   mutable absl::Mutex mu_;
-  // Transparent comparators (std::less<>): a call finds its counters by
-  // string views, and allocates key strings only for a label set's first call.
-  std::map<std::tuple<std::string, std::string, std::string>, std::uint64_t, std::less<>> calls_
-      ABSL_GUARDED_BY(mu_);
+  // Transparent comparators: a call finds its counters by string views, and
+  // allocates key strings only for a label set's first call. The call key's
+  // comparator compares views explicitly: std::less<> on a tuple of strings
+  // against a tuple of views does not compile with every standard library
+  // and compiler pair (clang 14 with libstdc++ 12 refuses it).
+  using CallKey = std::tuple<std::string, std::string, std::string>;
+  using CallKeyView = std::tuple<std::string_view, std::string_view, std::string_view>;
+  struct CallKeyLess {
+    using is_transparent = void;
+    static CallKeyView View(const CallKey& k) {
+      return {std::get<0>(k), std::get<1>(k), std::get<2>(k)};
+    }
+    static const CallKeyView& View(const CallKeyView& k) { return k; }
+    template <typename A, typename B>
+    bool operator()(const A& a, const B& b) const {
+      return View(a) < View(b);
+    }
+  };
+  std::map<CallKey, std::uint64_t, CallKeyLess> calls_ ABSL_GUARDED_BY(mu_);
   std::map<std::string, Histogram, std::less<>> latency_ ABSL_GUARDED_BY(mu_);
   std::map<std::string, std::uint64_t, std::less<>> refusals_ ABSL_GUARDED_BY(mu_);
   std::map<std::string, std::uint64_t, std::less<>> verdicts_ ABSL_GUARDED_BY(mu_);
