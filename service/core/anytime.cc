@@ -16,13 +16,17 @@ namespace riskbound::core {
 namespace {
 
 // Errors come back as NaN or infinity (handled by the callers), never as an
-// exception.
+// exception. Evaluated in double, not promoted to long double (Boost's
+// default): about three times faster, and the log-martingale below is summed
+// in double anyway, so its rounding (about 1e-16 of terms in the thousands
+// of nats) stays larger than the special functions' own in double.
 using Quiet = boost::math::policies::policy<
     boost::math::policies::domain_error<boost::math::policies::ignore_error>,
     boost::math::policies::pole_error<boost::math::policies::ignore_error>,
     boost::math::policies::overflow_error<boost::math::policies::ignore_error>,
     boost::math::policies::underflow_error<boost::math::policies::ignore_error>,
-    boost::math::policies::evaluation_error<boost::math::policies::ignore_error>>;
+    boost::math::policies::evaluation_error<boost::math::policies::ignore_error>,
+    boost::math::policies::promote_double<false>>;
 
 constexpr double kInf = std::numeric_limits<double>::infinity();
 // The plan's search stops here: beyond, one limit takes milliseconds.
