@@ -2,6 +2,7 @@
 // one output row for every input row, in input order.
 #include <unistd.h>
 
+#include <algorithm>
 #include <atomic>
 #include <chrono>
 #include <cstdio>
@@ -18,6 +19,7 @@
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
+#include "absl/strings/str_join.h"
 #include "absl/strings/str_split.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/clock.h"
@@ -329,6 +331,18 @@ absl::StatusOr<std::vector<Row>> ReadPriorRows(const std::string& path, OutputFo
 }
 
 // Prints the table form of a row.
+// "slice a", "slices a, b, c" or "slices a, b, c and 4 more".
+std::string SliceList(const std::vector<std::string>& names) {
+  constexpr std::size_t kShown = 3;
+  std::vector<std::string> shown(names.begin(),
+                                 names.begin() + static_cast<std::ptrdiff_t>(
+                                                     std::min(names.size(), kShown)));
+  std::string text =
+      absl::StrCat(names.size() == 1 ? "slice " : "slices ", absl::StrJoin(shown, ", "));
+  if (names.size() > kShown) absl::StrAppend(&text, " and ", names.size() - kShown, " more");
+  return text;
+}
+
 std::string TableRow(const Row& row) {
   const v1::RecordResult& r = row.result;
   std::string result, detail;
@@ -340,6 +354,14 @@ std::string TableRow(const Row& row) {
       absl::StrAppend(&detail, "; about ", r.gated().additional_sample_count(),
                       " more labelled samples");
     }
+    const SliceDigest d = DigestSlices(r);
+    if (!d.exceeding.empty()) {
+      absl::StrAppend(&detail, "; ", SliceList(d.exceeding), " above ",
+                      d.exceeding.size() == 1 ? "its" : "their", " limit");
+    }
+    if (!d.undecided.empty()) {
+      absl::StrAppend(&detail, "; ", SliceList(d.undecided), " undecided");
+    }
   } else if (r.has_certified()) {
     const v1::Certificate& t = r.certified().tightest();
     result = t.vacuous() ? "vacuous" : "certified";
@@ -347,6 +369,10 @@ std::string TableRow(const Row& row) {
                           ", delta ", FormatFailureProbability(r.failure_probability()), ")");
     // Relabel evidence from approximate training: an estimate, not a bound.
     if (t.heuristic()) absl::StrAppend(&detail, "; HEURISTIC, not a bound");
+    if (const SliceDigest d = DigestSlices(r); d.slice_count > 0) {
+      absl::StrAppend(&detail, "; worst slice ", d.worst_slice_name, " ",
+                      FormatUpper(d.worst_slice_upper_bound));
+    }
   } else {
     result = "error";
     detail = r.error().message();

@@ -25,6 +25,23 @@ std::string LabelOf(const Row& row) {
   return label;
 }
 
+// The undecided slices of a HOLD row: up to five names, or only how many
+// where the row was read back from CSV output (which keeps only counts).
+std::string UndecidedSlices(const v1::RecordResult& result) {
+  constexpr std::size_t kShown = 5;
+  const SliceDigest d = DigestSlices(result);
+  if (d.undecided.empty()) return "";
+  const bool named = std::none_of(d.undecided.begin(), d.undecided.end(),
+                                  [](const std::string& n) { return n.empty(); });
+  if (!named) return absl::StrCat(d.undecided.size());
+  std::string text;
+  for (std::size_t i = 0; i < d.undecided.size() && i < kShown; ++i) {
+    absl::StrAppend(&text, i == 0 ? "" : ", ", d.undecided[i]);
+  }
+  if (d.undecided.size() > kShown) absl::StrAppend(&text, " and ", d.undecided.size() - kShown, " more");
+  return text;
+}
+
 const char* ColorOf(const std::string& outcome) {
   if (outcome == "PROMOTE") return "#2e7d32";
   if (outcome == "HOLD") return "#b26a00";
@@ -185,7 +202,7 @@ std::string RegistryReport::Render(const v1::RunSummary& summary, const std::str
     } else {
       html +=
           "<table id=\"holds\">\n<tr><th>line</th><th>model</th><th>upper bound</th>"
-          "<th>extra labelled samples</th></tr>\n";
+          "<th>extra labelled samples</th><th>undecided slices</th></tr>\n";
       for (const Row& row : holds_) {
         const v1::GateResponse& g = row.result.gated();
         absl::StrAppend(&html, "<tr><td class=\"num\">", row.line, "</td><td>",
@@ -194,7 +211,7 @@ std::string RegistryReport::Render(const v1::RunSummary& summary, const std::str
                         "</td><td class=\"num\">",
                         g.has_additional_sample_count() ? absl::StrCat(g.additional_sample_count())
                                                         : std::string("no plan"),
-                        "</td></tr>\n");
+                        "</td><td>", EscapeMarkup(UndecidedSlices(row.result)), "</td></tr>\n");
       }
       html += "</table>\n";
       if (hold_ > holds_.size()) {

@@ -35,6 +35,10 @@ constexpr const char* kCsvOutputColumns[] = {"line",
                                              "failure_probability",
                                              "vacuous",
                                              "additional_sample_count",
+                                             "worst_slice_name",
+                                             "worst_slice_upper_bound",
+                                             "exceeding_slice_count",
+                                             "undecided_slice_count",
                                              "error_code",
                                              "error_fields",
                                              "error_message"};
@@ -261,6 +265,29 @@ Row LocalErrorRow(std::uint64_t line, const std::string& record_id, const absl::
   return row;
 }
 
+SliceDigest DigestSlices(const v1::RecordResult& result) {
+  SliceDigest d;
+  if (result.has_gated()) {
+    for (const v1::SliceCheck& c : result.gated().slices()) {
+      if (d.slice_count == 0 || c.risk_upper_bound() > d.worst_slice_upper_bound) {
+        d.worst_slice_name = c.slice_name();
+        d.worst_slice_upper_bound = c.risk_upper_bound();
+      }
+      ++d.slice_count;
+      if (c.outcome() == v1::SLICE_OUTCOME_EXCEEDS) d.exceeding.push_back(c.slice_name());
+      if (c.outcome() == v1::SLICE_OUTCOME_UNDECIDED) d.undecided.push_back(c.slice_name());
+    }
+  } else if (result.has_certified() && result.certified().has_slices()) {
+    const v1::SliceSummary& s = result.certified().slices();
+    d.slice_count = static_cast<std::size_t>(s.slice_certificates_size());
+    if (d.slice_count > 0) {
+      d.worst_slice_name = s.worst_slice_name();
+      d.worst_slice_upper_bound = s.worst_slice_upper_bound();
+    }
+  }
+  return d;
+}
+
 std::string CsvHeader() { return absl::StrCat(absl::StrJoin(kCsvOutputColumns, ","), "\n"); }
 
 std::string RowText(const Row& row, OutputFormat format) {
@@ -303,11 +330,21 @@ std::string RowText(const Row& row, OutputFormat format) {
     cells[12] = t.vacuous() ? "true" : "false";
   } else {
     cells[5] = "error";
-    cells[14] = result.error().code();
+  }
+  if (const SliceDigest d = DigestSlices(result); d.slice_count > 0) {
+    cells[14] = d.worst_slice_name;
+    cells[15] = Shortest(d.worst_slice_upper_bound);
+    if (result.has_gated()) {
+      cells[16] = absl::StrCat(d.exceeding.size());
+      cells[17] = absl::StrCat(d.undecided.size());
+    }
+  }
+  if (result.has_error()) {
+    cells[18] = result.error().code();
     std::vector<std::string> fields;
     for (const auto& v : result.error().field_violations()) fields.push_back(v.field());
-    cells[15] = absl::StrJoin(fields, ";");
-    cells[16] = result.error().message();
+    cells[19] = absl::StrJoin(fields, ";");
+    cells[20] = result.error().message();
   }
   std::vector<std::string> quoted;
   for (const std::string& c : cells) quoted.push_back(CsvCell(c));
@@ -352,6 +389,32 @@ std::optional<Row> RowFromText(const std::string& text, OutputFormat format) {
     g->mutable_risk_certificate()->set_vacuous(c[12] == "true");
     std::uint64_t extra = 0;
     if (!c[13].empty() && absl::SimpleAtoi(c[13], &extra)) g->set_additional_sample_count(extra);
+    // The slices as far as the row tells them (DigestSlices gives the same
+    // cells back): the worst slice with its bound, and placeholders counting
+    // the exceeding and undecided ones.
+    if (!c[14].empty() && absl::SimpleAtod(c[15], &x)) {
+      std::uint64_t exceeding = 0, undecided = 0;
+      if (!absl::SimpleAtoi(c[16], &exceeding) || !absl::SimpleAtoi(c[17], &undecided)) {
+        return std::nullopt;
+      }
+      v1::SliceCheck* worst = g->add_slices();
+      worst->set_slice_name(c[14]);
+      worst->set_risk_upper_bound(x);
+      if (exceeding > 0) {
+        worst->set_outcome(v1::SLICE_OUTCOME_EXCEEDS);
+        --exceeding;
+      } else if (undecided > 0) {
+        worst->set_outcome(v1::SLICE_OUTCOME_UNDECIDED);
+        --undecided;
+      } else {
+        worst->set_outcome(v1::SLICE_OUTCOME_CLEARS);
+      }
+      for (std::uint64_t i = 0; i < exceeding + undecided; ++i) {
+        v1::SliceCheck* other = g->add_slices();
+        other->set_outcome(i < exceeding ? v1::SLICE_OUTCOME_EXCEEDS
+                                         : v1::SLICE_OUTCOME_UNDECIDED);
+      }
+    }
   } else if (c[5] == "certified") {
     v1::Certificate* t = r.mutable_certified()->mutable_tightest();
     if (absl::SimpleAtod(c[7], &x)) t->set_risk_upper_bound(x);
@@ -359,12 +422,18 @@ std::optional<Row> RowFromText(const std::string& text, OutputFormat format) {
     if (absl::SimpleAtod(c[9], &x)) t->set_empirical_risk(x);
     t->set_family_name(c[10]);
     t->set_vacuous(c[12] == "true");
+    if (!c[14].empty() && absl::SimpleAtod(c[15], &x)) {
+      v1::SliceSummary* slices = r.mutable_certified()->mutable_slices();
+      slices->set_worst_slice_name(c[14]);
+      slices->set_worst_slice_upper_bound(x);
+      slices->add_slice_certificates();
+    }
   } else if (c[5] == "error") {
-    r.mutable_error()->set_code(c[14]);
-    for (absl::string_view f : absl::StrSplit(c[15], ';', absl::SkipEmpty())) {
+    r.mutable_error()->set_code(c[18]);
+    for (absl::string_view f : absl::StrSplit(c[19], ';', absl::SkipEmpty())) {
       r.mutable_error()->add_field_violations()->set_field(std::string(f));
     }
-    r.mutable_error()->set_message(c[16]);
+    r.mutable_error()->set_message(c[20]);
   } else {
     return std::nullopt;
   }

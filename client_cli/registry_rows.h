@@ -61,6 +61,20 @@ struct Row {
   v1::RecordResult result;
 };
 
+// SliceDigest
+// What a row says about its slices (evidence.slices), for the CSV columns,
+// the table and the HTML report: the slice with the largest upper bound,
+// and, for a gate, the slices that exceed their limit and those undecided,
+// in the answer's order (worst first). Empty when the row has no slices.
+struct SliceDigest {
+  std::size_t slice_count = 0;
+  std::string worst_slice_name;
+  double worst_slice_upper_bound = 0.0;
+  std::vector<std::string> exceeding;
+  std::vector<std::string> undecided;
+};
+SliceDigest DigestSlices(const v1::RecordResult& result);
+
 // LocalErrorRow
 // The row of an input line that could not be read into a record.
 Row LocalErrorRow(std::uint64_t line, const std::string& record_id, const absl::Status& status);

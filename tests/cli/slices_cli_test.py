@@ -8,6 +8,8 @@ Reference values: per-slice one-sided Clopper-Pearson limits from
 scipy.stats.beta (through /usr/bin/python3) at the slice's share of delta:
 Bonferroni (1936), delta / G; Sidak (1967), 1 - (1 - delta)^(1/G).
 """
+import csv
+import io
 import json
 import os
 import shutil
@@ -407,6 +409,82 @@ class SliceGateTest(unittest.TestCase):
         self.assertIn("true error, upper bound (holdout-binomial)", out)
         self.assertIn("at or below: passes", out)
         self.assertIn("harbour-quay  EXCEEDS", out)
+
+
+class ScoreWithSlicesTest(unittest.TestCase):
+    """riskbound score over registry records with slices: the CSV slice
+    columns, the JSON lines rows they come from, and the table's detail."""
+
+    HOLD_SLICES = SLICES[:3] + [("harbour-quay", 45, 800)]
+
+    def registry(self):
+        def record(rid, version, slices):
+            return json.dumps({
+                "record_id": rid, "model_name": "late-risk", "model_version": version,
+                "evidence": {"holdout": {"error_count": sum(k for _, k, _ in slices),
+                                         "sample_count": sum(m for _, _, m in slices)},
+                             "slices": [{"name": n, "error_count": k, "sample_count": m}
+                                        for n, k, m in slices]}})
+        return write("registry-slices.jsonl",
+                     record("r-15", "v15", SLICES) + "\n" +
+                     record("r-16", "v16", self.HOLD_SLICES) + "\n")
+
+    def policy(self):
+        return write("policy-slices.json", json.dumps(
+            {"maxRisk": 0.05, "failureProbability": 0.05, "maxSliceRisk": 0.06}))
+
+    def score(self, *args):
+        code, out, err = harness.run_cli("score", self.registry(), *args)
+        self.assertEqual(code, 0, err)
+        return out
+
+    def test_gate_csv_columns(self):
+        rows = list(csv.DictReader(io.StringIO(self.score("--policy", self.policy(),
+                                                          "--output", "csv"))))
+        self.assertEqual([r["verdict"] for r in rows], ["REJECT", "HOLD"])
+        # Per slice, its upper bound at half its Bonferroni share of the
+        # slices' half of delta. Source: scipy.stats.beta.ppf (Clopper & Pearson 1934).
+        side = 0.025 / 4 / 2
+        for row, slices in zip(rows, (SLICES, self.HOLD_SLICES)):
+            worst = max(slices, key=lambda s: cp_upper(s[1], s[2], side))
+            self.assertEqual(row["worst_slice_name"], worst[0])
+            self.assertAlmostEqual(float(row["worst_slice_upper_bound"]) /
+                                   cp_upper(worst[1], worst[2], side), 1.0, delta=1e-9)
+        self.assertEqual((rows[0]["exceeding_slice_count"], rows[0]["undecided_slice_count"]),
+                         ("1", "0"))
+        self.assertEqual((rows[1]["exceeding_slice_count"], rows[1]["undecided_slice_count"]),
+                         ("0", "1"))
+        # The same numbers as the JSON lines rows, where every slice is.
+        for row, line in zip(rows, self.score("--policy", self.policy(), "--output",
+                                              "jsonl").splitlines()):
+            checks = json.loads(line)["result"]["gated"]["slices"]
+            worst = max(checks, key=lambda c: c["risk_upper_bound"])
+            self.assertEqual(float(row["worst_slice_upper_bound"]), worst["risk_upper_bound"])
+            for outcome, column in (("SLICE_OUTCOME_EXCEEDS", "exceeding_slice_count"),
+                                    ("SLICE_OUTCOME_UNDECIDED", "undecided_slice_count")):
+                self.assertEqual(int(row[column]),
+                                 sum(c["outcome"] == outcome for c in checks))
+
+    def test_gate_table_names_the_slices(self):
+        out = self.score("--policy", self.policy())
+        lines = [l for l in out.splitlines() if "late-risk" in l]
+        self.assertEqual(len(lines), 2, out)
+        self.assertIn("REJECT", lines[0])
+        self.assertIn("slice harbour-quay above its limit", lines[0])
+        self.assertIn("HOLD", lines[1])
+        self.assertIn("slice harbour-quay undecided", lines[1])
+
+    def test_certify_csv_and_table_show_the_worst_slice(self):
+        rows = list(csv.DictReader(io.StringIO(self.score("--output", "csv"))))
+        docs = [json.loads(l)["result"]["certified"]["slices"]
+                for l in self.score("--output", "jsonl").splitlines()]
+        for row, doc in zip(rows, docs):
+            self.assertEqual(row["worst_slice_name"], "harbour-quay")
+            self.assertEqual(row["worst_slice_name"], doc["worst_slice_name"])
+            self.assertEqual(float(row["worst_slice_upper_bound"]), doc["worst_slice_upper_bound"])
+            self.assertEqual(row["exceeding_slice_count"], "")
+        out = self.score()
+        self.assertIn("worst slice harbour-quay", out)
 
 
 if __name__ == "__main__":
