@@ -8,12 +8,17 @@
 // limit at or below the largest double below it (fixture columns
 // upper_outward, lower_outward).
 //
+// Weighted shares (rule "bonferroni-weighted", column weight): delta_slices
+// times each slice's weight, powers of two, so exact in binary; checked as
+// the equal Bonferroni shares are.
+//
 // Tolerances: relative 1e-9 on every limit. The core lowers every Sidak
 // share by a relative 1e-9 on purpose (slices.h, SidakShare: surely below
 // 1 - (1 - delta)^(1/G)), so Sidak shares are checked to lie in
 // [1 - 1.1e-9, 1] times scipy's; the limits computed at those slightly
 // smaller shares move outward by less than 1e-9 relative (their
 // elasticity in the level is well below 1), so the same 1e-9 holds.
+#include <algorithm>
 #include <cstdint>
 #include <map>
 #include <string>
@@ -46,7 +51,17 @@ SliceShareRule Rule(const FixtureRow& row) {
 struct Group {
   std::vector<FixtureRow> rows;
   std::vector<SliceEvidence> slices;
+  // Rule "bonferroni-weighted": the caller's weight of every slice.
+  std::vector<SliceWeight> weights;
 };
+
+// The group's sharing: its rule, and its weights when it has them.
+SliceSharing SharingOf(const Group& g) {
+  SliceSharing sharing;
+  sharing.rule = Rule(g.rows.front());
+  sharing.weights = g.weights;
+  return sharing;
+}
 
 std::vector<Group> GroupRows(const std::vector<FixtureRow>& rows,
                              const std::vector<std::string>& key_columns) {
@@ -64,6 +79,7 @@ std::vector<Group> GroupRows(const std::vector<FixtureRow>& rows,
     s.error_count = U(row, "error_count");
     s.sample_count = U(row, "sample_count");
     out.back().slices.push_back(s);
+    if (!row.at("weight").empty()) out.back().weights.push_back({s.name, Num(row, "weight")});
   }
   return out;
 }
@@ -92,7 +108,8 @@ void ExpectMatches(SliceShareRule rule, double share, double upper, double lower
 }
 
 // Source: scipy.stats.beta.isf / beta.ppf and mpmath.betainc (Clopper &
-// Pearson 1934) at Bonferroni (1936) shares delta_slices / G and Sidak (1967) shares
+// Pearson 1934) at Bonferroni (1936) shares delta_slices / G (or
+// delta_slices * w_s with weights) and Sidak (1967) shares
 // 1 - (1 - delta_slices)^(1/G) (numpy, checked with mpmath at 50 digits);
 // fixture slice_certify.csv. Slices only: delta_slices = delta; with a
 // hold-out count beside them: delta / 2.
@@ -100,11 +117,14 @@ TEST(SliceReferenceTest, CertifyLimitsMatchScipy) {
   const std::vector<Group> groups = GroupRows(
       ReadFixture("slice_certify.csv"), {"case", "rule", "failure_probability", "slice_count"});
   ASSERT_GE(groups.size(), 20u);
+  EXPECT_GE(std::count_if(groups.begin(), groups.end(),
+                          [](const Group& g) { return !g.weights.empty(); }),
+            12);
   for (const Group& g : groups) {
     const FixtureRow& first = g.rows.front();
     CertifyRequest r;
     r.failure_probability = Num(first, "failure_probability");
-    r.slice_sharing.rule = Rule(first);
+    r.slice_sharing = SharingOf(g);
     r.evidence.slices = g.slices;
     const bool with_holdout = first.at("case") == "with-holdout";
     if (with_holdout) r.evidence.holdout = SampleCounts{30, 1000};
@@ -140,13 +160,16 @@ TEST(SliceReferenceTest, GateLimitsMatchScipy) {
   const std::vector<Group> groups = GroupRows(
       ReadFixture("slice_gate.csv"), {"rule", "failure_probability", "champion", "slice_count"});
   ASSERT_GE(groups.size(), 20u);
+  EXPECT_GE(std::count_if(groups.begin(), groups.end(),
+                          [](const Group& g) { return !g.weights.empty(); }),
+            12);
   for (const Group& g : groups) {
     const FixtureRow& first = g.rows.front();
     GatePolicy p;
     p.max_risk = 0.5;
     p.failure_probability = Num(first, "failure_probability");
     p.max_slice_risk = 0.5;
-    p.slice_sharing.rule = Rule(first);
+    p.slice_sharing = SharingOf(g);
     GateCandidate c;
     c.id = "fern-9";
     std::uint64_t k = 0, n = 0;

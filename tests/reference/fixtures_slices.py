@@ -6,7 +6,8 @@ Limits also at 40 digits with mpmath (root of the regularized incomplete
 beta, mpmath.betainc), rounded outward to a double: columns upper_outward
 and lower_outward, the reference of the outward-rounding checks.
 
-Shares: Bonferroni (1936), delta_slices / G; Sidak (1967),
+Shares: Bonferroni (1936), delta_slices / G, or delta_slices * w_s with
+caller weights (rule "bonferroni-weighted", column weight); Sidak (1967),
 1 - (1 - delta_slices)^(1/G), computed in numpy as -expm1(log1p(-d) / G) and
 cross-checked at 50 digits with mpmath. Limits: scipy.stats.beta.isf /
 beta.ppf (the complement inverse; Clopper & Pearson 1934), cross-checked by
@@ -50,6 +51,26 @@ def sidak_share(total, g):
 
 
 SHARE_RULES = [("bonferroni", bonferroni_share), ("sidak", sidak_share)]
+
+# Caller weights of the weighted union bound (Bonferroni 1936: slice s gets
+# delta_slices * w_s, sum_s w_s <= 1), for the first 3 or 6 slices: powers of
+# two, so that every product with delta_slices is exact in binary and the
+# shares need no rounding (the second sums to 15/16, leaving some unspent).
+WEIGHTS = {3: [0.5, 0.25, 0.25], 6: [0.25, 0.25, 0.125, 0.125, 0.125, 0.0625]}
+
+
+def weighted_shares(total, g):
+    """(rule, share, weight) per slice: the rule column is
+    "bonferroni-weighted", the weight column the slice's weight."""
+    assert sum(WEIGHTS[g]) <= 1
+    return [("bonferroni-weighted", total * w, w) for w in WEIGHTS[g]]
+
+
+def rule_shares(total, g):
+    """Every share rule's (rule, share, weight) per slice: equal Bonferroni
+    and Sidak shares (weight column empty), then the weighted shares."""
+    out = [[(rule, share_of(total, g), "")] * g for rule, share_of in SHARE_RULES]
+    return out + [weighted_shares(total, g)]
 
 
 def mp_root(f, guess):
@@ -112,19 +133,19 @@ def slice_certify():
     sides are each one-sided at that share, as the hold-out exact binomial
     family states)."""
     header = ["case", "rule", "failure_probability", "slice_count", "slice", "error_count",
-              "sample_count", "share", "upper", "lower", "upper_outward", "lower_outward"]
+              "sample_count", "share", "upper", "lower", "upper_outward", "lower_outward",
+              "weight"]
     rows = []
     for case, part in [("slices-only", 1.0), ("with-holdout", 0.5)]:
         for delta in [0.05, 0.01, 1e-6]:
             for g in [3, 6]:
                 slices = SLICES[:g]
-                for rule, share_of in SHARE_RULES:
-                    total = delta * part  # halving is exact in binary
-                    share = share_of(total, g)
-                    for name, k, n in slices:
+                total = delta * part  # halving is exact in binary
+                for per_slice in rule_shares(total, g):
+                    for (name, k, n), (rule, share, weight) in zip(slices, per_slice):
                         u, lo = checked_upper(n, k, share), checked_lower(n, k, share)
                         rows.append([case, rule, delta, g, name, k, n, share, u, lo,
-                                     *mp_limits(n, k, share, u, lo)])
+                                     *mp_limits(n, k, share, u, lo), weight])
     return header, rows
 
 
@@ -136,18 +157,18 @@ def slice_gate():
     """Gate: each slice's share of the slices' part, the upper and the lower
     limit at half the share each."""
     header = ["rule", "failure_probability", "champion", "slice_count", "slice", "error_count",
-              "sample_count", "share", "upper", "lower", "upper_outward", "lower_outward"]
+              "sample_count", "share", "upper", "lower", "upper_outward", "lower_outward",
+              "weight"]
     rows = []
     for delta in [0.05, 0.1, 1e-4]:
         for champion in [0, 1]:
             for g in [3, 6]:
                 slices = SLICES[:g]
-                for rule, share_of in SHARE_RULES:
-                    share = share_of(gate_part(delta, champion), g)
-                    for name, k, n in slices:
+                for per_slice in rule_shares(gate_part(delta, champion), g):
+                    for (name, k, n), (rule, share, weight) in zip(slices, per_slice):
                         u, lo = checked_upper(n, k, share / 2), checked_lower(n, k, share / 2)
                         rows.append([rule, delta, champion, g, name, k, n, share, u, lo,
-                                     *mp_limits(n, k, share / 2, u, lo)])
+                                     *mp_limits(n, k, share / 2, u, lo), weight])
     return header, rows
 
 

@@ -33,6 +33,7 @@ inline std::vector<FixtureRow> ReadFixture(const std::string& name) {
     std::stringstream ss(line);
     std::string cell;
     while (std::getline(ss, cell, ',')) cells.push_back(cell);
+    if (line.back() == ',') cells.push_back("");  // an empty last cell
     if (header.empty()) {
       header = cells;
       continue;
