@@ -128,13 +128,16 @@ std::string Shortest(double x) { return ShortestDecimal(x); }
 
 }  // namespace
 
-absl::StatusOr<std::vector<std::string>> SplitCsvLine(const std::string& line) {
+absl::StatusOr<std::vector<std::string>> SplitCsvLine(const std::string& line,
+                                                      std::vector<std::size_t>* starts) {
   std::vector<std::string> cells;
   std::string cell;
   std::size_t i = 0;
   const std::size_t n = line.size() > 0 && line.back() == '\r' ? line.size() - 1 : line.size();
+  if (starts != nullptr) starts->clear();
   while (true) {
     cell.clear();
+    if (starts != nullptr) starts->push_back(i);
     if (i < n && line[i] == '"') {
       ++i;
       bool closed = false;

@@ -23,7 +23,10 @@ enum class OutputFormat { kTable, kJsonLines, kCsv };
 // The cells of one CSV line (RFC 4180: comma-separated, a cell in double
 // quotes may hold commas and "" for a quote; no line breaks inside a cell).
 // INVALID_ARGUMENT for an unterminated quote or text after a closing quote.
-absl::StatusOr<std::vector<std::string>> SplitCsvLine(const std::string& line);
+// With `starts`, also each cell's 0-based offset in the line (its opening
+// quote, if quoted), one per cell.
+absl::StatusOr<std::vector<std::string>> SplitCsvLine(const std::string& line,
+                                                      std::vector<std::size_t>* starts = nullptr);
 
 // CsvColumns
 // The columns of a CSV header, each the path of a singular scalar field of

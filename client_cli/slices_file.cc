@@ -148,22 +148,17 @@ absl::StatusOr<SlicesFile> ParseCsv(const std::string& text, const std::string& 
     std::string line(line_view);
     if (!line.empty() && line.back() == '\r') line.pop_back();
     if (absl::StripAsciiWhitespace(line).empty()) continue;  // blank lines are no rows
-    auto cells = SplitCsvLine(line);
+    // Each cell's 1-based character column (its opening quote, if quoted),
+    // as SplitCsvLine found the cells: one per cell, whatever quotes the
+    // cells hold (a column count of its own once ran short of the cells
+    // for a quote inside an unquoted cell: found by cli_input_fuzz).
+    std::vector<std::size_t> offsets;
+    auto cells = SplitCsvLine(line, &offsets);
     if (!cells.ok()) {
       return Bad(source, {line_number, 1}, "", cells.status().message());
     }
-    // Each cell's 1-based character column (quotes included).
     std::vector<std::uint64_t> cell_columns;
-    {
-      std::uint64_t col = 1;
-      bool quoted = false;
-      cell_columns.push_back(1);
-      for (char c : line) {
-        ++col;
-        if (c == '"') quoted = !quoted;
-        if (c == ',' && !quoted) cell_columns.push_back(col);
-      }
-    }
+    for (std::size_t offset : offsets) cell_columns.push_back(offset + 1);
     if (columns.empty()) {
       for (std::size_t i = 0; i < cells->size(); ++i) {
         const std::string cell(absl::StripAsciiWhitespace((*cells)[i]));
@@ -226,12 +221,24 @@ absl::StatusOr<SlicesFile> ParseCsv(const std::string& text, const std::string& 
 
 // A JSON value with where it starts. Only as much JSON as a slices file
 // needs, but all of it is read (and checked) so that errors have positions.
+struct JsonMember;
+
+// (A member is its own struct, not a std::pair holding a JsonValue: a pair
+// needs JsonValue complete where the vector is declared, which clang 14 in
+// C++20 enforces.)
 struct JsonValue {
   enum Kind { kNull, kBool, kNumber, kString, kArray, kObject } kind = kNull;
   Where at;
   std::string text;  // number text or string value
   std::vector<JsonValue> items;
-  std::vector<std::pair<std::pair<std::string, Where>, JsonValue>> members;
+  std::vector<JsonMember> members;
+};
+
+// One "key": value of an object, with where the key stands.
+struct JsonMember {
+  std::string key;
+  Where key_at;
+  JsonValue value;
 };
 
 class JsonReader {
@@ -430,7 +437,7 @@ class JsonReader {
       ++i_;
       JsonValue value;
       if (auto st = Value(&value, depth + 1); !st.ok()) return st;
-      v->members.push_back({{key, key_at}, std::move(value)});
+      v->members.push_back({key, key_at, std::move(value)});
       SkipSpace();
       if (i_ < s_.size() && s_[i_] == ',') {
         ++i_;
@@ -459,15 +466,15 @@ absl::Status SliceFromJson(const std::string& source, const JsonValue& v, RawSli
                "\"sample_count\": ...}");
   }
   s->row = v.at;
-  for (const auto& [key_at, value] : v.members) {
-    const std::string column = ColumnFor(key_at.first);
+  for (const auto& [key, key_at, value] : v.members) {
+    const std::string column = ColumnFor(key);
     if (column.empty()) {
-      return Bad(source, key_at.second, "",
-                 absl::StrCat("unknown key '", key_at.first,
+      return Bad(source, key_at, "",
+                 absl::StrCat("unknown key '", key,
                               "' (keys: name, error_count, sample_count, max_risk)"));
     }
     if (s->at.count(column)) {
-      return Bad(source, key_at.second, "", absl::StrCat("key '", column, "' is given twice"));
+      return Bad(source, key_at, "", absl::StrCat("key '", column, "' is given twice"));
     }
     s->at[column] = value.at;
     if (column == kMaxRisk) {
@@ -502,13 +509,13 @@ absl::StatusOr<SlicesFile> ParseJsonSlices(const std::string& text, const std::s
   if (values->size() == 1 && (*values)[0].kind == JsonValue::kArray) {
     for (const JsonValue& item : (*values)[0].items) items.push_back(&item);
   } else if (values->size() == 1 && (*values)[0].kind == JsonValue::kObject &&
-             !(*values)[0].members.empty() && (*values)[0].members[0].first.first == "slices") {
+             !(*values)[0].members.empty() && (*values)[0].members[0].key == "slices") {
     const JsonValue& top = (*values)[0];
     if (top.members.size() != 1) {
-      return Bad(source, top.members[1].first.second, "",
+      return Bad(source, top.members[1].key_at, "",
                  "an object {\"slices\": [...]} has no other keys");
     }
-    const JsonValue& list = top.members[0].second;
+    const JsonValue& list = top.members[0].value;
     if (list.kind != JsonValue::kArray) {
       return Bad(source, list.at, "slices", "must be an array of slices");
     }

@@ -129,6 +129,12 @@ class SliceFileFormsTest(unittest.TestCase):
              ", line 2, column 8 (max_risk): '1.5' is not a limit in (0, 1)"),
             ("quote.csv", 'name,error_count,sample_count\n"a,1,10\n',
              ", line 2, column 1: a quoted cell is not closed"),
+            # A quote inside an unquoted cell is text; the columns after it
+            # still count (found by cli_input_fuzz: they once ran out).
+            ("inner-quote.csv", 'name,error_count,sample_count\nb"c,x,10\n',
+             ", line 2, column 5 (error_count): 'x' is not a whole number >= 0"),
+            ("quoted-comma.csv", 'name,error_count,sample_count\n"b,c",1,-9\n',
+             ", line 2, column 9 (sample_count): '-9' is not a whole number >= 0"),
             ("header-only.csv", "name,error_count,sample_count\n", ": no slices in the file"),
             ("type.json", '[{"name": "a", "error_count": 1, "sample_count": 10},\n'
                           ' {"name": "b", "error_count": true, "sample_count": 10}]',
