@@ -26,7 +26,7 @@ import urllib.request
 import grpc
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from server_harness import ServerProcess, load_stubs, run_module_tests  # noqa: E402
+from server_harness import ServerProcess, load_stubs, run_module_tests, sanitized  # noqa: E402
 import bad_input_table_test as table  # noqa: E402  (check_answer)
 
 ARGS = None
@@ -381,7 +381,10 @@ class ClientFaultTest(unittest.TestCase):
         self.assertTrue(health_check(self.s.channel))
         table.check_answer(self, self.s.stub.Certify(certify_request(), timeout=10))
         table.check_answer(self, self.s.stub.Gate(gate_request(), timeout=10))
-        self.assertLess(self.s.server.proc_status("VmRSS") - rss_before, 50 * 1024)
+        if not sanitized(ARGS.server):
+            # (A sanitized server's resident memory also holds ASan's
+            # quarantine: 103 MiB more here in the sanitized CI run.)
+            self.assertLess(self.s.server.proc_status("VmRSS") - rss_before, 50 * 1024)
         # Reading again resumes the stream where it stopped, in order.
         answers = [next(call) for _ in range(200)]
         check_stream(self, answers, None, finished_ok=False)
