@@ -445,6 +445,18 @@ LogBounds AnyTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
   return with_median({log_one_minus(c.upper), log_one_minus(c.lower)});
 }
 
+// |d ln P / dp| at p for the tail whose ln is log_tail: d/dp P(X <= k) =
+// -(n - k)/(1 - p) P(X = k) (upper_tail false), d/dp P(X >= k) = (k/p) P(X = k)
+// (upper_tail true), divided by P; capped at e^700.
+double TailLogSlope(std::uint64_t n, std::uint64_t k, double p, bool upper_tail,
+                    double log_tail) {
+  const double nd = static_cast<double>(n);
+  const double kd = static_cast<double>(k);
+  const double factor = upper_tail ? kd / p : (nd - kd) / (1.0 - p);
+  const double log_slope = std::log(factor) + LogPmf(nd, kd, p) - log_tail;
+  return std::exp(std::min(log_slope, 700.0));
+}
+
 // A decision "is the limit beyond eps?" taken from one tail evaluation at
 // eps is trusted when ln of the tail is further from ln delta than the
 // limit's own bisection tolerance (1e-12 relative in p) can move it: the
@@ -453,11 +465,8 @@ LogBounds AnyTailBounds(std::uint64_t n, std::uint64_t k, double p, bool upper_t
 // divided by the lower bound on P (the larger slope).
 double DecideMargin(std::uint64_t n, std::uint64_t k, double eps, bool upper_tail,
                     double log_tail_lower) {
-  const double nd = static_cast<double>(n);
-  const double kd = static_cast<double>(k);
-  const double factor = upper_tail ? kd / eps : (nd - kd) / (1.0 - eps);
-  const double log_slope = std::log(factor) + LogPmf(nd, kd, eps) - log_tail_lower;
-  return 1e-13 + 2.0 * kBisectionTolerance * eps * std::exp(std::min(log_slope, 700.0));
+  return 1e-13 + 2.0 * kBisectionTolerance * eps * TailLogSlope(n, k, eps, upper_tail,
+                                                                 log_tail_lower);
 }
 
 // Is ln P(tail) >= log_delta? Yes, no, or unsure (the bounds straddle it).
@@ -568,16 +577,6 @@ constexpr int kMaxNudges = 64;
 constexpr double kPriorUlps = 8.0;
 constexpr double kNewtonCap = 1e-13;
 
-// |d ln P / dp| at p for the tail whose ln is log_tail: P(X <= k) falls at
-// (n - k)/(1 - p) P(X = k), P(X >= k) rises at (k/p) P(X = k) (DecideMargin).
-double TailLogSlope(std::uint64_t n, std::uint64_t k, double p, bool upper_limit,
-                    double log_tail) {
-  const double nd = static_cast<double>(n);
-  const double kd = static_cast<double>(k);
-  const double factor = upper_limit ? (nd - kd) / (1.0 - p) : kd / p;
-  return factor * std::exp(std::min(LogPmf(nd, kd, p) - log_tail, 700.0));
-}
-
 // The outward distance to try from v (0 < v < 1) when ln P(v) is `excess`
 // nats above `target` (0 for the first try, where P(v) is about delta): the
 // Newton step for the excess plus the margin, overshot by half, plus
@@ -592,7 +591,7 @@ double OutwardStep(std::uint64_t n, std::uint64_t k, double v, bool upper_limit,
   const double cap = kNewtonCap * std::min(v, 1.0 - v);
   if (!(cap >= kPriorUlps * ulp)) return 0.0;
   double step = kPriorUlps * ulp;
-  const double slope = TailLogSlope(n, k, v, upper_limit, log_tail);
+  const double slope = TailLogSlope(n, k, v, /*upper_tail=*/!upper_limit, log_tail);
   if (std::isfinite(slope) && slope > 0.0) step += 1.5 * (excess + 2.0 * margin) / slope;
   return std::min(step, cap);
 }
