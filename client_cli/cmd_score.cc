@@ -2,7 +2,6 @@
 // one output row for every input row, in input order.
 #include <unistd.h>
 
-#include <algorithm>
 #include <atomic>
 #include <chrono>
 #include <cstdio>
@@ -19,7 +18,6 @@
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
-#include "absl/strings/str_join.h"
 #include "absl/strings/str_split.h"
 #include "absl/synchronization/mutex.h"
 #include "absl/time/clock.h"
@@ -333,14 +331,7 @@ absl::StatusOr<std::vector<Row>> ReadPriorRows(const std::string& path, OutputFo
 // Prints the table form of a row.
 // "slice a", "slices a, b, c" or "slices a, b, c and 4 more".
 std::string SliceList(const std::vector<std::string>& names) {
-  constexpr std::size_t kShown = 3;
-  std::vector<std::string> shown(names.begin(),
-                                 names.begin() + static_cast<std::ptrdiff_t>(
-                                                     std::min(names.size(), kShown)));
-  std::string text =
-      absl::StrCat(names.size() == 1 ? "slice " : "slices ", absl::StrJoin(shown, ", "));
-  if (names.size() > kShown) absl::StrAppend(&text, " and ", names.size() - kShown, " more");
-  return text;
+  return absl::StrCat(names.size() == 1 ? "slice " : "slices ", FirstNames(names, 3));
 }
 
 std::string TableRow(const Row& row) {

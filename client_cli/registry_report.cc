@@ -34,12 +34,7 @@ std::string UndecidedSlices(const v1::RecordResult& result) {
   const bool named = std::none_of(d.undecided.begin(), d.undecided.end(),
                                   [](const std::string& n) { return n.empty(); });
   if (!named) return absl::StrCat(d.undecided.size());
-  std::string text;
-  for (std::size_t i = 0; i < d.undecided.size() && i < kShown; ++i) {
-    absl::StrAppend(&text, i == 0 ? "" : ", ", d.undecided[i]);
-  }
-  if (d.undecided.size() > kShown) absl::StrAppend(&text, " and ", d.undecided.size() - kShown, " more");
-  return text;
+  return FirstNames(d.undecided, kShown);
 }
 
 const char* ColorOf(const std::string& outcome) {

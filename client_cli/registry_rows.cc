@@ -291,6 +291,15 @@ SliceDigest DigestSlices(const v1::RecordResult& result) {
   return d;
 }
 
+std::string FirstNames(const std::vector<std::string>& names, std::size_t shown) {
+  std::string text;
+  for (std::size_t i = 0; i < names.size() && i < shown; ++i) {
+    absl::StrAppend(&text, i == 0 ? "" : ", ", names[i]);
+  }
+  if (names.size() > shown) absl::StrAppend(&text, " and ", names.size() - shown, " more");
+  return text;
+}
+
 std::string CsvHeader() { return absl::StrCat(absl::StrJoin(kCsvOutputColumns, ","), "\n"); }
 
 std::string RowText(const Row& row, OutputFormat format) {

@@ -78,6 +78,10 @@ struct SliceDigest {
 };
 SliceDigest DigestSlices(const v1::RecordResult& result);
 
+// FirstNames
+// "a", "a, b, c" or "a, b, c and 4 more": the first `shown` names.
+std::string FirstNames(const std::vector<std::string>& names, std::size_t shown);
+
 // LocalErrorRow
 // The row of an input line that could not be read into a record.
 Row LocalErrorRow(std::uint64_t line, const std::string& record_id, const absl::Status& status);
